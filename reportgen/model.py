@@ -1,0 +1,286 @@
+"""The validated project: frozen dataclasses and closed vocabularies.
+
+Results are kept as one pandas DataFrame (see ``RESULT_COLUMNS``) so that the
+engine can judge them without a Python loop per row.
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from datetime import date
+from enum import StrEnum
+from pathlib import Path
+from typing import Final
+
+import pandas as pd
+
+
+class FiberType(StrEnum):
+    OM1 = "OM1"
+    OM2 = "OM2"
+    OM3 = "OM3"
+    OM4 = "OM4"
+    OM5 = "OM5"
+    OS1 = "OS1"
+    OS1A = "OS1a"
+    OS2 = "OS2"
+
+    @property
+    def category(self) -> FiberCategory:
+        return FiberCategory.MULTIMODE if self.value.startswith("OM") else FiberCategory.SINGLEMODE
+
+
+class FiberCategory(StrEnum):
+    MULTIMODE = "multimode"
+    SINGLEMODE = "singlemode"
+
+
+class Plant(StrEnum):
+    INSIDE = "inside"
+    OUTSIDE = "outside"
+
+
+class ReferenceMethod(StrEnum):
+    ONE_CORD = "one-cord"
+    TWO_CORD = "two-cord"
+    THREE_CORD = "three-cord"
+
+
+class Directions(StrEnum):
+    BOTH = "both"
+    ONE = "one"
+
+
+class Direction(StrEnum):
+    AB = "ab"
+    BA = "ba"
+
+
+class LengthUnit(StrEnum):
+    M = "m"
+    FT = "ft"
+
+
+class InstrumentKind(StrEnum):
+    LIGHT_SOURCE = "light-source"
+    POWER_METER = "power-meter"
+    OTDR = "otdr"
+    TEST_CORD = "test-cord"
+    OTHER = "other"
+
+
+class Paper(StrEnum):
+    A4 = "a4"
+    LETTER = "letter"
+
+
+class ResultVerdict(StrEnum):
+    PASS = "pass"
+    FAIL = "fail"
+    INVALID = "invalid"
+    SUPERSEDED = "superseded"
+
+
+class LinkVerdict(StrEnum):
+    PASS = "pass"
+    FAIL = "fail"
+    INCOMPLETE = "incomplete"
+
+
+class ResultFlag(StrEnum):
+    """Flags on a result row (``flags`` column of results.csv)."""
+
+    WITHIN_UNCERTAINTY = "within-uncertainty"  # |margin| <= uncertainty_db
+    NEGATIVE_LOSS = "negative-loss"  # loss below -uncertainty_db: bad reference
+    RETEST = "retest"  # judged row that superseded earlier rows of the same key
+    CALIBRATION_OVERDUE = "calibration-overdue"  # an instrument used after its due date
+    NOT_REQUIRED = "not-required"  # wavelength judged but not in the required set
+
+
+# Default required wavelengths per fiber category [nm] (common practice: the two
+# windows of each category; overridable with testing.wavelengths).
+DEFAULT_WAVELENGTHS_NM: Final[Mapping[FiberCategory, tuple[int, ...]]] = {
+    FiberCategory.MULTIMODE: (850, 1300),
+    FiberCategory.SINGLEMODE: (1310, 1550),
+}
+
+# Attenuator values offered for an overloaded receiver [dB] (common practice).
+DEFAULT_ATTENUATORS_DB: Final[tuple[float, ...]] = (1, 2, 3, 5, 7, 10, 15, 20)
+
+
+@dataclass(frozen=True)
+class Contractor:
+    name: str
+    address: str | None = None
+    phone: str | None = None
+    email: str | None = None
+    logo: Path | None = None  # resolved absolute path inside the project folder
+
+
+@dataclass(frozen=True)
+class ProjectInfo:
+    title: str
+    contractor: Contractor
+    site: str | None = None
+    customer: str | None = None
+    job_number: str | None = None
+
+
+@dataclass(frozen=True)
+class Testing:
+    limits: str  # built-in id or a path inside the project folder, as written
+    reference_method: ReferenceMethod
+    directions: Directions = Directions.BOTH
+    uncertainty_db: float = 0.0
+    units: LengthUnit = LengthUnit.M
+    wavelengths_nm: Mapping[FiberCategory, tuple[int, ...]] = field(
+        default_factory=lambda: dict(DEFAULT_WAVELENGTHS_NM)
+    )
+    attenuators_db: tuple[float, ...] = DEFAULT_ATTENUATORS_DB
+
+
+@dataclass(frozen=True)
+class Component:
+    id: str
+    loss_db: float
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Transceiver:
+    id: str
+    wavelength_nm: int
+    tx_min_dbm: float
+    tx_max_dbm: float
+    rx_sensitivity_dbm: float
+    rx_overload_dbm: float
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Instrument:
+    id: str
+    kind: InstrumentKind
+    model: str | None = None
+    serial: str | None = None
+    calibration_due: date | None = None
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class ReportOptions:
+    paper: Paper = Paper.A4
+    templates: Path | None = None  # resolved folder inside the project folder
+
+
+@dataclass(frozen=True)
+class Link:
+    link_id: str
+    end_a: str
+    end_b: str
+    fiber_type: FiberType
+    length_m: float
+    plant: Plant = Plant.INSIDE
+    strands: int = 1
+    connections: int = 0
+    splices: int = 0
+    components: tuple[str, ...] = ()  # ids from Project.components, in the order given
+    applications: tuple[str, ...] = ()
+    transceiver: str | None = None
+    notes: str | None = None
+    line: int = 0  # line in links.csv
+
+    @property
+    def length_km(self) -> float:
+        return self.length_m / 1000.0
+
+
+# Columns of Project.results, one row per results/*.csv row, in file order
+# (files sorted by name, then line):
+#   source_file (str, relative path), source_line (int), link_id (str), strand (int),
+#   wavelength_nm (int), direction (str: "ab"/"ba"), loss_db (float),
+#   tested_at (pandas Timestamp, naive; tz-aware inputs converted to UTC),
+#   tested_at_text (str, as written), instrument (str, ";"-joined ids or ""),
+#   technician (str or ""), measured_length_m (float or NaN), note (str or "")
+RESULT_COLUMNS: Final[tuple[str, ...]] = (
+    "source_file",
+    "source_line",
+    "link_id",
+    "strand",
+    "wavelength_nm",
+    "direction",
+    "loss_db",
+    "tested_at",
+    "tested_at_text",
+    "instrument",
+    "technician",
+    "measured_length_m",
+    "note",
+)
+
+
+@dataclass(frozen=True)
+class Project:
+    """A validated project folder: everything one report needs."""
+
+    root: Path
+    info: ProjectInfo
+    testing: Testing
+    links: tuple[Link, ...]
+    results: pd.DataFrame = field(compare=False, repr=False)
+    limits: LimitSet
+    components: Mapping[str, Component] = field(default_factory=dict)
+    transceivers: Mapping[str, Transceiver] = field(default_factory=dict)
+    instruments: tuple[Instrument, ...] = ()
+    technicians: tuple[str, ...] = ()
+    report: ReportOptions = field(default_factory=ReportOptions)
+
+    def link(self, link_id: str) -> Link:
+        for link in self.links:
+            if link.link_id == link_id:
+                return link
+        raise KeyError(link_id)
+
+
+@dataclass(frozen=True)
+class LimitSet:
+    """Allowances of one standard and edition, each value with its source."""
+
+    id: str
+    title: str
+    source: str
+    connection_db: float
+    splice_db: float
+    attenuation_db_per_km: Mapping[FiberType, Mapping[int, float]]
+    attenuation_db_per_km_outside: Mapping[FiberType, Mapping[int, float]] = field(
+        default_factory=dict
+    )
+    sources: Mapping[str, str] = field(default_factory=dict)  # key path -> citation
+    notes: tuple[str, ...] = ()
+    origin: str = "built-in"  # "built-in" or the project-relative path of the file
+
+    def covers(self, fiber_type: FiberType) -> bool:
+        return fiber_type in self.attenuation_db_per_km
+
+    def table_for(self, fiber_type: FiberType, plant: Plant) -> Mapping[int, float]:
+        """Attenuation by wavelength [dB/km]: the outside-plant table for an outside link
+        when it lists the fiber type, else the first table (project format v1)."""
+        if plant is Plant.OUTSIDE and fiber_type in self.attenuation_db_per_km_outside:
+            return self.attenuation_db_per_km_outside[fiber_type]
+        return self.attenuation_db_per_km.get(fiber_type, {})
+
+    def wavelengths_nm(self, fiber_type: FiberType, plant: Plant = Plant.INSIDE) -> tuple[int, ...]:
+        """Wavelengths [nm] the set defines for a fiber type and cable construction."""
+        return tuple(sorted(self.table_for(fiber_type, plant)))
+
+    def attenuation_for(self, fiber_type: FiberType, wavelength_nm: int, plant: Plant) -> float:
+        """Attenuation coefficient α [dB/km]; raises KeyError when the set has none."""
+        return self.table_for(fiber_type, plant)[wavelength_nm]
+
+    def source_for(self, key: str) -> str:
+        """Citation for a value's key path (e.g. ``attenuation_db_per_km.OS2``), else the set's."""
+        while key:
+            if key in self.sources:
+                return self.sources[key]
+            key = key.rpartition(".")[0]
+        return self.source

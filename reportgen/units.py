@@ -1,0 +1,62 @@
+"""Unit conversions. Pure functions, no I/O.
+
+Every dB in reportgen is 10·log10 of a power ratio; dBm is power relative
+to 1 mW. There is no 20·log10 anywhere in this package.
+"""
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from typing import Final
+
+M_PER_FT: Final = 0.3048  # international foot, exact by definition (1959 agreement)
+M_PER_KM: Final = 1000.0
+
+
+def dbm_to_mw(power_dbm: float) -> float:
+    """Optical power from dBm to milliwatts: P[mW] = 10 ** (P[dBm] / 10)."""
+    return 10.0 ** (power_dbm / 10.0)
+
+
+def mw_to_dbm(power_mw: float) -> float:
+    """Optical power from milliwatts to dBm. ``power_mw`` must be > 0."""
+    if power_mw <= 0:
+        raise ValueError(f"power must be positive to express in dBm, got {power_mw} mW")
+    return 10.0 * math.log10(power_mw)
+
+
+def ratio_to_db(power_ratio: float) -> float:
+    """A power ratio (output/input, linear) in dB: 10·log10(ratio)."""
+    if power_ratio <= 0:
+        raise ValueError(f"a power ratio must be positive to express in dB, got {power_ratio}")
+    return 10.0 * math.log10(power_ratio)
+
+
+def db_to_ratio(gain_db: float) -> float:
+    """A gain in dB as a linear power ratio: 10 ** (dB / 10)."""
+    return 10.0 ** (gain_db / 10.0)
+
+
+def sum_losses_db(losses_db: Iterable[float]) -> float:
+    """Total loss of parts in series: losses in dB add along a link."""
+    return math.fsum(losses_db)
+
+
+def received_power_dbm(launch_dbm: float, loss_db: float) -> float:
+    """Power after a loss: P_out[dBm] = P_in[dBm] − loss[dB]."""
+    return launch_dbm - loss_db
+
+
+def ft_to_m(length_ft: float) -> float:
+    """Length from feet to metres."""
+    return length_ft * M_PER_FT
+
+
+def m_to_ft(length_m: float) -> float:
+    """Length from metres to feet."""
+    return length_m / M_PER_FT
+
+
+def m_to_km(length_m: float) -> float:
+    """Length from metres to kilometres."""
+    return length_m / M_PER_KM

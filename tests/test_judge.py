@@ -1,0 +1,192 @@
+"""Judging rules of docs/project-format.md ("How a result is judged"), hand-worked.
+
+Coefficients are test inputs (tests/builders.TEST_LIMITS), not a standard's values:
+α(OM4) 2.0 dB/km @850, 1.0 @1300; a_conn 0.5 dB; a_splice 0.1 dB. A 500 m OM4 link
+with no connections under one-cord has limit 2.0·0.5 + 2·0.5 = 2.0 dB @850 and
+1.0·0.5 + 1.0 = 1.5 dB @1300.
+"""
+from __future__ import annotations
+
+import math
+from datetime import date
+
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from reportgen.judge import judge_project
+from reportgen.model import Directions, Instrument, InstrumentKind, LinkVerdict
+from tests.builders import make_link, make_project
+
+FULL = [dict(wavelength_nm=w, direction=d, loss_db=1.0) for w in (850, 1300) for d in ("ab", "ba")]
+
+
+def _row(judgement, index):
+    return judgement.results.iloc[index]
+
+
+def test_margin_is_limit_minus_loss_and_pass():
+    judgement = judge_project(make_project([make_link()], FULL))
+    row = _row(judgement, 0)
+    assert row["limit_db"] == pytest.approx(2.0)  # hand-worked above
+    assert row["margin_db"] == pytest.approx(1.0)  # 2.0 − 1.0
+    assert row["verdict"] == "pass"
+    assert judgement.links[0].verdict is LinkVerdict.PASS
+    assert judgement.links[0].worst_margin_db == pytest.approx(0.5)  # 1.5 − 1.0 at 1300
+
+
+def test_loss_equal_to_limit_passes_and_just_above_fails():
+    rows = FULL[1:] + [dict(wavelength_nm=850, direction="ab", loss_db=2.0)]
+    assert judge_project(make_project([make_link()], rows)).links[0].verdict is LinkVerdict.PASS
+    rows = FULL[1:] + [dict(wavelength_nm=850, direction="ab", loss_db=2.01)]
+    judgement = judge_project(make_project([make_link()], rows))
+    assert judgement.links[0].verdict is LinkVerdict.FAIL
+    assert judgement.links[0].worst_margin_db == pytest.approx(-0.01)
+
+
+def test_within_uncertainty_flag_on_both_sides_of_the_limit():
+    rows = [dict(wavelength_nm=850, direction="ab", loss_db=1.85),   # margin +0.15
+            dict(wavelength_nm=850, direction="ba", loss_db=2.15),   # margin −0.15
+            dict(wavelength_nm=1300, direction="ab", loss_db=1.0),   # margin +0.5
+            dict(wavelength_nm=1300, direction="ba", loss_db=1.0)]
+    judgement = judge_project(make_project([make_link()], rows, uncertainty_db=0.2))
+    flags = list(judgement.results["flags"])
+    assert "within-uncertainty" in flags[0] and "within-uncertainty" in flags[1]
+    assert "within-uncertainty" not in flags[2]
+    assert list(judgement.results["verdict"]) == ["pass", "fail", "pass", "pass"]
+
+
+def test_negative_loss_beyond_uncertainty_is_invalid_and_counts_as_missing():
+    rows = FULL[1:] + [dict(wavelength_nm=850, direction="ab", loss_db=-0.35)]
+    judgement = judge_project(make_project([make_link()], rows, uncertainty_db=0.2))
+    assert judgement.results["verdict"].iloc[-1] == "invalid"
+    assert "negative-loss" in judgement.results["flags"].iloc[-1]
+    outcome = judgement.links[0]
+    assert outcome.verdict is LinkVerdict.INCOMPLETE
+    assert [(m.wavelength_nm, m.direction, m.reason) for m in outcome.missing] == [
+        (850, "ab", "invalid")]
+
+
+def test_small_negative_loss_within_uncertainty_is_judged():
+    rows = FULL[1:] + [dict(wavelength_nm=850, direction="ab", loss_db=-0.1)]
+    judgement = judge_project(make_project([make_link()], rows, uncertainty_db=0.2))
+    assert judgement.results["verdict"].iloc[-1] == "pass"
+
+
+def test_latest_retest_is_judged_and_earlier_is_superseded():
+    rows = FULL[1:] + [
+        dict(wavelength_nm=850, direction="ab", loss_db=2.4, tested_at="2030-01-15T09:00"),
+        dict(wavelength_nm=850, direction="ab", loss_db=1.2, tested_at="2030-01-16"),
+    ]
+    judgement = judge_project(make_project([make_link()], rows))
+    assert list(judgement.results["verdict"].iloc[-2:]) == ["superseded", "pass"]
+    assert "retest" in judgement.results["flags"].iloc[-1]
+    assert judgement.links[0].verdict is LinkVerdict.PASS
+
+
+def test_retest_order_is_by_time_not_by_file_order():
+    rows = FULL[1:] + [
+        dict(wavelength_nm=850, direction="ab", loss_db=1.2, tested_at="2030-01-16"),
+        dict(wavelength_nm=850, direction="ab", loss_db=2.4, tested_at="2030-01-15"),
+    ]
+    judgement = judge_project(make_project([make_link()], rows))
+    assert list(judgement.results["verdict"].iloc[-2:]) == ["pass", "superseded"]
+
+
+def test_latest_invalid_retest_leaves_the_result_missing():
+    rows = FULL[1:] + [
+        dict(wavelength_nm=850, direction="ab", loss_db=1.2, tested_at="2030-01-15"),
+        dict(wavelength_nm=850, direction="ab", loss_db=-1.0, tested_at="2030-01-16"),
+    ]
+    judgement = judge_project(make_project([make_link()], rows))
+    assert list(judgement.results["verdict"].iloc[-2:]) == ["superseded", "invalid"]
+    assert judgement.links[0].verdict is LinkVerdict.INCOMPLETE
+
+
+def test_missing_strand_wavelength_direction_are_listed():
+    link = make_link(strands=2)
+    judgement = judge_project(make_project([link], FULL))
+    outcome = judgement.links[0]
+    assert outcome.verdict is LinkVerdict.INCOMPLETE
+    assert {(m.strand, m.wavelength_nm, m.direction) for m in outcome.missing} == {
+        (2, 850, "ab"), (2, 850, "ba"), (2, 1300, "ab"), (2, 1300, "ba")}
+
+
+def test_directions_one_needs_either_direction():
+    rows = [dict(wavelength_nm=850, direction="ba", loss_db=1.0),
+            dict(wavelength_nm=1300, direction="ab", loss_db=1.0)]
+    project = make_project([make_link()], rows, directions=Directions.ONE)
+    assert judge_project(project).links[0].verdict is LinkVerdict.PASS
+
+
+def test_failure_outranks_missing():
+    rows = [dict(wavelength_nm=850, direction="ab", loss_db=5.0)]
+    outcome = judge_project(make_project([make_link()], rows)).links[0]
+    assert outcome.verdict is LinkVerdict.FAIL
+    assert len(outcome.missing) == 3
+
+
+def test_link_without_results_is_incomplete_with_no_worst_margin():
+    outcome = judge_project(make_project([make_link()], [])).links[0]
+    assert outcome.verdict is LinkVerdict.INCOMPLETE
+    assert outcome.worst_margin_db is None
+    assert len(outcome.missing) == 4
+
+
+def test_calibration_overdue_flag():
+    meter = Instrument("PM-1", InstrumentKind.POWER_METER, calibration_due=date(2030, 1, 15))
+    rows = [dict(wavelength_nm=850, loss_db=1.0, tested_at="2030-01-15", instrument="PM-1"),
+            dict(wavelength_nm=850, direction="ba", loss_db=1.0, tested_at="2030-01-16T08:00",
+                 instrument="SRC;PM-1")]
+    judgement = judge_project(make_project([make_link()], rows, instruments=[meter]))
+    assert "calibration-overdue" not in judgement.results["flags"].iloc[0]
+    assert "calibration-overdue" in judgement.results["flags"].iloc[1]
+
+
+def test_totals_count_link_verdicts():
+    links = [make_link("A"), make_link("B"), make_link("C")]
+    rows = ([dict(r, link_id="A") for r in FULL]
+            + [dict(r, link_id="B", loss_db=9.0) for r in FULL])
+    judgement = judge_project(make_project(links, rows))
+    assert judgement.totals == {"links": 3, "pass": 1, "fail": 1, "incomplete": 1}
+
+
+loss = st.floats(min_value=-0.19, max_value=20, allow_nan=False)
+
+
+@settings(max_examples=60, deadline=None)
+@given(losses=st.lists(loss, min_size=4, max_size=4),
+       length_m=st.floats(min_value=1, max_value=5000),
+       connections=st.integers(0, 6), splices=st.integers(0, 6))
+def test_properties_margin_and_link_verdict(losses, length_m, connections, splices):
+    link = make_link(length_m=length_m, connections=connections, splices=splices)
+    rows = [dict(r, loss_db=value) for r, value in zip(FULL, losses)]
+    judgement = judge_project(make_project([link], rows, uncertainty_db=0.2))
+    frame = judgement.results
+    # margin = limit − loss, exactly as defined
+    assert all(math.isclose(m, l - x, abs_tol=1e-9)
+               for m, l, x in zip(frame["margin_db"], frame["limit_db"], frame["loss_db"]))
+    # a link never passes with a failing result
+    if (frame["verdict"] == "fail").any():
+        assert judgement.links[0].verdict is LinkVerdict.FAIL
+    else:
+        assert judgement.links[0].verdict is LinkVerdict.PASS
+
+
+@settings(max_examples=60, deadline=None)
+@given(length_m=st.floats(min_value=0.1, max_value=100_000), extra_m=st.floats(0, 1000),
+       connections=st.integers(0, 20), splices=st.integers(0, 50), more=st.integers(1, 5))
+def test_property_limit_grows_with_length_connections_splices(length_m, extra_m, connections,
+                                                              splices, more):
+    from reportgen.budget import allowed_loss_db
+    from reportgen.model import ReferenceMethod
+    from tests.builders import TEST_LIMITS
+
+    def limit(**kw):
+        base = dict(length_m=length_m, connections=connections, splices=splices)
+        base.update(kw)
+        return allowed_loss_db(make_link(**base), 850, TEST_LIMITS, ReferenceMethod.ONE_CORD)
+
+    assert limit(length_m=length_m + extra_m) >= limit()
+    assert limit(connections=connections + more) > limit()
+    assert limit(splices=splices + more) > limit()
