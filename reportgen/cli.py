@@ -1,0 +1,164 @@
+"""Command line: parse, call the pipeline, map outcomes to exit status.
+
+Exit status: 0 done (``check``: every link passes), 1 (``check`` only) some link
+fails or is incomplete, 2 bad input or any other error — with the message on
+standard error and nothing written.
+"""
+from __future__ import annotations
+
+import logging
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+import click
+from rich.console import Console
+from rich.table import Table
+
+from . import __version__
+from .errors import InputError, ReportgenError
+
+MAX_PROBLEMS_SHOWN = 50
+
+EPILOG = """\b
+Examples:
+  reportgen check demo_project            judge every result, print a table
+  reportgen build demo_project -o out/    write report.html, report.pdf,
+                                          results.csv and summary.json
+  reportgen limits                        list the built-in limit sets
+  reportgen limits tia-568.3-d            show one limit set with its sources
+  reportgen applications                  list the application table
+
+Exit status: 0 done, 1 (check) a link fails or is incomplete,
+2 bad input or any other error (nothing is written).
+"""
+
+
+class _Failure(Exception):
+    """Carries an exit status out of a command."""
+
+    def __init__(self, status: int) -> None:
+        self.status = status
+
+
+def _stderr() -> Console:
+    return Console(stderr=True, highlight=False, soft_wrap=True)
+
+
+def _stdout() -> Console:
+    return Console(highlight=False)
+
+
+@click.group(epilog=EPILOG, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="reportgen", message="%(prog)s %(version)s")
+@click.option("-v", "--verbose", is_flag=True, help="Show each pipeline step.")
+@click.option("--debug", is_flag=True, help="Show a traceback on internal errors.")
+@click.pass_context
+def cli(ctx: click.Context, verbose: bool, debug: bool) -> None:
+    """Judge fiber-optic link test results against a loss budget and publish a report."""
+    logging.basicConfig(level=logging.INFO if verbose else logging.WARNING,
+                        format="%(message)s", stream=sys.stderr, force=True)
+    ctx.obj = {"debug": debug}
+
+
+PROJECT = click.argument("project", type=click.Path(path_type=Path))
+
+
+@cli.command(epilog="Exit status: 0 every link passes, 1 some link fails or is incomplete, "
+                    "2 bad input.")
+@PROJECT
+def check(project: Path) -> None:
+    """Validate and judge PROJECT, print a table of links; write nothing."""
+    from . import pipeline
+    from .terminal import print_check_table
+
+    outcome = pipeline.compute(pipeline.validate_only(project))
+    print_check_table(_stdout(), outcome)
+    totals = outcome.judgement.totals
+    if totals["fail"] or totals["incomplete"]:
+        raise _Failure(1)
+
+
+@cli.command(epilog="Outputs: report.html, report.pdf, results.csv, summary.json. "
+                    "Set SOURCE_DATE_EPOCH for a reproducible report date.")
+@PROJECT
+@click.option("-o", "--output", type=click.Path(path_type=Path),
+              help="Output folder (default: PROJECT/report).")
+@click.option("--data-only", is_flag=True,
+              help="Write only results.csv and summary.json (no HTML/PDF report).")
+def build(project: Path, output: Path | None, data_only: bool) -> None:
+    """Validate, judge and write the report of PROJECT."""
+    from . import pipeline
+    from .terminal import progress_bar
+
+    with progress_bar(_stderr(), enabled=not data_only) as progress:
+        result = pipeline.build(project, output, report=not data_only, progress=progress)
+    totals = result.outcome.judgement.totals
+    _stdout().print(
+        f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
+        f"{totals['incomplete']} incomplete. Written to {result.out_dir}: "
+        + ", ".join(result.files))
+
+
+@cli.command()
+@click.argument("set_id", required=False)
+def limits(set_id: str | None) -> None:
+    """List the built-in limit sets, or show SET_ID as a table with its sources."""
+    from .terminal import print_limit_set, print_limit_sets
+
+    if set_id is None:
+        print_limit_sets(_stdout())
+    else:
+        print_limit_set(_stdout(), set_id)
+
+
+@cli.command()
+def applications() -> None:
+    """List the application table (channel loss and length limits) with sources."""
+    from .terminal import print_applications
+
+    print_applications(_stdout())
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status instead of exiting."""
+    debug = "--debug" in (argv if argv is not None else sys.argv[1:])
+    try:
+        status = cli.main(args=list(argv) if argv is not None else None,
+                          prog_name="reportgen", standalone_mode=False)
+    except _Failure as failure:
+        return failure.status
+    except click.exceptions.Exit as done:
+        return done.exit_code
+    except click.ClickException as error:
+        error.show()
+        return error.exit_code
+    except click.exceptions.Abort:
+        _stderr().print("error: interrupted")
+        return 2
+    except InputError as error:
+        console = _stderr()
+        problems = error.problems
+        for problem in problems[:MAX_PROBLEMS_SHOWN]:
+            console.print(f"error: {problem}", markup=False)
+        if len(problems) > MAX_PROBLEMS_SHOWN:
+            console.print(f"error: ... and {len(problems) - MAX_PROBLEMS_SHOWN} more problems "
+                          f"({len(problems)} in all); nothing was written", markup=False)
+        else:
+            console.print(f"{len(problems)} problem(s) found; nothing was written", markup=False)
+        return 2
+    except ReportgenError as error:
+        _stderr().print(f"error: {error}", markup=False)
+        return 2
+    except Exception as error:  # still exit 2 with a message, never a bare traceback
+        if debug:
+            raise
+        _stderr().print(f"error: internal failure: {error!r} (run with --debug for details)",
+                        markup=False)
+        return 2
+    return status if isinstance(status, int) else 0
+
+
+def run() -> int:
+    """Console-script entry point."""
+    return main()

@@ -1,0 +1,156 @@
+"""The build, stage by stage: load and validate → judge → assess → render → export.
+
+Only ``validate`` (through ``load``/``limits``) reads the project folder and only
+``export`` writes anything, at the very end, so a bad input or a failed render
+leaves the output folder untouched.
+"""
+from __future__ import annotations
+
+import logging
+import os
+from collections.abc import Callable
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+from . import __version__, export
+from .errors import InputError, InputProblem, ReportgenError
+from .judge import Judgement, judge_project
+from .model import Project
+from .validate import load_project
+
+log = logging.getLogger("reportgen")
+
+Progress = Callable[[int, int], None]
+
+# Folders of a project that hold inputs: an output folder there would be read back.
+_INPUT_FOLDERS = ("results", "otdr", "assets")
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """Everything computed about a project, before anything is rendered."""
+
+    project: Project
+    judgement: Judgement
+    extras: dict[str, Any]  # per-issue additions: "applications", "power"
+
+
+@dataclass(frozen=True)
+class BuildResult:
+    out_dir: Path
+    outcome: Outcome
+    files: tuple[str, ...]
+
+
+def validate_only(project_dir: Path) -> Project:
+    """Step 1–2: read and validate the project folder (raises InputError)."""
+    project_dir = Path(project_dir)
+    if not project_dir.is_dir():
+        raise InputError([InputProblem(str(project_dir), None, None,
+                                       "a project folder with project.yaml and links.csv",
+                                       "no such folder")])
+    log.info("Step 1: reading and validating %s", project_dir)
+    return load_project(project_dir)
+
+
+def compute(project: Project) -> Outcome:
+    """Step 3: judge every result, then assess applications and power budgets."""
+    log.info("Step 3: judging %d results of %d links", len(project.results), len(project.links))
+    judgement = judge_project(project)
+    extras: dict[str, Any] = {}
+    try:
+        from .applications import assess_project
+    except ImportError:  # pragma: no cover - module lands with the applications work
+        assess_project = None
+    if assess_project is not None:
+        extras["applications"] = assess_project(project, judgement)
+    return Outcome(project, judgement, extras)
+
+
+def default_out_dir(project_dir: Path) -> Path:
+    return Path(project_dir) / "report"
+
+
+def check_out_dir(project_dir: Path, out_dir: Path) -> None:
+    """Refuse an output folder that would overwrite or be read back as input."""
+    project_real = Path(project_dir).resolve()
+    out_real = Path(out_dir).resolve()
+    if out_real == project_real or any(
+        out_real == project_real / folder or (project_real / folder) in out_real.parents
+        for folder in _INPUT_FOLDERS
+    ):
+        raise ReportgenError(
+            f"output folder {out_dir} is the project folder or one of its input folders "
+            f"({', '.join(_INPUT_FOLDERS)}); choose another with -o (default: PROJECT/report)")
+    if out_real.exists() and not out_real.is_dir():
+        raise ReportgenError(f"output folder {out_dir} exists and is not a folder")
+
+
+def build_now(now: datetime | None) -> datetime:
+    """The report's clock: given, else SOURCE_DATE_EPOCH (reproducible builds), else now."""
+    if now is not None:
+        return now
+    epoch = os.environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if epoch.isdigit():
+        return datetime.fromtimestamp(int(epoch), tz=timezone.utc)
+    return datetime.now(tz=timezone.utc).replace(microsecond=0)
+
+
+def build(
+    project_dir: Path,
+    out_dir: Path | None = None,
+    *,
+    now: datetime | None = None,
+    version: str = __version__,
+    report: bool = True,
+    progress: Progress | None = None,
+) -> BuildResult:
+    """Validate, judge, render and write every output; nothing is written on failure."""
+    project_dir = Path(project_dir)
+    out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
+    check_out_dir(project_dir, out_dir)
+    project = validate_only(project_dir)
+    outcome = compute(project)
+    now = build_now(now)
+    outputs = {
+        "results.csv": export.results_csv_bytes(outcome.judgement.results),
+        "summary.json": export.json_bytes(summary_document(outcome, now, version)),
+    }
+    if report:
+        outputs.update(render_report(outcome, now=now, version=version, progress=progress))
+    log.info("Step 5: writing %s", ", ".join(outputs))
+    export.write_outputs(out_dir, outputs)
+    return BuildResult(out_dir, outcome, tuple(outputs))
+
+
+def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
+    """summary.json: the contract's keys plus applications and power per link."""
+    link_extras: dict[str, dict[str, Any]] = {}
+    assessed = outcome.extras.get("applications")
+    if assessed is not None:
+        link_extras = assessed.summary_by_link()
+    project = outcome.project
+    meta = {
+        "project": {"title": project.info.title, "job_number": project.info.job_number},
+        "limits": project.limits.id,
+        "reference_method": project.testing.reference_method.value,
+        "generated_at": now.isoformat(),
+        "generator": f"reportgen {version}",
+    }
+    return export.summary_dict(project, outcome.judgement, link_extras, meta)
+
+
+def render_report(outcome: Outcome, *, now: datetime, version: str,
+                  progress: Progress | None = None) -> dict[str, bytes]:
+    """Step 4: the HTML report and the PDF rendered from the same templates."""
+    from . import pdf, render
+
+    log.info("Step 4: rendering the report")
+    document = render.build_report(outcome.project, outcome.judgement, now=now,
+                                   version=version, extras=outcome.extras)
+    pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
+                               title=outcome.project.info.title, created=now,
+                               page_label=document.page_label, progress=progress)
+    return {"report.html": document.html.encode("utf-8"), "report.pdf": pdf_bytes}

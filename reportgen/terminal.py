@@ -1,0 +1,116 @@
+"""Terminal output of the command line (rich tables, progress bar). No computation."""
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+
+from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.table import Table
+
+from .limits import builtin_ids, describe_rows, load_builtin_limit_set
+from .errors import ReportgenError
+
+# Verdict words shown in the terminal; style only adds emphasis, the word carries the meaning.
+_VERDICT_STYLE = {"pass": "", "fail": "bold reverse", "incomplete": "bold"}
+
+
+def _missing_text(outcome, limit: int = 4) -> str:
+    parts = [
+        f"s{m.strand} {m.wavelength_nm} {'' if m.direction == 'any' else m.direction}".rstrip()
+        + (" (invalid)" if m.reason == "invalid" else "")
+        for m in outcome.missing[:limit]
+    ]
+    more = len(outcome.missing) - limit
+    return ", ".join(parts) + (f", +{more} more" if more > 0 else "")
+
+
+def print_check_table(console: Console, outcome) -> None:
+    """Links with verdict, worst margin and what is missing, then totals."""
+    project = outcome.project
+    table = Table(title=f"{project.info.title} — limits {project.limits.id}, "
+                        f"{project.testing.reference_method.value} reference",
+                  title_justify="left", header_style="bold")
+    table.add_column("link")
+    table.add_column("fiber")
+    table.add_column("length", justify="right")
+    table.add_column("verdict")
+    table.add_column("worst margin", justify="right")
+    table.add_column("missing")
+    links = {link.link_id: link for link in project.links}
+    unit = project.testing.units.value
+    for item in outcome.judgement.links:
+        link = links[item.link_id]
+        length = link.length_m if unit == "m" else link.length_m / 0.3048
+        margin = "—" if item.worst_margin_db is None else f"{item.worst_margin_db:+.2f} dB"
+        table.add_row(item.link_id, link.fiber_type.value, f"{length:,.0f} {unit}",
+                      item.verdict.value.upper(), margin, _missing_text(item),
+                      style=_VERDICT_STYLE[item.verdict.value] or None)
+    console.print(table)
+    totals = outcome.judgement.totals
+    console.print(f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
+                  f"{totals['incomplete']} incomplete")
+
+
+def print_limit_sets(console: Console) -> None:
+    table = Table(header_style="bold", title="Built-in limit sets", title_justify="left")
+    table.add_column("id")
+    table.add_column("title")
+    table.add_column("source")
+    for set_id in builtin_ids():
+        limits = load_builtin_limit_set(set_id)
+        table.add_row(limits.id, limits.title, limits.source)
+    console.print(table)
+
+
+def print_limit_set(console: Console, set_id: str) -> None:
+    try:
+        limits = load_builtin_limit_set(set_id)
+    except KeyError:
+        raise ReportgenError(f"no built-in limit set {set_id!r}; expected one of "
+                             f"{', '.join(builtin_ids())}") from None
+    console.print(f"[bold]{limits.title}[/bold] ({limits.id})")
+    console.print(f"Source: {limits.source}", markup=False)
+    console.print(f"Mated connection: {limits.connection_db:.2f} dB — "
+                  f"{limits.source_for('connection_db')}", markup=False)
+    console.print(f"Splice: {limits.splice_db:.2f} dB — {limits.source_for('splice_db')}",
+                  markup=False)
+    table = Table(header_style="bold")
+    for column in ("cable", "fiber", "λ nm", "dB/km", "source"):
+        table.add_column(column, justify="right" if column in ("λ nm", "dB/km") else "left")
+    for row in describe_rows(limits):
+        table.add_row(row["table"], row["fiber_type"], str(row["wavelength_nm"]),
+                      f"{row['attenuation_db_per_km']:.2f}", row["source"])
+    console.print(table)
+    for note in limits.notes:
+        console.print(f"Note: {note}", markup=False)
+
+
+def print_applications(console: Console) -> None:
+    from .applications import describe_rows as application_rows
+
+    rows = application_rows()
+    table = Table(header_style="bold", title="Applications", title_justify="left")
+    columns = list(rows[0]) if rows else []
+    for column in columns:
+        table.add_column(column)
+    for row in rows:
+        table.add_row(*("" if row[c] is None else str(row[c]) for c in columns))
+    console.print(table)
+
+
+@contextmanager
+def progress_bar(console: Console, enabled: bool = True) -> Iterator:
+    """A progress callback ``(done, total)`` shown as a bar on a terminal."""
+    if not enabled or not console.is_terminal:
+        yield None
+        return
+    bar = Progress(TextColumn("rendering report"), BarColumn(), MofNCompleteColumn(),
+                   TimeElapsedColumn(), console=console, transient=True)
+    task = bar.add_task("render", total=None)
+
+    def update(done: int, total: int) -> None:
+        bar.update(task, completed=done, total=total)
+
+    with bar:
+        yield update

@@ -1,0 +1,72 @@
+"""results.csv and summary.json as the contract defines them; atomic writes."""
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+
+import pytest
+
+from reportgen import export
+from reportgen.judge import judge_project
+from tests.builders import make_link, make_project
+
+
+def _judged():
+    rows = [
+        dict(wavelength_nm=850, direction="ab", loss_db=1.0, note="=HYPERLINK(\"x\")"),
+        dict(wavelength_nm=850, direction="ba", loss_db=2.4, tested_at="2030-01-15"),
+        dict(wavelength_nm=850, direction="ba", loss_db=1.1, tested_at="2030-01-16",
+             technician="@someone"),
+        dict(wavelength_nm=1300, direction="ab", loss_db=-0.5),
+    ]
+    project = make_project([make_link(link_id="-L1")], [dict(r, link_id="-L1") for r in rows])
+    return project, judge_project(project)
+
+
+def test_results_csv_has_contract_columns_and_every_row():
+    _, judgement = _judged()
+    rows = list(csv.DictReader(io.StringIO(export.results_csv_bytes(judgement.results).decode())))
+    assert len(rows) == 4  # superseded and invalid rows included
+    for column in ("link_id", "strand", "wavelength_nm", "direction", "loss_db", "tested_at",
+                   "limit_db", "margin_db", "verdict", "flags"):
+        assert column in rows[0]
+    assert [r["verdict"] for r in rows] == ["pass", "superseded", "pass", "invalid"]
+    # hand-worked: 500 m OM4 at 850 nm, test set α = 2.0, a_conn = 0.5, one-cord: 2.0 dB
+    assert float(rows[0]["limit_db"]) == pytest.approx(2.0)
+    assert float(rows[0]["margin_db"]) == pytest.approx(1.0)
+    assert rows[3]["margin_db"] == ""  # an invalid result has no margin
+
+
+def test_results_csv_neutralises_formula_text_but_keeps_numbers():
+    _, judgement = _judged()
+    rows = list(csv.DictReader(io.StringIO(export.results_csv_bytes(judgement.results).decode())))
+    assert rows[0]["note"].startswith("'=")
+    assert rows[0]["link_id"] == "'-L1"
+    assert rows[2]["technician"] == "'@someone"
+    assert rows[3]["loss_db"] == "-0.5"  # numbers stay numbers
+
+
+def test_summary_shape_follows_the_contract():
+    project, judgement = _judged()
+    document = json.loads(export.json_bytes(export.summary_dict(project, judgement)))
+    assert document["format"] == 1
+    assert document["totals"] == {"links": 1, "pass": 0, "fail": 0, "incomplete": 1}
+    link = document["links"][0]
+    assert set(link) >= {"link_id", "verdict", "worst_margin_db", "missing"}
+    assert link["verdict"] == "incomplete"
+    assert link["missing"] == [
+        {"strand": 1, "wavelength_nm": 1300, "direction": "ab", "reason": "invalid"},
+        {"strand": 1, "wavelength_nm": 1300, "direction": "ba", "reason": "not-tested"},
+    ]
+
+
+def test_write_outputs_replaces_and_removes_stale_and_partial_files(tmp_path):
+    out = tmp_path / "out"
+    export.write_outputs(out, {"results.csv": b"old", "report.pdf": b"old pdf"})
+    (out / f"{export.TEMP_PREFIX}report.pdf.abc").write_bytes(b"half")  # an interrupted build
+    (out / "keep-me.txt").write_text("not ours")
+    export.write_outputs(out, {"results.csv": b"new", "summary.json": b"{}"})
+    assert sorted(os.listdir(out)) == ["keep-me.txt", "results.csv", "summary.json"]
+    assert (out / "results.csv").read_bytes() == b"new"
