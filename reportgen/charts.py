@@ -1,0 +1,119 @@
+"""Project-level charts drawn with matplotlib, returned as SVG text.
+
+Built on ``matplotlib.figure.Figure`` (no pyplot state), text kept as text
+(``svg.fonttype: none``), a fixed ``svg.hashsalt`` and no date metadata, so the
+same project gives the same SVG. Meaning is carried by shape and hatching as well
+as by colour.
+"""
+from __future__ import annotations
+
+import base64
+import io
+from collections.abc import Sequence
+from typing import Final
+
+import matplotlib
+from matplotlib.figure import Figure
+
+from .messages import TEXT, msg
+from .viewmodel import LinkView
+
+_RC: Final = {
+    "svg.fonttype": "none",
+    "svg.hashsalt": "reportgen",
+    "font.family": "DejaVu Sans",
+    "font.size": 8,
+    "axes.linewidth": 0.6,
+}
+WITHIN_COLOUR: Final = "#12355b"
+OVER_COLOUR: Final = "#b5400f"
+VERDICT_STYLE: Final = {  # face colour, hatch
+    "pass": ("#cfdcea", ""),
+    "fail": (OVER_COLOUR, "////"),
+    "incomplete": ("#ffffff", ".."),
+}
+
+
+def figure_to_svg(fig: Figure) -> str:
+    """The figure as an ``<svg>`` element (no XML prolog), reproducibly."""
+    buffer = io.StringIO()
+    with matplotlib.rc_context(_RC):
+        fig.savefig(buffer, format="svg", metadata={"Date": None, "Creator": None})
+    text = buffer.getvalue()
+    return text[text.index("<svg"):]
+
+
+def _figure(width_in: float, height_in: float) -> Figure:
+    with matplotlib.rc_context(_RC):
+        return Figure(figsize=(width_in, height_in), dpi=72)
+
+
+def margin_groups(links: Sequence[LinkView]) -> dict[str, list[tuple[float, bool]]]:
+    """Judged margins per "fiber type, wavelength" as (margin dB, over the limit)."""
+    groups: dict[tuple[str, int], list[tuple[float, bool]]] = {}
+    for link in links:
+        for result in link.results:
+            if result.margin_db is not None:
+                groups.setdefault((link.fiber_type, result.wavelength_nm), []).append(
+                    (result.margin_db, result.verdict == "fail"))
+    return {f"{fiber}\n{msg('budget_wavelength', wavelength=wl)}": groups[(fiber, wl)]
+            for fiber, wl in sorted(groups)}
+
+
+def margin_chart(links: Sequence[LinkView]) -> str:
+    """Dots of every judged margin, one column per fiber type and wavelength."""
+    groups = margin_groups(links)
+    with matplotlib.rc_context(_RC):
+        fig = _figure(6.6, 2.7)
+        ax = fig.add_axes((0.09, 0.2, 0.89, 0.7))
+        ax.axhline(0.0, color="#111111", linewidth=1.2)
+        ax.text(len(groups) - 0.5 if groups else 0.5, 0.0, " " + TEXT["chart_zero"], va="center",
+                ha="left", fontsize=7, clip_on=False)
+        for index, (name, values) in enumerate(groups.items()):
+            count = len(values)
+            spread = [index + 0.6 * ((n + 0.5) / count - 0.5) for n in range(count)]
+            within = [(x, m) for x, (m, over) in zip(spread, values) if not over]
+            over = [(x, m) for x, (m, over) in zip(spread, values) if over]
+            if within:
+                ax.scatter(*zip(*within), s=12, facecolors="white", edgecolors=WITHIN_COLOUR,
+                           linewidths=0.8, marker="o", zorder=3)
+            if over:
+                ax.scatter(*zip(*over), s=26, color=OVER_COLOUR, edgecolors="#111111",
+                           linewidths=0.5, marker="^", zorder=4)
+        ax.set_xticks(range(len(groups)), list(groups))
+        ax.set_xlim(-0.6, max(len(groups), 1) - 0.4)
+        ax.set_ylabel(TEXT["chart_margin_axis"])
+        ax.grid(axis="y", color="#dddddd", linewidth=0.5)
+        ax.set_axisbelow(True)
+        if not groups:
+            ax.text(0.5, 0.5, TEXT["chart_no_results"], transform=ax.transAxes, ha="center")
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(False)
+        return figure_to_svg(fig)
+
+
+def verdict_chart(totals: dict[str, int] | object) -> str:
+    """Horizontal bars: links per verdict, each verdict with its own fill and hatching."""
+    order = ("pass", "fail", "incomplete")
+    counts = [int(totals[v]) for v in order]  # type: ignore[index]
+    with matplotlib.rc_context(_RC):
+        fig = _figure(6.6, 1.3)
+        ax = fig.add_axes((0.16, 0.3, 0.8, 0.62))
+        for row, (verdict, count) in enumerate(zip(order, counts)):
+            face, hatch = VERDICT_STYLE[verdict]
+            ax.barh(row, count, color=face, edgecolor="#111111", hatch=hatch, linewidth=0.6, height=0.62)
+            ax.text(count, row, f"  {count}", va="center", ha="left", fontsize=8)
+        ax.set_yticks(range(len(order)), [TEXT[f"verdict_{v}"] for v in order])
+        ax.invert_yaxis()
+        ax.set_xlim(0, max(max(counts), 1) * 1.15)
+        ax.set_xlabel(TEXT["chart_counts_axis"])
+        ax.xaxis.get_major_locator().set_params(integer=True)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(False)
+        return figure_to_svg(fig)
+
+
+
+def svg_data_uri(svg: str) -> str:
+    """An SVG document as a ``data:`` URI (keeps matplotlib's element ids out of the page)."""
+    return "data:image/svg+xml;base64," + base64.b64encode(svg.encode("utf-8")).decode("ascii")

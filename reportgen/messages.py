@@ -1,0 +1,323 @@
+"""Every word the report prints, in one place (templates, diagrams, charts, page stamp).
+
+Templates reach this catalogue as ``t`` (``t.cover_heading``) and format texts with
+placeholders through ``msg("key", name=value)``. Python code builds view models from
+data only; wording lives here or in the templates. Texts are plain text: they are
+escaped on output like any input text.
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping
+from types import MappingProxyType
+from typing import Final
+
+# Stamped by reportgen.pdf at the bottom right of every page after merging.
+PAGE_LABEL: Final = "Page {page} of {pages}"
+
+TEXT: Final[Mapping[str, str]] = MappingProxyType({
+    # document
+    "document_kind": "Fiber link acceptance record",
+    "generated": "Prepared {date} with reportgen {version}",
+    "header_prefix": "Acceptance record",
+    # cover
+    "cover_heading": "Fiber link acceptance record",
+    "field_project": "Project",
+    "field_site": "Site",
+    "field_customer": "Customer",
+    "field_contractor": "Installer",
+    "field_contact": "Contact",
+    "field_job": "Job number",
+    "field_dates": "Tested",
+    "field_limits": "Limit set",
+    "field_method": "Reference method",
+    "field_directions": "Directions",
+    "field_uncertainty": "Measurement uncertainty",
+    "not_given": "not given",
+    "no_results_dates": "no results recorded",
+    "dates_range": "{first} to {last}",
+    "totals_heading": "Outcome",
+    "totals_links": "links",
+    "totals_pass": "pass",
+    "totals_fail": "fail",
+    "totals_incomplete": "incomplete",
+    "overall_empty": "The project lists no links.",
+    "overall_all_pass": "Every one of the {links} links meets the limit set on every required result.",
+    "overall_not_ready": (
+        "{pass_} of {links} links meet the limit set. {fail} fail and {incomplete} lack "
+        "required results: the work is not ready for acceptance until they are resolved "
+        "(see \u201cLinks needing action\u201d)."
+    ),
+    "signoff_heading": "Acceptance",
+    "signoff_intro": (
+        "Signed for the parties below: the links listed in this record were tested as described "
+        "and the results are reproduced without alteration."
+    ),
+    "signoff_contractor": "For the installer",
+    "signoff_customer": "For the customer",
+    "signoff_name": "Name",
+    "signoff_role": "Position",
+    "signoff_signature": "Signature",
+    "signoff_date": "Date",
+    # contents
+    "contents_heading": "Contents",
+    "contents_page": "page",
+    # needs action
+    "action_heading": "Links needing action",
+    "action_none": "None: every link passes.",
+    "action_intro": (
+        "These links fail or lack required results. Failing links come first, then incomplete ones."
+    ),
+    "action_fail_item": "strand {strand}, {wavelength} nm, {direction}: loss {loss} dB over the {limit} dB limit (margin {margin} dB)",
+    "action_missing_item": "strand {strand}, {wavelength} nm, {direction}: {reason}",
+    "action_more": "\u2026 and {count} more on the link\u2019s sheet",
+    # register (summary table)
+    "register_heading": "Link register",
+    "register_intro": "Every link in the order of links.csv. Worst margin is the smallest margin of the judged results.",
+    "col_link": "Link",
+    "col_ends": "From \u2192 to",
+    "col_fiber": "Fiber",
+    "col_length": "Length",
+    "col_strands": "Strands",
+    "col_worst": "Worst margin",
+    "col_verdict": "Verdict",
+    "col_page": "Page",
+    "col_strand": "Strand",
+    "col_wavelength": "\u03bb nm",
+    "col_direction": "Dir.",
+    "col_loss": "Loss dB",
+    "col_limit": "Limit dB",
+    "col_margin": "Margin dB",
+    "col_flags": "Notes",
+    "col_technician": "Technician",
+    "col_instrument": "Instruments",
+    "col_time": "Tested",
+    "col_reason": "Why not judged",
+    "col_source": "Source",
+    "col_item": "Item",
+    "col_quantity": "Quantity",
+    "col_allowance": "Allowance",
+    "col_loss_allowed": "Allowed dB",
+    "no_margin": "\u2014",
+    # charts
+    "charts_heading": "Margins at a glance",
+    "charts_intro": (
+        "Each dot is one judged result; its height is the margin to the limit (above the zero "
+        "line: within the limit). Filled triangles mark results over the limit."
+    ),
+    "chart_margin_axis": "margin to limit [dB]",
+    "chart_margin_title": "Margins by fiber type and wavelength",
+    "chart_zero": "limit",
+    "chart_no_results": "no judged results",
+    "chart_counts_title": "Links by verdict",
+    "chart_counts_axis": "links",
+    # link sheet
+    "links_heading": "Link sheets",
+    "link_heading": "Link {link_id}",
+    "link_definition": "Definition",
+    "field_ends": "Ends",
+    "field_end_a": "End A",
+    "field_end_b": "End B",
+    "field_fiber": "Fiber type",
+    "field_plant": "Cable construction",
+    "field_length": "Documented length",
+    "field_strands": "Strands",
+    "field_connections": "Connections between the ends",
+    "field_splices": "Splices",
+    "field_components": "Components",
+    "field_applications": "Applications",
+    "field_transceiver": "Transceiver",
+    "field_notes": "Notes",
+    "none": "none",
+    "plant_inside": "inside plant",
+    "plant_outside": "outside plant (incl. indoor-outdoor)",
+    "link_verdict_label": "Link verdict",
+    "worst_margin_label": "worst margin",
+    "judged_count": "{judged} results judged",
+    "budget_heading": "Allowed loss, term by term",
+    "budget_intro": "Limit = fiber + connections + splices + components, with the end connections the {method} reference leaves in the measurement.",
+    "budget_wavelength": "{wavelength} nm",
+    "budget_total": "Limit",
+    "term_fiber": "Fiber",
+    "term_end-connections": "End connections (reference method)",
+    "term_connections": "Connections between the ends",
+    "term_splices": "Splices",
+    "term_component": "Component {item}",
+    "unit_km": "km",
+    "unit_each": "each",
+    "unit_db_per_km": "dB/km",
+    "results_heading": "Measured results",
+    "results_none": "No valid result was recorded for this link.",
+    "set_aside_heading": "Results set aside",
+    "set_aside_superseded": "superseded by a later test of the same strand, wavelength and direction",
+    "set_aside_invalid": "negative loss beyond the uncertainty: the reference was bad; repeat the test",
+    "missing_heading": "Required results not available",
+    "missing_not-tested": "not tested",
+    "missing_invalid": "the latest test was invalid (negative loss)",
+    "direction_ab": "A\u2192B",
+    "direction_ba": "B\u2192A",
+    "direction_any": "either",
+    "source_row": "{file} line {line}",
+    "diagram_heading": "Loss build-up",
+    "diagram_caption": (
+        "Steps: the loss the limit set allows, added up along the link (positions not to scale). "
+        "Right: every judged result per wavelength against its limit bar. "
+        "\u25cb within the limit, \u25b2 over the limit."
+    ),
+    # verdict words (the contract's values; shown with a mark and a style of their own)
+    "verdict_pass": "pass",
+    "verdict_fail": "fail",
+    "verdict_incomplete": "incomplete",
+    "verdict_invalid": "invalid",
+    "verdict_superseded": "superseded",
+    "mark_pass": "\u25cb",
+    "mark_fail": "\u25b2",
+    "mark_incomplete": "\u25cc",
+    "mark_invalid": "\u00d7",
+    "mark_superseded": "\u2013",
+    # flags
+    "flag_within-uncertainty": "within uncertainty of the limit",
+    "flag_negative-loss": "negative loss",
+    "flag_retest": "retest",
+    "flag_calibration-overdue": "instrument past calibration",
+    "flag_not-required": "wavelength not required",
+    # diagram labels
+    "dg_end": "end",
+    "dg_fiber": "fiber",
+    "dg_splice": "spl.",
+    "dg_connection": "conn.",
+    "dg_component": "part",
+    "dg_axis": "dB",
+    "dg_start": "A",
+    "dg_finish": "B",
+    "dg_limit": "limit {value}",
+    "dg_results": "results",
+    # appendix
+    "appendix_heading": "Appendix",
+    "instruments_heading": "Test instruments",
+    "instruments_none": "No instruments are listed in project.yaml.",
+    "col_id": "Id",
+    "col_kind": "Kind",
+    "col_model": "Model",
+    "col_serial": "Serial",
+    "col_due": "Calibration due",
+    "col_used": "Used",
+    "col_cal_state": "State at use",
+    "cal_ok": "in calibration",
+    "cal_overdue": "PAST DUE when used",
+    "cal_unknown": "no due date given",
+    "cal_unused": "not named by any result",
+    "kind_light-source": "light source",
+    "kind_power-meter": "power meter",
+    "kind_otdr": "OTDR",
+    "kind_test-cord": "test cord",
+    "kind_other": "other",
+    "technicians_heading": "Technicians",
+    "technicians_none": "No technicians are listed.",
+    "technician_results": "{count} results",
+    "method_heading": "Test method",
+    "method_intro": (
+        "Insertion loss was measured with a light source and a power meter after setting a "
+        "reference. The reference method decides which end connections the measured loss "
+        "contains; the limit counts exactly those."
+    ),
+    "method_one-cord": "one-cord reference: both end connections are inside the measured loss (limit counts 2 end connections)",
+    "method_two-cord": "two-cord reference: one end connection is inside the measured loss (limit counts 1 end connection)",
+    "method_three-cord": "three-cord reference: neither end connection is inside the measured loss (limit counts none)",
+    "method_source": "Reference methods as described in IEC 61280-4-1 (multimode) and IEC 61280-4-2 (single-mode).",
+    "method_wavelengths": "Required wavelengths: multimode {multimode} nm; single-mode {singlemode} nm.",
+    "method_directions_both": "Each strand is tested in both directions, A\u2192B and B\u2192A.",
+    "method_directions_one": "Each strand is tested in one direction.",
+    "method_uncertainty": "Results within \u00b1{value} dB of their limit are marked \u201cwithin uncertainty\u201d; they still pass or fail on the measured value.",
+    "method_judging": (
+        "Limit = \u03b1\u00b7L + (connections + E)\u00b7connection allowance + splices\u00b7splice "
+        "allowance + \u03a3 component losses; margin = limit \u2212 loss. A result passes when "
+        "loss \u2264 limit. A link fails when any judged result fails, is incomplete when a "
+        "required result is missing or invalid, and passes otherwise. When a result was "
+        "repeated, the latest test is judged and earlier ones are shown as superseded."
+    ),
+    "limits_heading": "Limit set and sources",
+    "limits_id": "Identifier",
+    "limits_origin": "Origin",
+    "limits_connection": "Mated connection allowance",
+    "limits_splice": "Splice allowance",
+    "limits_table_all": "all",
+    "limits_table_inside": "inside plant",
+    "limits_table_outside": "outside plant",
+    "col_table": "Construction",
+    "col_alpha": "Attenuation dB/km",
+    "components_heading": "Component catalogue",
+    "components_source": "project.yaml components",
+    "safety_heading": "Safety",
+    "glossary_heading": "Terms used",
+    "footer_left": "{title}",
+})
+
+GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
+    ("insertion loss", "The drop in optical power, in dB, that a link causes between a source and a meter."),
+    ("dB", "Decibel: ten times the base-10 logarithm of a power ratio. Losses in dB add along a link."),
+    ("dBm", "Optical power relative to one milliwatt: 0 dBm = 1 mW, \u221210 dBm = 0.1 mW."),
+    ("limit", "The largest insertion loss the limit set allows for this link at a wavelength."),
+    ("margin", "Limit minus measured loss. Positive: room to spare; negative: over the limit."),
+    ("reference method", "How the meter was zeroed before testing (one-, two- or three-cord); it decides which end connections the result includes."),
+    ("mated connection", "Two connectors joined in an adapter; each has an allowance in the limit set."),
+    ("splice", "A permanent joint of two fibers, fused or mechanical."),
+    ("strand", "One fiber of a link, numbered from 1."),
+    ("OTDR", "Optical time-domain reflectometer: shows loss and reflections along a fiber from one end."),
+    ("OM1\u2013OM5, OS1, OS1a, OS2", "Multimode (OM) and single-mode (OS) fiber categories of ISO/IEC 11801."),
+    ("within uncertainty", "A result closer to its limit than the stated measurement uncertainty."),
+    ("superseded", "An earlier test of the same strand, wavelength and direction, replaced by a later one."),
+)
+
+SAFETY: Final[tuple[str, ...]] = (
+    "Light at 850, 1300, 1310, 1490, 1550 and 1625 nm is invisible: seeing no light does not mean there is no power. Never look into a fiber end or a connector, directly or through an unfiltered microscope.",
+    "Inspect end faces with a filtered or video inspection scope; confirm a fiber is dark with a power meter. Cap every unused connector and adapter.",
+    "Laser sources are classified under IEC 60825-1 (classes 1, 1M, 2, 2M, 3R, 3B, 4). IEC 60825-2 assigns hazard levels to locations in a fiber network (unrestricted up to 2M, restricted up to 3R, controlled up to 3B).",
+    "Fiber offcuts and shards pierce skin and are hard to see: collect them in a marked, closed container; no food or drink at the work area.",
+    "These notes do not replace local regulations, the site\u2019s laser safety rules, the applicable standards or licensed practice; follow those first.",
+)
+
+
+def msg(key: str, /, **values: object) -> str:
+    """The catalogue text ``key`` with its ``{placeholders}`` filled in."""
+    return TEXT[key].format(**values)
+
+
+# Number formats: every number the report prints goes through one of these (the
+# templates use them as filters |db, |dbm, |length, |km, |date), so rounding lives here.
+DB_DECIMALS: Final = 2
+
+
+def format_db(value: float | None) -> str:
+    """A loss, limit or margin in dB with two decimals; ASCII minus; no "-0.00"."""
+    if value is None or value != value:
+        return TEXT["no_margin"]
+    text = f"{value:.{DB_DECIMALS}f}"
+    return text[1:] if text.startswith("-") and float(text) == 0 else text
+
+
+def format_dbm(value: float | None) -> str:
+    """An optical power in dBm with two decimals."""
+    return format_db(value)
+
+
+def format_length(length_m: float, unit: str = "m") -> str:
+    """A length given in metres, shown in ``unit`` ("m" or "ft"), whole or one decimal."""
+    from .units import m_to_ft
+
+    value = m_to_ft(length_m) if unit == "ft" else length_m
+    text = f"{value:.0f}" if abs(value - round(value)) < 0.05 else f"{value:.1f}"
+    return f"{text}\u00a0{unit}"
+
+
+def format_km(length_km: float) -> str:
+    """A length in km with three decimals (metre resolution)."""
+    return f"{length_km:.3f}"
+
+
+def format_date(value: object, with_time: bool = False) -> str:
+    """A date (or date-time) as ISO 8601: 2026-04-14 or 2026-04-14 08:40."""
+    if value is None:
+        return TEXT["not_given"]
+    if with_time and hasattr(value, "hour"):
+        return f"{value:%Y-%m-%d %H:%M}"
+    return f"{value:%Y-%m-%d}"

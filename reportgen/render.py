@@ -1,0 +1,167 @@
+"""Rendering: view model + Jinja templates → the report's HTML documents.
+
+``build_report`` returns a :class:`ReportDocument`: the complete ``report.html``
+and the parts reportgen.pdf renders separately (front matter, runs of link sheets,
+appendix), all sharing one stylesheet and one set of ``@page`` rules.
+
+Contract with reportgen.pdf:
+
+- every part is a complete HTML document with the same CSS;
+- each link sheet's first element has ``id="link-<slug>"`` (:func:`viewmodel.link_anchors`),
+  front-matter and appendix sections have ids too;
+- elements with ``data-bookmark`` / ``data-bookmark-level`` and an ``id`` are outline
+  entries; headings carry ``bookmark-level: none``;
+- the bottom-right page margin box is left empty for the page stamp
+  (:data:`reportgen.messages.PAGE_LABEL`);
+- ``front(page_of, total_pages)`` prints the page numbers pdf.py found.
+"""
+from __future__ import annotations
+
+import functools
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from datetime import datetime
+from pathlib import Path
+from typing import Any, Final
+
+import jinja2
+from markupsafe import Markup
+
+from . import charts, diagrams, messages
+from .judge import Judgement
+from .model import Project
+from .viewmodel import ReportView, build_view, chunk_links
+
+TEMPLATE_MAIN: Final = "report.html.j2"
+STYLESHEETS: Final = ("report.css", "print.css")
+
+
+def templates_dir() -> Path:
+    """Our templates: inside the installed package, else the source checkout's top level."""
+    packaged = Path(__file__).parent / "templates"
+    return packaged if packaged.is_dir() else Path(__file__).parent.parent / "templates"
+
+
+@dataclass(frozen=True)
+class ReportDocument:
+    """The rendered report: one HTML file, and the parts of the PDF."""
+
+    html: str  # complete self-contained report.html
+    bodies: tuple[str, ...]  # runs of link sheets, then the appendix as the last part
+    _front: Callable[[Mapping[str, int] | None, int | None], str] = field(repr=False, compare=False)
+
+    def front(self, page_of: Mapping[str, int], total_pages: int) -> str:
+        """The front matter as a complete HTML document, with absolute page numbers."""
+        return self._front(page_of, total_pages)
+
+
+def css_string(text: object) -> Markup:
+    """``text`` as a quoted CSS string, every character outside [A-Za-z0-9 ] hex-escaped.
+
+    Safe inside a ``<style>`` element: no quote, backslash, ``<`` or newline survives.
+    """
+    out = []
+    for char in str(text):
+        out.append(char if char.isascii() and (char.isalnum() or char == " ") else f"\\{ord(char):06x}")
+    return Markup('"' + "".join(out) + '"')
+
+
+def make_environment(project_templates: Path | None, length_unit: str = "m") -> jinja2.Environment:
+    """A strict Jinja environment: the project's templates first, ours as fallback per file."""
+    loaders: list[jinja2.BaseLoader] = []
+    if project_templates is not None:
+        loaders.append(jinja2.FileSystemLoader(str(project_templates)))
+    loaders.append(jinja2.FileSystemLoader(str(templates_dir())))
+    env = jinja2.Environment(
+        loader=jinja2.ChoiceLoader(loaders),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,  # a misspelt name fails the build, never a blank cell
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters.update(
+        db=messages.format_db,
+        dbm=messages.format_dbm,
+        km=messages.format_km,
+        length=functools.partial(messages.format_length, unit=length_unit),
+        date=messages.format_date,
+        datetime=functools.partial(messages.format_date, with_time=True),
+        css_string=css_string,
+    )
+    env.globals.update(t=messages.TEXT, msg=messages.msg, glossary=messages.GLOSSARY,
+                       safety=messages.SAFETY)
+    return env
+
+
+def stylesheet(env: jinja2.Environment) -> Markup:
+    """Our CSS files (or the project's replacements) joined, for inlining."""
+    texts = []
+    for name in STYLESHEETS:
+        source, _, _ = env.loader.get_source(env, name)  # type: ignore[union-attr]
+        texts.append(source.replace("</", "<\\/"))
+    return Markup("\n".join(texts))
+
+
+def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
+    """(anchor, catalogue key, level) of the contents list, in document order."""
+    entries = [("needs-action", "action_heading", 1), ("register", "register_heading", 1),
+               ("charts", "charts_heading", 1)]
+    if view.links:
+        entries.append(("link-sheets", "links_heading", 1))
+    entries += [("appendix", "appendix_heading", 1), ("appx-instruments", "instruments_heading", 2),
+                ("appx-technicians", "technicians_heading", 2), ("appx-method", "method_heading", 2),
+                ("appx-limits", "limits_heading", 2), ("appx-safety", "safety_heading", 2),
+                ("appx-glossary", "glossary_heading", 2)]
+    return entries
+
+
+class _Renderer:
+    """Renders the parts of one report from one view model."""
+
+    def __init__(self, env: jinja2.Environment, view: ReportView, extras: Mapping[str, Any]) -> None:
+        self.env = env
+        self.view = view
+        self.template = env.get_template(TEMPLATE_MAIN)
+        self.common = {
+            "report": view,
+            "css": stylesheet(env),
+            "diagrams": {link.anchor: Markup(diagrams.loss_diagram(link)) for link in view.links},
+            "charts": {"margins": charts.svg_data_uri(charts.margin_chart(view.links)),
+                       "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
+            "toc": toc_entries(view),
+            "extras": extras,
+        }
+
+    def render(self, part: str, links: tuple = (), first_part: bool = False,
+               page_of: Mapping[str, int] | None = None, total_pages: int | None = None) -> str:
+        return self.template.render(**self.common, part=part, links=links,
+                                    first_part=first_part, page_of=page_of or {},
+                                    total_pages=total_pages)
+
+    def front(self, page_of: Mapping[str, int] | None, total_pages: int | None) -> str:
+        return self.render("front", page_of=page_of or {}, total_pages=total_pages)
+
+
+def build_report(
+    project: Project,
+    judgement: Judgement,
+    *,
+    now: datetime,
+    version: str,
+    extras: Mapping[str, Any] | None = None,
+) -> ReportDocument:
+    """Render the report of a judged project.
+
+    ``now`` and ``version`` are printed as given (determinism: same input, same HTML).
+    ``extras`` is reserved for later sections; unknown keys are ignored.
+    """
+    view = build_view(project, judgement, now=now, version=version)
+    env = make_environment(project.report.templates, view.length_unit)
+    renderer = _Renderer(env, view, dict(extras or {}))
+    html = renderer.render("all", links=view.links, first_part=True)
+    chunks = chunk_links(view.links)
+    bodies = tuple(renderer.render("body", links=chunk, first_part=index == 0)
+                   for index, chunk in enumerate(chunks))
+    bodies += (renderer.render("appendix"),)
+    return ReportDocument(html=html, bodies=bodies, _front=renderer.front)

@@ -1,0 +1,368 @@
+"""The report's view model: engine output reshaped into plain frozen dataclasses.
+
+Templates see only these objects (no pandas). Nothing here formats numbers or
+chooses words: numbers stay floats in their units (``_db``, ``_m``, ``_nm``) and
+are formatted by the template filters of :mod:`reportgen.render`; vocabulary
+values stay the contract's spellings (``"pass"``, ``"ab"``) and are worded by the
+catalogue :mod:`reportgen.messages`.
+"""
+from __future__ import annotations
+
+import base64
+import math
+import re
+from collections import Counter
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
+from datetime import date, datetime
+from pathlib import Path
+from typing import Any, Final
+
+import pandas as pd
+
+from .budget import Budget, link_budget
+from .judge import Judgement, LinkOutcome, calibration_state
+from .limits import describe_rows
+from .model import Instrument, Link, LinkVerdict, Project, ResultVerdict
+
+LINKS_PER_PART: Final = 40  # link sheets per PDF body part (see ReportDocument.bodies)
+ACTION_ITEMS_SHOWN: Final = 6  # reasons listed per link in "needs action" before "and N more"
+
+_LOGO_TYPES: Final[Mapping[str, str]] = {
+    ".svg": "image/svg+xml", ".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg",
+    ".gif": "image/gif", ".webp": "image/webp",
+}
+
+
+@dataclass(frozen=True)
+class TermView:
+    """One budget line: quantity × allowance = loss, plus the running total after it."""
+
+    kind: str  # budget.TermKind value
+    quantity: float  # km for fiber, a count otherwise
+    allowance_db: float  # dB/km for fiber, dB each otherwise
+    loss_db: float
+    source: str
+    item_id: str | None = None
+
+
+@dataclass(frozen=True)
+class BudgetView:
+    wavelength_nm: int
+    terms: tuple[TermView, ...]
+    total_db: float
+    required: bool
+
+
+@dataclass(frozen=True)
+class ResultView:
+    strand: int
+    wavelength_nm: int
+    direction: str  # "ab" or "ba"
+    loss_db: float
+    limit_db: float | None
+    margin_db: float | None
+    verdict: str  # ResultVerdict value
+    flags: tuple[str, ...]  # ResultFlag values
+    technician: str
+    instruments: tuple[str, ...]
+    tested_at: datetime
+    source_file: str
+    source_line: int
+    note: str
+
+
+@dataclass(frozen=True)
+class MissingView:
+    strand: int
+    wavelength_nm: int
+    direction: str  # "ab", "ba" or "any"
+    reason: str  # "not-tested" or "invalid"
+
+
+@dataclass(frozen=True)
+class ComponentView:
+    id: str
+    loss_db: float
+    description: str
+
+
+@dataclass(frozen=True)
+class LinkView:
+    link_id: str
+    anchor: str  # element id of the link sheet's first element: "link-<slug>"
+    end_a: str
+    end_b: str
+    fiber_type: str
+    plant: str
+    length_m: float
+    strands: int
+    connections: int
+    splices: int
+    components: tuple[ComponentView, ...]
+    applications: tuple[str, ...]
+    transceiver: str
+    notes: str
+    verdict: str  # LinkVerdict value
+    worst_margin_db: float | None
+    judged: int
+    budgets: tuple[BudgetView, ...]
+    results: tuple[ResultView, ...]  # judged results
+    set_aside: tuple[ResultView, ...]  # superseded and invalid rows
+    missing: tuple[MissingView, ...]
+    failing: tuple[ResultView, ...]  # judged results that fail
+
+    @property
+    def needs_action(self) -> bool:
+        return self.verdict != LinkVerdict.PASS.value
+
+
+@dataclass(frozen=True)
+class InstrumentView:
+    id: str
+    kind: str
+    model: str
+    serial: str
+    calibration_due: date | None
+    first_use: date | None
+    last_use: date | None
+    state: str  # "ok", "overdue", "unknown", "unused"
+    results: int
+
+
+@dataclass(frozen=True)
+class TechnicianView:
+    name: str
+    results: int
+
+
+@dataclass(frozen=True)
+class LimitRowView:
+    table: str
+    fiber_type: str
+    wavelength_nm: int
+    attenuation_db_per_km: float
+    source: str
+
+
+@dataclass(frozen=True)
+class ReportView:
+    """Everything the templates may use, and nothing else."""
+
+    title: str
+    site: str
+    customer: str
+    job_number: str
+    contractor_name: str
+    contractor_address: str
+    contractor_phone: str
+    contractor_email: str
+    logo_uri: str  # data: URI, or "" without a logo
+    limits_id: str
+    limits_title: str
+    limits_source: str
+    limits_origin: str
+    limits_notes: tuple[str, ...]
+    connection_db: float
+    connection_source: str
+    splice_db: float
+    splice_source: str
+    limit_rows: tuple[LimitRowView, ...]
+    reference_method: str
+    directions: str
+    uncertainty_db: float
+    length_unit: str
+    wavelengths_nm: Mapping[str, tuple[int, ...]]
+    first_test: datetime | None
+    last_test: datetime | None
+    totals: Mapping[str, int]
+    links: tuple[LinkView, ...]
+    needs_action: tuple[LinkView, ...]  # failing links first, then incomplete ones
+    instruments: tuple[InstrumentView, ...]
+    technicians: tuple[TechnicianView, ...]
+    components: tuple[ComponentView, ...]
+    paper: str
+    generated_at: datetime
+    version: str
+
+
+def slugify(text: str) -> str:
+    """A lower-case ASCII slug of ``text`` for element ids ("x" when nothing is left)."""
+    slug = re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")
+    return slug or "x"
+
+
+def link_anchors(link_ids: Iterable[str]) -> dict[str, str]:
+    """Unique, safe element ids ``link-<slug>`` per link id (``-2``, ``-3`` on clashes)."""
+    anchors: dict[str, str] = {}
+    used: set[str] = set()
+    for link_id in link_ids:
+        base = f"link-{slugify(link_id)}"
+        anchor, n = base, 1
+        while anchor in used:
+            n += 1
+            anchor = f"{base}-{n}"
+        used.add(anchor)
+        anchors[link_id] = anchor
+    return anchors
+
+
+def logo_data_uri(path: Path | None) -> str:
+    """The contractor's logo as a ``data:`` URI (empty when none or unreadable type)."""
+    if path is None:
+        return ""
+    mime = _LOGO_TYPES.get(path.suffix.lower())
+    if mime is None or not path.is_file():
+        return ""
+    return f"data:{mime};base64,{base64.b64encode(path.read_bytes()).decode('ascii')}"
+
+
+def _float_or_none(value: Any) -> float | None:
+    if value is None:
+        return None
+    value = float(value)
+    return None if math.isnan(value) else value
+
+
+def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
+    """Result rows grouped by link id, in input order."""
+    by_link: dict[str, list[ResultView]] = {}
+    if frame.empty:
+        return by_link
+    columns = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "limit_db",
+               "margin_db", "verdict", "flags", "technician", "instrument", "tested_at",
+               "source_file", "source_line", "note"]
+    for row in frame[columns].itertuples(index=False):
+        flags = tuple(f for f in str(row.flags or "").split(";") if f)
+        instruments = tuple(i.strip() for i in str(row.instrument or "").split(";") if i.strip())
+        by_link.setdefault(row.link_id, []).append(ResultView(
+            strand=int(row.strand), wavelength_nm=int(row.wavelength_nm),
+            direction=str(row.direction), loss_db=float(row.loss_db),
+            limit_db=_float_or_none(row.limit_db), margin_db=_float_or_none(row.margin_db),
+            verdict=str(row.verdict), flags=flags, technician=_text(row.technician),
+            instruments=instruments, tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
+            source_file=str(row.source_file), source_line=int(row.source_line),
+            note=_text(row.note),
+        ))
+    return by_link
+
+
+def _text(value: Any) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    return str(value)
+
+
+def _budget_view(budget: Budget, required: bool) -> BudgetView:
+    terms = tuple(TermView(t.kind.value, t.quantity, t.allowance_db, t.loss_db, t.source,
+                           t.item_id) for t in budget.terms)
+    return BudgetView(budget.wavelength_nm, terms, budget.total_db, required)
+
+
+def _link_budgets(project: Project, link: Link, measured_nm: Iterable[int]) -> tuple[BudgetView, ...]:
+    required = set(project.testing.wavelengths_nm.get(link.fiber_type.category, ()))
+    defined = set(project.limits.wavelengths_nm(link.fiber_type, link.plant))
+    wanted = sorted((required | set(measured_nm)) & defined)
+    return tuple(_budget_view(link_budget(link, wl, project.limits,
+                                          project.testing.reference_method, project.components),
+                              wl in required) for wl in wanted)
+
+
+def _sort_key(result: ResultView) -> tuple:
+    return (result.strand, result.wavelength_nm, result.direction, result.tested_at)
+
+
+def build_link_view(project: Project, link: Link, outcome: LinkOutcome, anchor: str,
+                    rows: list[ResultView]) -> LinkView:
+    """The view of one link: definition, budgets, results, what is missing."""
+    judged_verdicts = {ResultVerdict.PASS.value, ResultVerdict.FAIL.value}
+    judged = tuple(sorted((r for r in rows if r.verdict in judged_verdicts), key=_sort_key))
+    set_aside = tuple(sorted((r for r in rows if r.verdict not in judged_verdicts), key=_sort_key))
+    components = tuple(
+        ComponentView(c, project.components[c].loss_db, project.components[c].description or "")
+        for c in link.components if c in project.components)
+    return LinkView(
+        link_id=link.link_id, anchor=anchor, end_a=link.end_a, end_b=link.end_b,
+        fiber_type=link.fiber_type.value, plant=link.plant.value, length_m=link.length_m,
+        strands=link.strands, connections=link.connections, splices=link.splices,
+        components=components, applications=link.applications,
+        transceiver=link.transceiver or "", notes=link.notes or "",
+        verdict=outcome.verdict.value, worst_margin_db=outcome.worst_margin_db,
+        judged=outcome.judged,
+        budgets=_link_budgets(project, link, {r.wavelength_nm for r in judged}),
+        results=judged, set_aside=set_aside,
+        missing=tuple(MissingView(m.strand, m.wavelength_nm, m.direction, m.reason)
+                      for m in outcome.missing),
+        failing=tuple(r for r in judged if r.verdict == ResultVerdict.FAIL.value),
+    )
+
+
+def _instrument_views(instruments: Iterable[Instrument], frame: pd.DataFrame) -> tuple[InstrumentView, ...]:
+    uses: dict[str, list[datetime]] = {}
+    if not frame.empty:
+        for ids, tested_at in zip(frame["instrument"].fillna("").astype(str), frame["tested_at"]):
+            for inst in (i.strip() for i in ids.split(";")):
+                if inst:
+                    uses.setdefault(inst, []).append(pd.Timestamp(tested_at).to_pydatetime())
+    views = []
+    for inst in instruments:
+        used = uses.get(inst.id, [])
+        first = min(used).date() if used else None
+        last = max(used).date() if used else None
+        state = calibration_state(inst, first, last) if used else "unused"
+        views.append(InstrumentView(inst.id, inst.kind.value, inst.model or "", inst.serial or "",
+                                    inst.calibration_due, first, last, state, len(used)))
+    return tuple(views)
+
+
+def _technician_views(listed: Iterable[str], frame: pd.DataFrame) -> tuple[TechnicianView, ...]:
+    counts: Counter[str] = Counter()
+    if not frame.empty:
+        counts.update(t for t in frame["technician"].fillna("").astype(str) if t.strip())
+    names = list(dict.fromkeys([*listed, *sorted(counts)]))
+    return tuple(TechnicianView(name, counts.get(name, 0)) for name in names)
+
+
+def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str) -> ReportView:
+    """The whole report's view model from a validated project and its judgement."""
+    info, testing, limits = project.info, project.testing, project.limits
+    frame = judgement.results
+    rows_by_link = _result_views(frame)
+    anchors = link_anchors(link.link_id for link in project.links)
+    outcomes = {outcome.link_id: outcome for outcome in judgement.links}
+    links = tuple(build_link_view(project, link, outcomes[link.link_id], anchors[link.link_id],
+                                  rows_by_link.get(link.link_id, []))
+                  for link in project.links)
+    needs_action = (tuple(v for v in links if v.verdict == LinkVerdict.FAIL.value)
+                    + tuple(v for v in links if v.verdict == LinkVerdict.INCOMPLETE.value))
+    tested = frame["tested_at"].dropna() if not frame.empty else pd.Series([], dtype=object)
+    components = tuple(ComponentView(c.id, c.loss_db, c.description or "")
+                       for c in project.components.values())
+    return ReportView(
+        title=info.title, site=info.site or "", customer=info.customer or "",
+        job_number=info.job_number or "", contractor_name=info.contractor.name,
+        contractor_address=info.contractor.address or "",
+        contractor_phone=info.contractor.phone or "",
+        contractor_email=info.contractor.email or "",
+        logo_uri=logo_data_uri(info.contractor.logo),
+        limits_id=limits.id, limits_title=limits.title, limits_source=limits.source,
+        limits_origin=limits.origin, limits_notes=limits.notes,
+        connection_db=limits.connection_db, connection_source=limits.source_for("connection_db"),
+        splice_db=limits.splice_db, splice_source=limits.source_for("splice_db"),
+        limit_rows=tuple(LimitRowView(**row) for row in describe_rows(limits)),
+        reference_method=testing.reference_method.value, directions=testing.directions.value,
+        uncertainty_db=testing.uncertainty_db, length_unit=testing.units.value,
+        wavelengths_nm={k.value: tuple(v) for k, v in testing.wavelengths_nm.items()},
+        first_test=pd.Timestamp(tested.min()).to_pydatetime() if len(tested) else None,
+        last_test=pd.Timestamp(tested.max()).to_pydatetime() if len(tested) else None,
+        totals=judgement.totals, links=links, needs_action=needs_action,
+        instruments=_instrument_views(project.instruments, frame),
+        technicians=_technician_views(project.technicians, frame),
+        components=components, paper=project.report.paper.value,
+        generated_at=now, version=version,
+    )
+
+
+def chunk_links(links: tuple[LinkView, ...], size: int = LINKS_PER_PART) -> list[tuple[LinkView, ...]]:
+    """Link sheets split into runs of ``size`` for the PDF body parts."""
+    return [links[i:i + size] for i in range(0, len(links), size)]
