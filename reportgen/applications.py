@@ -1,0 +1,480 @@
+"""Applications a link supports: Ethernet PMDs, Fibre Channel rates, PON loss classes.
+
+The table ships as data (``reportgen/data/applications.yaml``), every value with its
+source and status. A link is checked against an application on its fiber type [1]_:
+
+- the fiber type must have a row in the entry (else *not specified*);
+- the documented length (``Link.length_m``) must not exceed the row's maximum;
+- at every test wavelength the entry needs, the worst judged loss over strands and
+  directions must not exceed the maximum channel loss;
+- where the row has a minimum loss (PON classes), the least judged loss over strands
+  and directions must not fall below it;
+- a needed wavelength without any judged result leaves the application *untested*.
+
+Verdicts: ``not-supported`` when any check fails (every reason is listed, untested
+wavelengths included), else ``untested`` when a needed wavelength has no judged result,
+else ``supported``.
+
+References
+----------
+.. [1] IEEE 802.3 (Ethernet PMD channel insertion loss and reach), INCITS FC-PI
+   (Fibre Channel), ITU-T G.984.2 / G.987.2 / G.9807.1 (PON optical path loss
+   classes); values and their status in the data file.
+"""
+from __future__ import annotations
+
+import difflib
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from enum import StrEnum
+from functools import lru_cache
+from importlib import resources
+from typing import Any, Final
+
+import yaml
+
+from .errors import InputProblem, ReportgenError
+from .model import FiberType, Link, Project
+from .power import (
+    TOLERANCE_DB,
+    LossRange,
+    PowerBudget,
+    round_for_json,
+    assess_power,
+    budget_limits_db,
+    judged_loss_ranges,
+)
+
+TABLE_FILE: Final = "applications.yaml"
+EXAMPLE_ID: Final = "10GBASE-SR"
+
+
+class ApplicationVerdict(StrEnum):
+    SUPPORTED = "supported"
+    NOT_SUPPORTED = "not-supported"
+    UNTESTED = "untested"
+
+
+class ReasonKind(StrEnum):
+    FIBER_TYPE = "fiber-type-not-specified"
+    TOO_LONG = "too-long"
+    TOO_MUCH_LOSS = "too-much-loss"
+    TOO_LITTLE_LOSS = "too-little-loss"
+    UNTESTED = "untested"
+
+
+# Reason texts, one place to translate. Fields: application, fiber_type, wavelength_nm,
+# value, limit (numbers pre-formatted).
+REASON_TEXTS: dict[ReasonKind, str] = {
+    ReasonKind.FIBER_TYPE: "fiber type {fiber_type} not specified for {application}",
+    ReasonKind.TOO_LONG: "too long: {value} m documented, {limit} m allowed on {fiber_type}",
+    ReasonKind.TOO_MUCH_LOSS: "too much loss at {wavelength_nm} nm: {value} dB measured, "
+                              "{limit} dB allowed",
+    ReasonKind.TOO_LITTLE_LOSS: "too little loss at {wavelength_nm} nm: {value} dB measured, "
+                                "class minimum {limit} dB",
+    ReasonKind.UNTESTED: "untested at {wavelength_nm} nm: no judged result",
+}
+
+
+@dataclass(frozen=True)
+class FiberLimits:
+    """One row of an application entry: the limits on some fiber types."""
+
+    fiber_types: tuple[FiberType, ...]
+    max_length_m: float
+    max_loss_db: float
+    min_loss_db: float | None
+    status: str  # "verified, secondary" / "derived" / "from memory", per value where mixed
+
+
+@dataclass(frozen=True)
+class Application:
+    """One application: where it runs and what it needs from a link."""
+
+    id: str
+    family: str
+    source: str
+    operating_nm: tuple[int, ...]
+    test_wavelengths_nm: tuple[int, ...]
+    strands: int
+    fibers: tuple[FiberLimits, ...]
+
+    def limits_for(self, fiber_type: FiberType) -> FiberLimits | None:
+        for row in self.fibers:
+            if fiber_type in row.fiber_types:
+                return row
+        return None
+
+
+@dataclass(frozen=True)
+class ApplicationTable:
+    title: str
+    sources: Mapping[str, str]
+    entries: tuple[Application, ...]
+
+    @property
+    def ids(self) -> tuple[str, ...]:
+        return tuple(entry.id for entry in self.entries)
+
+    def get(self, application_id: str) -> Application:
+        for entry in self.entries:
+            if entry.id == application_id:
+                return entry
+        raise KeyError(application_id)
+
+    def __contains__(self, application_id: object) -> bool:
+        return application_id in self.ids
+
+
+# ------------------------------------------------------------------ the table
+
+
+@lru_cache(maxsize=1)
+def load_applications() -> ApplicationTable:
+    """The built-in application table (read once)."""
+    text = (resources.files("reportgen") / "data" / TABLE_FILE).read_text(encoding="utf-8")
+    return parse_applications(yaml.safe_load(text), f"built-in {TABLE_FILE}")
+
+
+def parse_applications(data: Any, shown_as: str) -> ApplicationTable:
+    """Check the table's YAML data; a broken table is an internal error, named precisely."""
+
+    def fail(where: str, expected: str, found: Any) -> ReportgenError:
+        return ReportgenError(f"{shown_as}, {where}: expected {expected} (got {found!r})")
+
+    if not isinstance(data, Mapping) or not isinstance(data.get("applications"), list):
+        raise fail("applications", "a list of entries", type(data).__name__)
+    entries: list[Application] = []
+    for index, raw in enumerate(data["applications"]):
+        where = f"applications[{index}]"
+        if not isinstance(raw, Mapping):
+            raise fail(where, "a mapping", raw)
+        for key in ("id", "family", "source"):
+            if not isinstance(raw.get(key), str) or not raw[key].strip():
+                raise fail(f"{where}.{key}", "a non-empty text", raw.get(key))
+        where = f"application {raw['id']}"
+        if raw["id"] in {entry.id for entry in entries}:
+            raise fail(f"{where}.id", "an id not used before", raw["id"])
+        entries.append(Application(
+            id=raw["id"], family=raw["family"], source=raw["source"],
+            operating_nm=_wavelengths(raw.get("operating_nm"), f"{where}.operating_nm", fail),
+            test_wavelengths_nm=_wavelengths(raw.get("test_wavelengths_nm"),
+                                             f"{where}.test_wavelengths_nm", fail),
+            strands=int(_number(raw.get("strands"), f"{where}.strands", fail)),
+            fibers=_fiber_rows(raw.get("fibers"), f"{where}.fibers", fail),
+        ))
+    return ApplicationTable(str(data.get("title", "")), dict(data.get("sources") or {}),
+                            tuple(entries))
+
+
+def _number(value: Any, where: str, fail) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or value < 0:
+        raise fail(where, "a number ≥ 0", value)
+    return float(value)
+
+
+def _wavelengths(value: Any, where: str, fail) -> tuple[int, ...]:
+    if (not isinstance(value, list) or not value
+            or not all(isinstance(v, int) and not isinstance(v, bool) and v > 0 for v in value)):
+        raise fail(where, "a non-empty list of wavelengths in nm", value)
+    return tuple(value)
+
+
+def _fiber_rows(value: Any, where: str, fail) -> tuple[FiberLimits, ...]:
+    if not isinstance(value, list) or not value:
+        raise fail(where, "a non-empty list of rows", value)
+    rows: list[FiberLimits] = []
+    covered: set[FiberType] = set()
+    for index, raw in enumerate(value):
+        at = f"{where}[{index}]"
+        names = raw.get("types") if isinstance(raw, Mapping) else None
+        if not isinstance(names, list) or not names or not all(
+                name in {f.value for f in FiberType} for name in names):
+            raise fail(f"{at}.types", "a list of fiber types", names)
+        types = tuple(FiberType(name) for name in names)
+        if covered & set(types):
+            raise fail(f"{at}.types", "fiber types not listed in an earlier row", names)
+        covered |= set(types)
+        status = raw.get("status")
+        if not isinstance(status, str) or not any(
+                word in status for word in ("verified", "derived", "from memory")):
+            raise fail(f"{at}.status", "'verified, secondary', 'derived' or 'from memory'", status)
+        min_loss = raw.get("min_loss_db")
+        rows.append(FiberLimits(
+            fiber_types=types,
+            max_length_m=_number(raw.get("max_length_m"), f"{at}.max_length_m", fail),
+            max_loss_db=_number(raw.get("max_loss_db"), f"{at}.max_loss_db", fail),
+            min_loss_db=None if min_loss is None else _number(min_loss, f"{at}.min_loss_db", fail),
+            status=status,
+        ))
+    return tuple(rows)
+
+
+DESCRIBE_COLUMNS: Final[tuple[str, ...]] = (
+    "id", "family", "fiber_types", "operating_nm", "test_wavelengths_nm", "strands",
+    "max_length_m", "min_loss_db", "max_loss_db", "source", "status",
+)
+
+
+def describe_rows(table: ApplicationTable | None = None) -> list[dict[str, Any]]:
+    """The table as flat rows for printing: one per application and fiber row.
+
+    Keys are :data:`DESCRIBE_COLUMNS`, in that order; lists are joined with ", ";
+    ``min_loss_db`` is None where the entry has no minimum.
+    """
+    table = table or load_applications()
+    return [
+        {
+            "id": entry.id,
+            "family": entry.family,
+            "fiber_types": ", ".join(fiber.value for fiber in row.fiber_types),
+            "operating_nm": ", ".join(str(wl) for wl in entry.operating_nm),
+            "test_wavelengths_nm": ", ".join(str(wl) for wl in entry.test_wavelengths_nm),
+            "strands": entry.strands,
+            "max_length_m": row.max_length_m,
+            "min_loss_db": row.min_loss_db,
+            "max_loss_db": row.max_loss_db,
+            "source": entry.source,
+            "status": row.status,
+        }
+        for entry in table.entries
+        for row in entry.fibers
+    ]
+
+
+def validate_application_ids(
+    links: Iterable[Link], table: ApplicationTable | None = None
+) -> list[InputProblem]:
+    """One problem per application id in links.csv that the table does not know.
+
+    The example in the message is the closest known id (difflib, case-insensitive),
+    or 10GBASE-SR when nothing is close.
+    """
+    table = table or load_applications()
+    known = {application_id.upper(): application_id for application_id in table.ids}
+    problems = []
+    for link in links:
+        for application_id in link.applications:
+            if application_id in table:
+                continue
+            close = difflib.get_close_matches(application_id.upper(), list(known), n=1)
+            example = known[close[0]] if close else EXAMPLE_ID
+            problems.append(InputProblem(
+                "links.csv", link.line or None, "applications",
+                f"an application id such as {example} (see 'reportgen applications')",
+                application_id))
+    return problems
+
+
+# --------------------------------------------------------------- assessment
+
+
+@dataclass(frozen=True)
+class Reason:
+    """Why an application is not supported (or untested) on a link."""
+
+    kind: ReasonKind
+    application: str
+    fiber_type: str
+    wavelength_nm: int | None = None
+    value: float | None = None  # measured loss [dB] or documented length [m]
+    limit: float | None = None  # the limit it was compared with, same unit
+
+    def text(self, texts: Mapping[ReasonKind, str] = REASON_TEXTS) -> str:
+        number = "{:.0f}" if self.kind is ReasonKind.TOO_LONG else "{:.2f}"
+        return texts[self.kind].format(
+            application=self.application, fiber_type=self.fiber_type,
+            wavelength_nm=self.wavelength_nm,
+            value=None if self.value is None else number.format(self.value),
+            limit=None if self.limit is None else number.format(self.limit))
+
+    def __str__(self) -> str:
+        return self.text()
+
+
+@dataclass(frozen=True)
+class ApplicationAssessment:
+    """One application on one link."""
+
+    id: str
+    verdict: ApplicationVerdict
+    max_loss_db: float | None  # None when the fiber type is not specified
+    worst_loss_db: float | None  # highest judged loss over the needed wavelengths
+    max_length_m: float | None
+    reasons: tuple[Reason, ...] = ()
+    min_loss_db: float | None = None
+    least_loss_db: float | None = None  # lowest judged loss over the needed wavelengths
+    losses_db: Mapping[int, LossRange] = field(default_factory=dict)  # per needed wavelength
+
+    def to_json(self) -> dict[str, Any]:
+        """One element of a link's ``applications`` list in summary.json."""
+        return {
+            "id": self.id,
+            "verdict": self.verdict.value,
+            "max_loss_db": round_for_json(self.max_loss_db),
+            "worst_loss_db": round_for_json(self.worst_loss_db),
+            "max_length_m": round_for_json(self.max_length_m),
+            "reasons": [str(reason) for reason in self.reasons],
+        }
+
+
+@dataclass(frozen=True)
+class LinkApplications:
+    """The applications listed for one link, and every one it would support."""
+
+    link_id: str
+    assessments: tuple[ApplicationAssessment, ...]  # listed in links.csv, in that order
+    capable: tuple[str, ...]  # ids of every table entry supported as measured, table order
+    every: tuple[ApplicationAssessment, ...] = ()  # every table entry, table order
+
+    def to_json(self) -> dict[str, Any]:
+        return {"applications": [a.to_json() for a in self.assessments],
+                "capable": list(self.capable)}
+
+
+def assess_application(
+    link: Link, application: Application, measured: Mapping[int, LossRange]
+) -> ApplicationAssessment:
+    """Check one application on one link against its judged losses.
+
+    Parameters
+    ----------
+    link : Link
+        Fiber type and documented length ``length_m``. [m]
+    application : Application
+        The table entry: rows per fiber type, needed test wavelengths.
+    measured : mapping
+        ``{wavelength_nm: LossRange}`` of the link's judged results.
+
+    Returns
+    -------
+    ApplicationAssessment
+        Verdict, limits, worst loss and every reason.
+
+    References
+    ----------
+    .. [1] IEEE 802.3, INCITS FC-PI, ITU-T G.984.2 / G.987.2 / G.9807.1: maximum channel
+       insertion loss and reach; PON classes also a minimum loss.
+    """
+    fiber = link.fiber_type.value
+    row = application.limits_for(link.fiber_type)
+    if row is None:
+        return ApplicationAssessment(application.id, ApplicationVerdict.NOT_SUPPORTED, None, None,
+                                     None, (Reason(ReasonKind.FIBER_TYPE, application.id, fiber),))
+    reasons: list[Reason] = []
+    if link.length_m > row.max_length_m + TOLERANCE_DB:
+        reasons.append(Reason(ReasonKind.TOO_LONG, application.id, fiber, None,
+                              link.length_m, row.max_length_m))
+    losses = {wl: measured[wl] for wl in application.test_wavelengths_nm if wl in measured}
+    untested = [wl for wl in application.test_wavelengths_nm if wl not in measured]
+    for wl, loss in losses.items():
+        if loss.worst_loss_db > row.max_loss_db + TOLERANCE_DB:
+            reasons.append(Reason(ReasonKind.TOO_MUCH_LOSS, application.id, fiber, wl,
+                                  loss.worst_loss_db, row.max_loss_db))
+        if row.min_loss_db is not None and loss.least_loss_db < row.min_loss_db - TOLERANCE_DB:
+            reasons.append(Reason(ReasonKind.TOO_LITTLE_LOSS, application.id, fiber, wl,
+                                  loss.least_loss_db, row.min_loss_db))
+    reasons += [Reason(ReasonKind.UNTESTED, application.id, fiber, wl) for wl in untested]
+    failed = any(reason.kind is not ReasonKind.UNTESTED for reason in reasons)
+    verdict = (ApplicationVerdict.NOT_SUPPORTED if failed
+               else ApplicationVerdict.UNTESTED if untested
+               else ApplicationVerdict.SUPPORTED)
+    return ApplicationAssessment(
+        application.id, verdict, row.max_loss_db,
+        max((loss.worst_loss_db for loss in losses.values()), default=None),
+        row.max_length_m, tuple(reasons), row.min_loss_db,
+        min((loss.least_loss_db for loss in losses.values()), default=None), losses)
+
+
+def assess_link_applications(
+    link: Link,
+    loss_ranges: Mapping[str, Mapping[int, LossRange]],
+    table: ApplicationTable | None = None,
+) -> LinkApplications:
+    """Listed applications of one link, and the ids of all it would support as measured.
+
+    ``loss_ranges`` is :func:`reportgen.power.judged_loss_ranges` of the judged results.
+    Raises KeyError for a listed id the table lacks (see :func:`validate_application_ids`).
+    """
+    table = table or load_applications()
+    measured = loss_ranges.get(link.link_id) or {}
+    every = tuple(assess_application(link, entry, measured) for entry in table.entries)
+    by_id = {assessment.id: assessment for assessment in every}
+    listed = tuple(by_id[application_id] for application_id in link.applications)
+    capable = tuple(a.id for a in every if a.verdict is ApplicationVerdict.SUPPORTED)
+    return LinkApplications(link.link_id, listed, capable, every)
+
+
+# ------------------------------------------------------------------ project
+
+
+@dataclass(frozen=True)
+class ProjectApplications:
+    """Applications and power budgets of every link, in links.csv order."""
+
+    links: tuple[LinkApplications, ...]
+    power: Mapping[str, PowerBudget | None]  # link_id -> budget (None: no transceiver)
+    table: ApplicationTable
+
+    def for_link(self, link_id: str) -> LinkApplications:
+        for link in self.links:
+            if link.link_id == link_id:
+                return link
+        raise KeyError(link_id)
+
+    def link_json(self, link_id: str) -> dict[str, Any]:
+        """``applications``, ``capable`` and ``power`` of one link for summary.json."""
+        power = self.power.get(link_id)
+        return {**self.for_link(link_id).to_json(),
+                "power": None if power is None else power.to_json()}
+
+    def matrix(self, application_ids: Sequence[str] | None = None) -> dict[str, Any]:
+        """Links × applications as plain data (see :func:`application_matrix`)."""
+        return application_matrix(self, application_ids)
+
+
+def assess_project(project: Project, judgement: Any) -> ProjectApplications:
+    """Applications and transceiver power budgets of every link of a judged project.
+
+    ``judgement`` is :class:`reportgen.judge.Judgement` (its ``results`` and ``budgets``).
+    """
+    table = load_applications()
+    ranges = judged_loss_ranges(judgement.results)
+    limits = budget_limits_db(judgement.budgets)
+    attenuators_db = project.testing.attenuators_db
+    links = tuple(assess_link_applications(link, ranges, table) for link in project.links)
+    power = {
+        link.link_id: assess_power(
+            link, project.transceivers[link.transceiver] if link.transceiver else None,
+            ranges, limits, attenuators_db)
+        for link in project.links
+    }
+    return ProjectApplications(links, power, table)
+
+
+def application_matrix(
+    assessed: ProjectApplications, application_ids: Sequence[str] | None = None
+) -> dict[str, Any]:
+    """Links × applications as plain data for the report.
+
+    Columns are ``application_ids`` when given, else every application that some link
+    lists or would support, in table order. Returns::
+
+        {"applications": [id, ...],
+         "links": [{"link_id": ..., "cells": [{"id", "verdict", "listed"}, ...]}, ...]}
+
+    ``verdict`` is ``supported``, ``not-supported`` or ``untested`` for every cell;
+    ``listed`` is true where links.csv names the application for that link.
+    """
+    if application_ids is None:
+        wanted = {a.id for link in assessed.links for a in link.assessments}
+        wanted |= {application_id for link in assessed.links for application_id in link.capable}
+        application_ids = [i for i in assessed.table.ids if i in wanted]
+    rows = []
+    for link in assessed.links:
+        by_id = {a.id: a for a in link.every}
+        listed = {a.id for a in link.assessments}
+        rows.append({"link_id": link.link_id, "cells": [
+            {"id": i, "verdict": by_id[i].verdict.value, "listed": i in listed}
+            for i in application_ids]})
+    return {"applications": list(application_ids), "links": rows}

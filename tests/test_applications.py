@@ -1,0 +1,352 @@
+"""The application table and per-link application verdicts.
+
+Check values come from reference-values §4, each with its source and status next to it:
+IEEE 802.3 (clause named), INCITS FC-PI family, ITU-T G.984.2 / G.987.2 / G.9807.1.
+Hand-worked cases use the test limit set of tests/builders.py (test inputs, not a standard).
+"""
+from __future__ import annotations
+
+import dataclasses
+
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from reportgen.applications import (
+    DESCRIBE_COLUMNS,
+    ApplicationVerdict,
+    ReasonKind,
+    assess_application,
+    assess_link_applications,
+    assess_project,
+    describe_rows,
+    load_applications,
+    parse_applications,
+    validate_application_ids,
+)
+from reportgen.errors import ReportgenError
+from reportgen.judge import judge_project
+from reportgen.model import FiberType, Transceiver
+from reportgen.power import LossRange, judged_loss_ranges
+from tests.builders import make_link, make_project
+
+TABLE = load_applications()
+SINGLE_MODE = (FiberType.OS1, FiberType.OS1A, FiberType.OS2)
+
+REQUIRED_IDS = [
+    "1000BASE-SX", "1000BASE-LX", "10GBASE-SR", "10GBASE-LR", "10GBASE-ER", "25GBASE-SR",
+    "40GBASE-SR4", "40GBASE-LR4", "100GBASE-SR4", "100GBASE-LR4", "400GBASE-SR8",
+    "400GBASE-DR4", "8GFC", "16GFC", "32GFC", "PON-A", "PON-B", "PON-B+", "PON-C", "PON-C+",
+    "PON-N1", "PON-N2", "PON-E1", "PON-E2",
+]
+
+
+# ------------------------------------------------------------------ the table
+
+
+def test_table_has_the_trade_names():
+    assert list(TABLE.ids) == REQUIRED_IDS
+
+
+@pytest.mark.parametrize(
+    ("application", "fiber", "max_length_m", "max_loss_db"),
+    [
+        pytest.param("10GBASE-SR", FiberType.OM3, 300, 2.6,
+                     id="IEEE 802.3 cl. 52, 10GBASE-SR on OM3: 300 m, 2.6 dB (verified, secondary)"),
+        pytest.param("10GBASE-SR", FiberType.OM4, 400, 2.9,
+                     id="IEEE 802.3 cl. 52, 10GBASE-SR on OM4: 400 m, 2.9 dB (verified, secondary)"),
+        pytest.param("10GBASE-SR", FiberType.OM2, 82, 1.8,
+                     id="IEEE 802.3 cl. 52, 10GBASE-SR on OM2: 82 m, 1.8 dB (from memory)"),
+        pytest.param("10GBASE-SR", FiberType.OM1, 33, 1.6,
+                     id="IEEE 802.3 cl. 52, 10GBASE-SR on OM1: 33 m, 1.6 dB (from memory)"),
+        pytest.param("1000BASE-SX", FiberType.OM1, 275, 2.53,
+                     id="IEEE 802.3 cl. 38, 1000BASE-SX 62.5 µm: 275 m (verified, secondary), "
+                        "2.53 dB (from memory)"),
+        pytest.param("1000BASE-SX", FiberType.OM2, 550, 3.43,
+                     id="IEEE 802.3 cl. 38, 1000BASE-SX 50 µm: 550 m (verified, secondary), "
+                        "3.43 dB (from memory)"),
+        pytest.param("1000BASE-LX", FiberType.OS2, 5000, 4.57,
+                     id="IEEE 802.3 cl. 38, 1000BASE-LX: 5 km (verified, secondary), "
+                        "4.57 dB (from memory)"),
+        pytest.param("10GBASE-LR", FiberType.OS2, 10000, 6.2,
+                     id="IEEE 802.3 cl. 52, 10GBASE-LR: 10 km, 6.2 dB (from memory)"),
+        pytest.param("10GBASE-ER", FiberType.OS2, 30000, 10.9,
+                     id="IEEE 802.3 cl. 52, 10GBASE-ER: 30 km, 10.9 dB (from memory)"),
+        pytest.param("25GBASE-SR", FiberType.OM4, 100, 1.9,
+                     id="IEEE 802.3 cl. 112, 25GBASE-SR on OM4: 100 m, 1.9 dB (verified, secondary)"),
+        pytest.param("40GBASE-SR4", FiberType.OM4, 150, 1.5,
+                     id="IEEE 802.3 cl. 86, 40GBASE-SR4 on OM4: 150 m, 1.5 dB (verified, secondary)"),
+        pytest.param("40GBASE-SR4", FiberType.OM3, 100, 1.9,
+                     id="IEEE 802.3 cl. 86, 40GBASE-SR4 on OM3: 100 m (verified), 1.9 dB (from memory)"),
+        pytest.param("100GBASE-SR4", FiberType.OM4, 100, 1.9,
+                     id="IEEE 802.3 cl. 95, 100GBASE-SR4 on OM4: 100 m (verified), 1.9 dB (from memory)"),
+        pytest.param("100GBASE-LR4", FiberType.OS2, 10000, 6.3,
+                     id="IEEE 802.3 cl. 88, 100GBASE-LR4: 10 km, 6.3 dB (from memory)"),
+        pytest.param("8GFC", FiberType.OM3, 150, 2.04,
+                     id="INCITS FC-PI, 8GFC on OM3: 150 m, 2.04 dB (verified, secondary)"),
+        pytest.param("16GFC", FiberType.OM4, 125, 1.95,
+                     id="INCITS FC-PI, 16GFC on OM4: 125 m, 1.95 dB (verified, secondary)"),
+        pytest.param("32GFC", FiberType.OM2, 20, 1.57,
+                     id="INCITS FC-PI, 32GFC on OM2: 20 m, 1.57 dB (verified, secondary)"),
+    ],
+)
+def test_published_limits(application, fiber, max_length_m, max_loss_db):
+    row = TABLE.get(application).limits_for(fiber)
+    assert (row.max_length_m, row.max_loss_db) == (max_length_m, max_loss_db)
+
+
+@pytest.mark.parametrize(
+    ("application", "min_loss_db", "max_loss_db"),
+    [
+        pytest.param("PON-A", 5, 20, id="ITU-T G.984.2 class A: 5-20 dB (verified, secondary)"),
+        pytest.param("PON-B", 10, 25, id="ITU-T G.984.2 class B: 10-25 dB (verified, secondary)"),
+        pytest.param("PON-C", 15, 30, id="ITU-T G.984.2 class C: 15-30 dB (verified, secondary)"),
+        pytest.param("PON-B+", 13, 28,
+                     id="ITU-T G.984.2 class B+: max 28 dB (verified, secondary), min 13 (from memory)"),
+        pytest.param("PON-C+", 17, 32,
+                     id="ITU-T G.984.2 class C+: max 32 dB (verified, secondary), min 17 (from memory)"),
+        pytest.param("PON-N1", 14, 29,
+                     id="ITU-T G.987.2 class N1: max 29 dB (verified, secondary), min 14 (from memory)"),
+        pytest.param("PON-N2", 16, 31,
+                     id="ITU-T G.987.2 class N2: max 31 dB (verified, secondary), min 16 (from memory)"),
+        pytest.param("PON-E1", 18, 33,
+                     id="ITU-T G.987.2 class E1: max 33 dB (verified, secondary), min 18 (from memory)"),
+        pytest.param("PON-E2", 20, 35, id="ITU-T G.987.2 class E2: 20-35 dB (from memory)"),
+    ],
+)
+def test_pon_classes(application, min_loss_db, max_loss_db):
+    entry = TABLE.get(application)
+    for fiber in SINGLE_MODE:
+        row = entry.limits_for(fiber)
+        assert (row.min_loss_db, row.max_loss_db) == (min_loss_db, max_loss_db)
+    # upstream tested at 1310 nm, downstream (1490/1577 nm) at 1550 nm: both needed
+    assert entry.test_wavelengths_nm == (1310, 1550)
+    assert entry.limits_for(FiberType.OM4) is None
+
+
+def test_ieee_multimode_channel_model():
+    # IEEE 802.3 channel model (verified, secondary): 3.5 dB/km at 850 nm + 1.5 dB of
+    # connections. OM3 at 300 m: 0.3 × 3.5 + 1.5 = 2.55 dB, published as 2.6 dB;
+    # OM4 at 400 m: 0.4 × 3.5 + 1.5 = 2.90 dB.
+    entry = TABLE.get("10GBASE-SR")
+    for fiber, published_db in ((FiberType.OM3, 2.6), (FiberType.OM4, 2.9)):
+        row = entry.limits_for(fiber)
+        model_db = row.max_length_m / 1000 * 3.5 + 1.5
+        assert round(model_db + 1e-9, 1) == published_db == row.max_loss_db
+
+
+def test_pon_splitter_fits_the_classes():
+    # Physics: an ideal 1:32 splitter loses 10·log10(32) = 15.05 dB (reference-values §4),
+    # above class B's 10 dB minimum and below class B+'s 28 dB maximum.
+    import math
+
+    split_db = 10 * math.log10(32)
+    assert split_db == pytest.approx(15.05, abs=0.005)
+    row = TABLE.get("PON-B+").limits_for(FiberType.OS2)
+    assert TABLE.get("PON-B").limits_for(FiberType.OS2).min_loss_db < split_db < row.max_loss_db
+
+
+def test_every_row_names_its_status_and_every_entry_its_source():
+    for entry in TABLE.entries:
+        assert entry.source and entry.test_wavelengths_nm and entry.operating_nm
+        for row in entry.fibers:
+            assert any(word in row.status for word in ("verified", "derived", "from memory"))
+
+
+def test_single_mode_entries_cover_os1_os1a_os2():
+    for entry in TABLE.entries:
+        if entry.test_wavelengths_nm[0] >= 1260:
+            assert all(entry.limits_for(fiber) is not None for fiber in SINGLE_MODE), entry.id
+            assert all(entry.limits_for(f) is None for f in FiberType if f not in SINGLE_MODE)
+
+
+@pytest.mark.parametrize(("application", "wavelengths"), [
+    ("1000BASE-SX", (850,)), ("10GBASE-SR", (850,)), ("10GBASE-LR", (1310,)),
+    ("10GBASE-ER", (1550,)), ("40GBASE-LR4", (1310,)), ("16GFC", (850,)),
+])
+def test_needed_test_wavelengths(application, wavelengths):
+    # common practice: the test wavelength nearest the operating one stands for it
+    assert TABLE.get(application).test_wavelengths_nm == wavelengths
+
+
+def test_describe_rows_are_flat_and_complete():
+    rows = describe_rows()
+    assert all(tuple(row) == DESCRIBE_COLUMNS for row in rows)
+    assert {row["id"] for row in rows} == set(REQUIRED_IDS)
+    sr_om3 = next(r for r in rows if r["id"] == "10GBASE-SR" and r["fiber_types"] == "OM3")
+    assert (sr_om3["max_length_m"], sr_om3["max_loss_db"], sr_om3["source"]) == (
+        300, 2.6, "IEEE 802.3 cl. 52")
+    assert "verified, secondary" in sr_om3["status"]
+
+
+def test_broken_table_is_named_precisely():
+    data = {"applications": [{"id": "X", "family": "F", "source": "S", "operating_nm": [850],
+                              "test_wavelengths_nm": [850], "strands": 2,
+                              "fibers": [{"types": ["OM9"], "max_length_m": 1,
+                                          "max_loss_db": 1, "status": "from memory"}]}]}
+    with pytest.raises(ReportgenError, match=r"t\.yaml, application X\.fibers\[0\]\.types"):
+        parse_applications(data, "t.yaml")
+
+
+# --------------------------------------------------------------- input ids
+
+
+@pytest.mark.parametrize(("written", "message"), [
+    ("10GBASE-XX", "links.csv, line 5, applications: expected an application id such as "
+                   "10GBASE-SR (see 'reportgen applications') (got '10GBASE-XX')"),
+    ("10gbase-lr", "links.csv, line 5, applications: expected an application id such as "
+                   "10GBASE-LR (see 'reportgen applications') (got '10gbase-lr')"),
+    ("PON B+", "links.csv, line 5, applications: expected an application id such as "
+                   "PON-B+ (see 'reportgen applications') (got 'PON B+')"),
+    ("token ring", "links.csv, line 5, applications: expected an application id such as "
+                   "10GBASE-SR (see 'reportgen applications') (got 'token ring')"),
+])
+def test_unknown_application_id_is_refused(written, message):
+    link = make_link(applications=("10GBASE-SR", written), line=5)
+    assert [str(p) for p in validate_application_ids([link])] == [message]
+
+
+def test_known_application_ids_pass():
+    assert validate_application_ids([make_link(applications=tuple(REQUIRED_IDS))]) == []
+
+
+# --------------------------------------------------------------- assessment
+
+
+def _ranges(*rows):
+    """{wavelength: LossRange} from (wavelength, worst, least)."""
+    return {wl: LossRange(worst, least, 2) for wl, worst, least in rows}
+
+
+def test_worst_loss_over_strands_and_directions_counts():
+    # OM4, 120 m; at 850 nm: s1 ab 1.80, s1 ba 2.10, s2 ab 1.95, s2 ba 1.70 → worst 2.10 dB.
+    # 10GBASE-SR (OM4: 400 m, 2.9 dB): 120 ≤ 400, 2.10 ≤ 2.90 → supported.
+    # 25GBASE-SR (OM4: 100 m, 1.9 dB): 120 > 100 and 2.10 > 1.90 → not supported, both reasons.
+    link = make_link(fiber_type=FiberType.OM4, length_m=120, strands=2,
+                     applications=("10GBASE-SR", "25GBASE-SR"))
+    results = [dict(wavelength_nm=850, strand=1, direction="ab", loss_db=1.80),
+               dict(wavelength_nm=850, strand=1, direction="ba", loss_db=2.10),
+               dict(wavelength_nm=850, strand=2, direction="ab", loss_db=1.95),
+               dict(wavelength_nm=850, strand=2, direction="ba", loss_db=1.70)]
+    judged = judge_project(make_project([link], results)).results
+    assessed = assess_link_applications(link, judged_loss_ranges(judged))
+    sr, sr25 = assessed.assessments
+    assert sr.to_json() == {"id": "10GBASE-SR", "verdict": "supported", "max_loss_db": 2.9,
+                            "worst_loss_db": 2.1, "max_length_m": 400.0, "reasons": []}
+    assert sr25.to_json() == {
+        "id": "25GBASE-SR", "verdict": "not-supported", "max_loss_db": 1.9,
+        "worst_loss_db": 2.1, "max_length_m": 100.0,
+        "reasons": ["too long: 120 m documented, 100 m allowed on OM4",
+                    "too much loss at 850 nm: 2.10 dB measured, 1.90 dB allowed"]}
+    # capable as measured (OM4, 120 m, 2.10 dB at 850): 1000BASE-SX (550 m, 3.43 dB),
+    # 10GBASE-SR (400 m, 2.9 dB); 40GBASE-SR4 is 150 m but 1.5 dB; 8GFC 190 m but 2.19 dB → yes;
+    # 16GFC 125 m but 1.95 dB → no.
+    assert assessed.capable == ("1000BASE-SX", "10GBASE-SR", "8GFC")
+
+
+def test_missing_wavelength_is_untested():
+    # Only 1300 nm results: 10GBASE-SR needs 850 nm → untested.
+    link = make_link(fiber_type=FiberType.OM4, length_m=50)
+    got = assess_application(link, TABLE.get("10GBASE-SR"), _ranges((1300, 0.8, 0.7)))
+    assert got.verdict is ApplicationVerdict.UNTESTED
+    assert got.worst_loss_db is None
+    assert [str(r) for r in got.reasons] == ["untested at 850 nm: no judged result"]
+
+
+def test_failure_beats_untested_and_lists_every_reason():
+    # PON-B+ (ITU-T G.984.2: 13–28 dB, 20 km) on OS2, 25 km: too long (20 km), 1310 nm least 12.40 < 13 dB minimum, 1550 missing.
+    link = make_link(fiber_type=FiberType.OS2, length_m=25000)
+    got = assess_application(link, TABLE.get("PON-B+"), _ranges((1310, 14.0, 12.4)))
+    assert got.verdict is ApplicationVerdict.NOT_SUPPORTED
+    assert [r.kind for r in got.reasons] == [ReasonKind.TOO_LONG, ReasonKind.TOO_LITTLE_LOSS,
+                                             ReasonKind.UNTESTED]
+    assert [str(r) for r in got.reasons] == [
+        "too long: 25000 m documented, 20000 m allowed on OS2",
+        "too little loss at 1310 nm: 12.40 dB measured, class minimum 13.00 dB",
+        "untested at 1550 nm: no judged result",
+    ]
+
+
+def test_pon_class_needs_both_wavelengths_within_min_and_max():
+    # 1:32 PON link: 1310 nm 18.69/18.20 dB, 1550 nm 18.10/17.95 dB (worst/least).
+    # PON-B+ (13–28 dB): all inside → supported; worst over wavelengths = 18.69 dB.
+    # PON-E1 (18–33 dB): least 17.95 at 1550 < 18 → not supported.
+    link = make_link(fiber_type=FiberType.OS2, length_m=1620)
+    ranges = _ranges((1310, 18.69, 18.20), (1550, 18.10, 17.95))
+    b_plus = assess_application(link, TABLE.get("PON-B+"), ranges)
+    assert (b_plus.verdict, b_plus.worst_loss_db) == (ApplicationVerdict.SUPPORTED, 18.69)
+    e1 = assess_application(link, TABLE.get("PON-E1"), ranges)
+    assert e1.verdict is ApplicationVerdict.NOT_SUPPORTED
+    assert [str(r) for r in e1.reasons] == [
+        "too little loss at 1550 nm: 17.95 dB measured, class minimum 18.00 dB"]
+
+
+def test_fiber_type_not_specified():
+    link = make_link(fiber_type=FiberType.OS2, length_m=100)
+    got = assess_application(link, TABLE.get("10GBASE-SR"), _ranges((1310, 0.5, 0.4)))
+    assert got.to_json() == {"id": "10GBASE-SR", "verdict": "not-supported", "max_loss_db": None,
+                             "worst_loss_db": None, "max_length_m": None,
+                             "reasons": ["fiber type OS2 not specified for 10GBASE-SR"]}
+
+
+def test_exactly_at_the_limits_is_supported():
+    # 400 m and 2.9 dB on OM4 are the 10GBASE-SR maxima (IEEE 802.3 cl. 52, verified,
+    # secondary); 0.4·3.5 + 1.5 computed in floats is 2.9000000000000004.
+    link = make_link(fiber_type=FiberType.OM4, length_m=400)
+    got = assess_application(link, TABLE.get("10GBASE-SR"),
+                             _ranges((850, 0.4 * 3.5 + 1.5, 2.0)))
+    assert got.verdict is ApplicationVerdict.SUPPORTED
+
+
+@given(st.floats(min_value=0.0, max_value=5.0), st.floats(min_value=1.0, max_value=600.0))
+def test_single_wavelength_verdict_is_the_two_comparisons(worst_db, length_m):
+    link = make_link(fiber_type=FiberType.OM3, length_m=length_m)
+    got = assess_application(link, TABLE.get("10GBASE-SR"), _ranges((850, worst_db, worst_db)))
+    # IEEE 802.3 cl. 52 on OM3: 300 m, 2.6 dB (verified, secondary)
+    expected = worst_db <= 2.6 + 1e-9 and length_m <= 300 + 1e-9
+    assert (got.verdict is ApplicationVerdict.SUPPORTED) == expected
+
+
+# ------------------------------------------------------------------ project
+
+
+def test_project_outputs_and_matrix():
+    # L1: OM4 38 m, 850 nm 1.02 dB, 1300 nm 0.70 dB, with a 10GBASE-SR optic (cl. 52 values):
+    #   rx_min = −7.3 − 1.02 = −8.32 dBm, rx_max = −1.0 − 1.02 = −2.02 dBm → ok.
+    # L2: OS2 460 m, no results, listed 10GBASE-LR → untested, no transceiver.
+    sr = Transceiver("sr-10g", 850, -7.3, -1.0, -9.9, -1.0)
+    l1 = make_link("L1", fiber_type=FiberType.OM4, length_m=38,
+                   applications=("10GBASE-SR",), transceiver="sr-10g")
+    l2 = make_link("L2", fiber_type=FiberType.OS2, length_m=460, applications=("10GBASE-LR",))
+    project = make_project([l1, l2], [dict(link_id="L1", wavelength_nm=850, loss_db=1.02),
+                                      dict(link_id="L1", wavelength_nm=1300, loss_db=0.70)],
+                           transceivers={"sr-10g": sr})
+    assessed = assess_project(project, judge_project(project))
+    first = assessed.link_json("L1")
+    assert first["applications"][0]["verdict"] == "supported"
+    assert "40GBASE-SR4" in first["capable"] and "10GBASE-LR" not in first["capable"]
+    assert first["power"] == {"transceiver": "sr-10g", "basis": "measured", "wavelength_nm": 850,
+                              "rx_min_dbm": -8.32, "rx_max_dbm": -2.02, "low_margin_db": 1.58,
+                              "high_margin_db": 1.02, "attenuator_db": None, "verdict": "ok"}
+    second = assessed.link_json("L2")
+    assert second == {"applications": [{
+        "id": "10GBASE-LR", "verdict": "untested", "max_loss_db": 6.2, "worst_loss_db": None,
+        "max_length_m": 10000.0, "reasons": ["untested at 1310 nm: no judged result"]}],
+        "capable": [], "power": None}
+    matrix = assessed.matrix()
+    assert matrix["applications"][:2] == ["1000BASE-SX", "10GBASE-SR"]
+    assert "10GBASE-LR" in matrix["applications"]  # listed by L2
+    row = matrix["links"][1]
+    cell = next(c for c in row["cells"] if c["id"] == "10GBASE-LR")
+    assert row["link_id"] == "L2" and cell == {"id": "10GBASE-LR", "verdict": "untested",
+                                               "listed": True}
+    assert assessed.matrix(["PON-B+"]) == {"applications": ["PON-B+"], "links": [
+        {"link_id": "L1", "cells": [{"id": "PON-B+", "verdict": "not-supported", "listed": False}]},
+        {"link_id": "L2", "cells": [{"id": "PON-B+", "verdict": "untested", "listed": False}]}]}
+
+
+def test_results_are_frozen():
+    link = make_link(fiber_type=FiberType.OM4, length_m=50)
+    got = assess_application(link, TABLE.get("10GBASE-SR"), _ranges((850, 1.0, 1.0)))
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        got.verdict = ApplicationVerdict.UNTESTED  # type: ignore[misc]
