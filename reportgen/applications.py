@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 from enum import StrEnum
 from functools import lru_cache
 from importlib import resources
-from typing import Any, Final
+from typing import TYPE_CHECKING, Any, Final
 
 import yaml
 
@@ -44,6 +44,9 @@ from .power import (
     budget_limits_db,
     judged_loss_ranges,
 )
+
+if TYPE_CHECKING:
+    from .judge import Judgement
 
 TABLE_FILE: Final = "applications.yaml"
 EXAMPLE_ID: Final = "10GBASE-SR"
@@ -433,7 +436,7 @@ class ProjectApplications:
         return application_matrix(self, application_ids)
 
 
-def assess_project(project: Project, judgement: Any) -> ProjectApplications:
+def assess_project(project: Project, judgement: Judgement) -> ProjectApplications:
     """Applications and transceiver power budgets of every link of a judged project.
 
     ``judgement`` is :class:`reportgen.judge.Judgement` (its ``results`` and ``budgets``).
