@@ -67,13 +67,16 @@ PROJECT = click.argument("project", type=click.Path(path_type=Path))
 @cli.command(epilog="Exit status: 0 every link passes, 1 some link fails or is incomplete, "
                     "2 bad input.")
 @PROJECT
-def check(project: Path) -> None:
+@click.option("--all", "show_all", is_flag=True,
+              help="List every link, also in large projects (default: above 100 links only "
+                   "the links that fail or are incomplete).")
+def check(project: Path, show_all: bool) -> None:
     """Validate and judge PROJECT, print a table of links; write nothing."""
     from . import pipeline
     from .terminal import print_check_table
 
     outcome = pipeline.compute(pipeline.validate_only(project))
-    print_check_table(_stdout(), outcome)
+    print_check_table(_stdout(), outcome, show_all=show_all)
     totals = outcome.judgement.totals
     if totals["fail"] or totals["incomplete"]:
         raise _Failure(1)

@@ -16,6 +16,7 @@ from typing import Any
 
 from . import __version__, export
 from .errors import InputError, InputProblem, ReportgenError
+from .applications import assess_project
 from .judge import Judgement, judge_project
 from .model import Project
 from .validate import load_project
@@ -59,13 +60,8 @@ def compute(project: Project) -> Outcome:
     """Step 3: judge every result, then assess applications and power budgets."""
     log.info("Step 3: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
-    extras: dict[str, Any] = {}
-    try:
-        from .applications import assess_project
-    except ImportError:  # pragma: no cover - module lands with the applications work
-        assess_project = None
-    if assess_project is not None:
-        extras["applications"] = assess_project(project, judgement)
+    log.info("Step 3: assessing applications and transceiver power budgets")
+    extras: dict[str, Any] = {"applications": assess_project(project, judgement)}
     return Outcome(project, judgement, extras)
 
 
@@ -127,11 +123,9 @@ def build(
 
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
     """summary.json: the contract's keys plus applications and power per link."""
-    link_extras: dict[str, dict[str, Any]] = {}
-    assessed = outcome.extras.get("applications")
-    if assessed is not None:
-        link_extras = assessed.summary_by_link()
+    assessed = outcome.extras["applications"]
     project = outcome.project
+    link_extras = {link.link_id: assessed.link_json(link.link_id) for link in project.links}
     meta = {
         "project": {"title": project.info.title, "job_number": project.info.job_number},
         "limits": project.limits.id,

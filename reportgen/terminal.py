@@ -25,7 +25,11 @@ def _missing_text(outcome, limit: int = 4) -> str:
     return ", ".join(parts) + (f", +{more} more" if more > 0 else "")
 
 
-def print_check_table(console: Console, outcome) -> None:
+# Above this many links, ``check`` lists only the links that need action unless asked.
+FULL_TABLE_MAX_LINKS = 100
+
+
+def print_check_table(console: Console, outcome, show_all: bool = False) -> None:
     """Links with verdict, worst margin and what is missing, then totals."""
     project = outcome.project
     table = Table(title=f"{project.info.title} — limits {project.limits.id}, "
@@ -39,7 +43,13 @@ def print_check_table(console: Console, outcome) -> None:
     table.add_column("missing")
     links = {link.link_id: link for link in project.links}
     unit = project.testing.units.value
-    for item in outcome.judgement.links:
+    listed = outcome.judgement.links
+    if not show_all and len(listed) > FULL_TABLE_MAX_LINKS:
+        listed = [item for item in listed if item.verdict.value != "pass"]
+        table.caption = (f"{len(outcome.judgement.links) - len(listed)} passing links not "
+                         f"listed (reportgen check --all lists every link)")
+        table.caption_justify = "left"
+    for item in listed:
         link = links[item.link_id]
         length = link.length_m if unit == "m" else link.length_m / 0.3048
         margin = "—" if item.worst_margin_db is None else f"{item.worst_margin_db:+.2f} dB"
