@@ -234,6 +234,7 @@ class Project:
     instruments: tuple[Instrument, ...] = ()
     technicians: tuple[str, ...] = ()
     report: ReportOptions = field(default_factory=ReportOptions)
+    result_files: tuple[str, ...] = ()  # results/*.csv read, in order (header-only files too)
 
     def link(self, link_id: str) -> Link:
         for link in self.links:

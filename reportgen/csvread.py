@@ -1,0 +1,170 @@
+"""Reading the CSV tables of a project folder into columns of trimmed text.
+
+Contract (project format v1, "All CSV files"): UTF-8 with or without a byte-order
+mark, comma separated, a header row, column names case-insensitive, surrounding
+blanks ignored, unknown columns kept and ignored, an empty cell means "not given".
+Values are left as text here; ``reportgen.validate`` checks and converts them.
+"""
+from __future__ import annotations
+
+import csv
+import difflib
+import io
+import re
+from collections.abc import Sequence
+from dataclasses import dataclass
+from operator import itemgetter
+from pathlib import Path
+
+from .errors import InputProblem
+from .load import read_text
+
+_DECIMAL_COMMA = re.compile(r"\d,\d")
+_SEPARATORS = {";": "semicolon", "\t": "tab"}
+
+
+@dataclass(frozen=True)
+class CsvTable:
+    """The rows of one CSV file, by column; blank rows are skipped."""
+
+    file: str  # relative to the project folder
+    columns: dict[str, list[str]]  # known column (lower case) -> trimmed cells, "" = not given
+    lines: list[int]  # line where each row starts (header = line 1)
+
+    def __len__(self) -> int:
+        return len(self.lines)
+
+    def has(self, name: str) -> bool:
+        return name in self.columns
+
+
+def _separator_problem(text: str, shown: str) -> InputProblem | None:
+    """A problem when the header is split by semicolons or tabs rather than commas."""
+    header_line = text.split("\n", 1)[0]
+    commas = header_line.count(",")
+    for separator, name in _SEPARATORS.items():
+        if header_line.count(separator) > commas:
+            decimal = " with decimal commas" if _DECIMAL_COMMA.search(text, 0, 100_000) else ""
+            return InputProblem(
+                shown, 1, None,
+                "comma-separated values with a decimal point in numbers "
+                f"(file looks {name}-separated{decimal}; export it again as comma-separated CSV)")
+    return None
+
+
+def _header_problems(names: list[str], shown: str, required: Sequence[tuple[str, ...]],
+                     known: set[str]) -> list[InputProblem]:
+    problems = []
+    first_column: dict[str, int] = {}
+    for index, name in enumerate(names, start=1):
+        if not name:
+            continue
+        if name in first_column:
+            problems.append(InputProblem(
+                shown, 1, name,
+                f"each column name once (found in columns {first_column[name]} and {index})"))
+        first_column.setdefault(name, index)
+    unknown = [name for name in first_column if name not in known]
+    for group in required:
+        if any(name in first_column for name in group):
+            continue
+        wanted = group[0] if len(group) == 1 else ", ".join(group[:-1]) + f" or {group[-1]}"
+        hint = ""
+        for name in group:
+            close = difflib.get_close_matches(name, unknown, n=1, cutoff=0.75)
+            if close:
+                hint = f" (did you mean {name} instead of {close[0]!r}?)"
+                break
+        problems.append(InputProblem(shown, 1, group[0], f"a column named {wanted}{hint}"))
+    return problems
+
+
+def read_csv(path: Path, shown: str, *, required: Sequence[tuple[str, ...]],
+             optional: Sequence[str]) -> tuple[CsvTable | None, list[InputProblem]]:
+    """Read one CSV file of the project folder.
+
+    Parameters
+    ----------
+    path, shown : Path, str
+        The file, and its name as problems show it (relative, forward slashes).
+    required : sequence of tuple of str
+        Required columns; a tuple of several names means "one of these".
+    optional : sequence of str
+        Other columns the caller reads; all further columns are ignored.
+
+    Returns
+    -------
+    (CsvTable or None, list of InputProblem)
+        None when the file cannot be read as a table at all (size, encoding,
+        separator, header); row problems (too many cells) come with a table.
+    """
+    text, problems = read_text(path, shown)
+    if text is None:
+        return None, problems
+    if not text.strip():
+        return None, [InputProblem(shown, None, None, "a header row naming the columns (file is empty)")]
+    separator = _separator_problem(text, shown)
+    if separator is not None:
+        return None, [separator]
+
+    reader = csv.reader(io.StringIO(text, newline=""))
+    try:
+        header = next(reader)
+        while not "".join(header).strip():  # leading blank lines
+            header = next(reader)
+    except csv.Error as error:
+        return None, [InputProblem(shown, reader.line_num, None, "well-formed CSV", str(error))]
+    names = [name.strip().lower() for name in header]
+    known = {name for group in required for name in group} | set(optional)
+    problems = _header_problems(names, shown, required, known)
+    if problems:
+        return None, problems
+
+    width = len(names)
+    first_line = reader.line_num + 1
+    try:
+        records = list(reader)
+    except csv.Error as error:
+        return None, problems + [InputProblem(shown, reader.line_num, None, "well-formed CSV", str(error))]
+    if reader.line_num == first_line - 1 + len(records):
+        starts = range(first_line, first_line + len(records))  # one line per record: the usual case
+    else:
+        starts = _record_starts(text, first_line - 1)
+    sizes = list(map(len, records))
+    if sizes.count(width) == len(sizes):  # the usual case: every row as wide as the header
+        rows, lines = records, list(starts)
+    else:
+        rows, lines = [], []
+        for row, start, size in zip(records, starts, sizes):
+            if size < width:
+                row = row + [""] * (width - size)
+            elif size > width:
+                if "".join(row[width:]).strip():
+                    hint = ("; a decimal comma splits a number in two, write 1.25 not 1,25"
+                            if any(cell.strip().isdigit() for cell in row) else "")
+                    problems.append(InputProblem(
+                        shown, start, None, f"at most {width} cells, one per header column{hint}",
+                        f"{size} cells"))
+                row = row[:width]
+            rows.append(row)
+            lines.append(start)
+    blank = [not joined.strip() for joined in map("".join, rows)]
+    if any(blank):
+        rows = [row for row, is_blank in zip(rows, blank) if not is_blank]
+        lines = [line for line, is_blank in zip(lines, blank) if not is_blank]
+
+    wanted = {name: names.index(name) for name in known if name in names}
+    columns = {name: list(map(str.strip, map(itemgetter(index), rows))) for name, index in wanted.items()}
+    return CsvTable(shown, columns, lines), problems
+
+
+def _record_starts(text: str, header_end: int) -> list[int]:
+    """Start line of every record after line ``header_end``, for files with line breaks in cells."""
+    reader = csv.reader(io.StringIO(text, newline=""))
+    starts = []
+    previous = 0
+    for _ in reader:
+        if previous >= header_end:
+            starts.append(previous + 1)
+        previous = reader.line_num
+    return starts

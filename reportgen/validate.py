@@ -1,0 +1,308 @@
+"""Loading and validating a project folder (project format v1) into a ``Project``.
+
+``load_project`` reads project.yaml, links.csv and results/*.csv and returns a
+fully validated ``Project``, or raises ``InputError`` holding every problem found,
+in file order (project.yaml, its limit file, links.csv, results files by name;
+within a CSV file by line). The folder is only read, never written.
+"""
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Final
+
+import pandas as pd
+
+from .csvread import CsvTable, read_csv
+from .errors import InputError, InputProblem
+from .load import read_yaml
+from .model import (
+    Component,
+    FiberType,
+    LengthUnit,
+    LimitSet,
+    Link,
+    Plant,
+    Project,
+    Transceiver,
+)
+from .projectfile import Settings, check_project_yaml, enum_choices, match_enum
+from .units import ft_to_m
+from .validate_results import DECIMAL_HINT, EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
+from .validate_results import OPTIONAL as RESULT_OPTIONAL
+from .validate_results import REQUIRED as RESULT_REQUIRED
+
+LINKS_FILE: Final = "links.csv"
+RESULTS_DIR: Final = "results"
+LINK_REQUIRED: Final = (("link_id",), ("end_a",), ("end_b",), ("fiber_type",), LENGTH_COLUMNS)
+LINK_OPTIONAL: Final = ("plant", "strands", "connections", "splices", "components", "applications",
+                        "transceiver", "notes")
+MAX_STRANDS: Final = 1000
+MAX_COUNT: Final = 1000  # connections or splices on one link
+_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+")
+
+
+def load_project(project_dir: Path) -> Project:
+    """Read and validate the project folder ``project_dir``.
+
+    Raises
+    ------
+    InputError
+        With every problem found, in file order; nothing is returned partly.
+    """
+    given = Path(project_dir)
+    if not given.is_dir():
+        raise InputError([InputProblem(given.as_posix(), None, None, "an existing project folder")])
+    root = given.resolve()
+    problems: list[InputProblem] = []
+
+    settings = Settings()
+    yaml_path = root / "project.yaml"
+    if not yaml_path.is_file():
+        problems.append(InputProblem("project.yaml", None, None,
+                                     "a file project.yaml in the project folder (not found)"))
+    else:
+        data, yaml_problems = read_yaml(yaml_path, "project.yaml")
+        problems += yaml_problems
+        if data is not None or not yaml_problems:  # None with problems: unreadable or bad syntax
+            settings, setting_problems = check_project_yaml(data, root)
+            problems += setting_problems
+
+    links, all_link_ids, link_problems = _load_links(root, settings)
+    problems += _wavelength_coverage(settings, links)
+    problems += link_problems
+
+    context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
+                      all_link_ids=all_link_ids, limits=settings.limits,
+                      instruments=settings.instruments, units=settings.units)
+    frames: list[pd.DataFrame] = []
+    files: list[str] = []
+    for path in _result_files(root, problems):
+        shown = f"{RESULTS_DIR}/{path.name}"
+        files.append(shown)
+        table, table_problems = read_csv(path, shown, required=RESULT_REQUIRED, optional=RESULT_OPTIONAL)
+        if table is None:
+            problems += table_problems
+            continue
+        frame, row_problems = check_results(table, context)
+        problems += _by_line(table_problems + row_problems)
+        if frame is not None and len(frame):
+            frames.append(frame)
+
+    if problems:
+        raise InputError(problems)
+    assert settings.info and settings.testing and settings.limits and settings.report
+    results = pd.concat(frames, ignore_index=True) if frames else empty_results()
+    return Project(
+        root=root,
+        info=settings.info,
+        testing=settings.testing,
+        links=tuple(links),
+        results=results,
+        limits=settings.limits,
+        components=settings.components or {},
+        transceivers=settings.transceivers or {},
+        instruments=settings.instruments or (),
+        technicians=settings.technicians,
+        report=settings.report,
+        result_files=tuple(files),
+    )
+
+
+def _result_files(root: Path, problems: list[InputProblem]) -> list[Path]:
+    """results/*.csv sorted by name; hidden files (``.x.csv``) and lock files (``~$x.csv``) skipped."""
+    folder = root / RESULTS_DIR
+    if not folder.exists():
+        return []
+    if not folder.is_dir():
+        problems.append(InputProblem(RESULTS_DIR, None, None, "a folder of results CSV files"))
+        return []
+    return sorted(
+        (path for path in folder.iterdir()
+         if path.suffix.lower() == ".csv" and path.is_file() and not path.name.startswith((".", "~$"))),
+        key=lambda path: path.name)
+
+
+def _load_links(root: Path, settings: Settings
+                ) -> tuple[list[Link], frozenset[str] | None, list[InputProblem]]:
+    path = root / LINKS_FILE
+    if not path.is_file():
+        return [], None, [InputProblem(LINKS_FILE, None, None,
+                                       "a file links.csv in the project folder (not found)")]
+    table, problems = read_csv(path, LINKS_FILE, required=LINK_REQUIRED, optional=LINK_OPTIONAL)
+    if table is None:
+        return [], None, problems
+    if len(table) == 0:
+        return [], None, problems + [InputProblem(LINKS_FILE, None, None,
+                                                  "at least one link row below the header")]
+    links, row_problems = check_links(table, settings)
+    return links, frozenset(table.columns["link_id"]) - {""}, _by_line(problems + row_problems)
+
+
+def _by_line(problems: list[InputProblem]) -> list[InputProblem]:
+    """Problems of one CSV file in line order (stable: checks of a line keep their order)."""
+    return sorted(problems, key=lambda problem: problem.line or 0)
+
+
+def _number(text: str, column: str, expected: str, line: int, file: str,
+            problems: list[InputProblem]) -> float | None:
+    if _NUMBER.fullmatch(text):
+        return float(text)
+    hint = DECIMAL_HINT if _DECIMAL_COMMA.fullmatch(text) else ""
+    problems.append(InputProblem(file, line, column, expected + hint, text))
+    return None
+
+
+def _count(text: str, column: str, low: int, high: int, default: int, line: int, file: str,
+           problems: list[InputProblem]) -> int | None:
+    if not text:
+        return default
+    value = float(text) if _NUMBER.fullmatch(text) else None
+    if value is None or value != int(value) or not low <= value <= high:
+        problems.append(InputProblem(file, line, column, f"a whole number from {low} to {high}", text))
+        return None
+    return int(value)
+
+
+def _ids(text: str) -> tuple[str, ...]:
+    return tuple(part.strip() for part in text.split(";") if part.strip())
+
+
+def _catalog_text(catalog: Mapping[str, object], name: str) -> str:
+    ids = sorted(catalog)
+    if not ids:
+        return f"the {name} catalog in project.yaml is empty"
+    listed = ", ".join(ids[:10]) + (", ..." if len(ids) > 10 else "")
+    return f"{name} in project.yaml: {listed}"
+
+
+def check_links(table: CsvTable, settings: Settings) -> tuple[list[Link], list[InputProblem]]:
+    """Check every row of links.csv; returns the valid links and every problem, in line order."""
+    file = table.file
+    cols = table.columns
+    n = len(table)
+    blank = [""] * n
+    get = {name: cols.get(name, blank) for name in (*(g[0] for g in LINK_REQUIRED), *LENGTH_COLUMNS,
+                                                    *LINK_OPTIONAL)}
+    length_present = [name for name in LENGTH_COLUMNS if name in cols]
+    limits: LimitSet | None = settings.limits
+    components: Mapping[str, Component] | None = settings.components
+    transceivers: Mapping[str, Transceiver] | None = settings.transceivers
+    links: list[Link] = []
+    problems: list[InputProblem] = []
+    first_line: dict[str, int] = {}
+    for row, line in enumerate(table.lines):
+        row_problems: list[InputProblem] = []
+
+        def problem(column: str, expected: str, found: str | None = None) -> None:
+            row_problems.append(InputProblem(file, line, column, expected, found))
+
+        link_id = get["link_id"][row]
+        if not link_id:
+            problem("link_id", "a unique link_id" + EMPTY)
+        elif link_id in first_line:
+            problem("link_id", f"a link_id not used before (first used on line {first_line[link_id]})",
+                    link_id)
+        else:
+            first_line[link_id] = line
+        for column in ("end_a", "end_b"):
+            if not get[column][row]:
+                problem(column, "where the link ends (room, rack, panel, port)" + EMPTY)
+
+        fiber_text = get["fiber_type"][row]
+        fiber = match_enum(FiberType, fiber_text) if fiber_text else None
+        if fiber is None:
+            problem("fiber_type", f"one of {enum_choices(FiberType)}" + ("" if fiber_text else EMPTY),
+                    fiber_text or None)
+        elif limits is not None and not limits.covers(fiber):
+            covered = ", ".join(member.value for member in FiberType if limits.covers(member))
+            problem("fiber_type", f"a fiber type that limit set {limits.id} covers: {covered}", fiber_text)
+            fiber = None
+
+        plant_text = get["plant"][row]
+        plant = match_enum(Plant, plant_text) if plant_text else Plant.INSIDE
+        if plant is None:
+            problem("plant", f"one of {enum_choices(Plant)}", plant_text)
+
+        length_m = _link_length(get, length_present, row, settings.units, problem, line, file,
+                                row_problems)
+        strands = _count(get["strands"][row], "strands", 1, MAX_STRANDS, 1, line, file, row_problems)
+        connections = _count(get["connections"][row], "connections", 0, MAX_COUNT, 0, line, file,
+                             row_problems)
+        splices = _count(get["splices"][row], "splices", 0, MAX_COUNT, 0, line, file, row_problems)
+
+        parts = _ids(get["components"][row])
+        if components is not None:
+            for part in parts:
+                if part not in components:
+                    problem("components", f"ids from {_catalog_text(components, 'components')}", part)
+        transceiver = get["transceiver"][row] or None
+        if transceiver and transceivers is not None and transceiver not in transceivers:
+            problem("transceiver", f"an id from {_catalog_text(transceivers, 'transceivers')}", transceiver)
+
+        problems += row_problems
+        if row_problems or fiber is None or length_m is None:
+            continue
+        links.append(Link(
+            link_id=link_id, end_a=get["end_a"][row], end_b=get["end_b"][row], fiber_type=fiber,
+            length_m=length_m, plant=plant, strands=strands, connections=connections, splices=splices,
+            components=parts, applications=_ids(get["applications"][row]), transceiver=transceiver,
+            notes=get["notes"][row] or None, line=line,
+        ))
+    return links, problems
+
+
+def _link_length(get: Mapping[str, Sequence[str]], present: Sequence[str], row: int,
+                 units: LengthUnit | None, problem, line: int, file: str,
+                 row_problems: list[InputProblem]) -> float | None:
+    """Documented length [m] from exactly one of length (testing.units), length_m, length_ft."""
+    given = [name for name in present if get[name][row]]
+    if len(given) != 1:
+        field = "/".join(present)
+        if not given:
+            problem(field, f"a length in {'one of these columns' if len(present) > 1 else 'm or ft'}"
+                    + (EMPTY if len(present) == 1 else " (all are empty)"))
+        else:
+            problem(field, "a length in only one of these columns",
+                    " and ".join(get[name][row] for name in given))
+        return None
+    name = given[0]
+    unit = {"length_m": LengthUnit.M, "length_ft": LengthUnit.FT}.get(name, units)
+    expected = f"a length{'' if unit is None else ' in ' + unit.value}, greater than 0 and at most 200 km"
+    value = _number(get[name][row], name, expected, line, file, row_problems)
+    if value is None:
+        return None
+    if unit is None:
+        return None  # testing.units is unusable: that problem is reported on project.yaml
+    length_m = ft_to_m(value) if unit is LengthUnit.FT else value
+    if not 0 < length_m <= MAX_LENGTH_M:
+        problem(name, expected, get[name][row])
+        return None
+    return length_m
+
+
+def _wavelength_coverage(settings: Settings, links: Sequence[Link]) -> list[InputProblem]:
+    """testing.wavelengths: each listed wavelength must be defined by the limit set for every
+    fiber type (and plant) of that category the links use."""
+    limits = settings.limits
+    if limits is None or not settings.wavelength_override:
+        return []
+    problems = []
+    used = sorted({(link.fiber_type, link.plant) for link in links})
+    for category, wavelengths in settings.wavelength_override.items():
+        for fiber, plant in used:
+            if fiber.category is not category:
+                continue
+            defined = limits.wavelengths_nm(fiber, plant)
+            missing = [wavelength for wavelength in wavelengths if wavelength not in defined]
+            if missing:
+                outside = ", outside plant" if (plant is Plant.OUTSIDE and
+                                                fiber in limits.attenuation_db_per_km_outside) else ""
+                problems.append(InputProblem(
+                    "project.yaml", None, f"testing.wavelengths.{category.value}",
+                    f"only wavelengths that limit set {limits.id} defines for {fiber.value}{outside}: "
+                    f"{', '.join(map(str, defined))}", ", ".join(map(str, missing))))
+    return problems
+

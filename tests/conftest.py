@@ -1,0 +1,57 @@
+"""Shared fixtures for the test suite."""
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+import pytest
+
+# A minimal valid project folder (invented data, for tests only). Files given to
+# make_project() replace these or are added beside them; None removes one.
+MINIMAL_PROJECT: dict[str, str] = {
+    "project.yaml": (
+        "project:\n"
+        "  title: Test backbone\n"
+        "  contractor: {name: Test Cabling}\n"
+        "testing:\n"
+        "  limits: tia-568.3-d\n"
+        "  reference_method: one-cord\n"
+        "components:\n"
+        "  split-1x8: {loss_db: 10.5, description: test splitter}\n"
+        "transceivers:\n"
+        "  sr: {wavelength_nm: 850, tx_min_dbm: -7.3, tx_max_dbm: -1.0,\n"
+        "       rx_sensitivity_dbm: -9.9, rx_overload_dbm: -1.0}\n"
+        "instruments:\n"
+        "  - {id: SRC-1, kind: light-source, model: T-1, serial: '00417', calibration_due: 2030-03-01}\n"
+        "  - {id: PM-1, kind: power-meter}\n"
+    ),
+    "links.csv": (
+        "link_id,end_a,end_b,fiber_type,length_m,strands\n"
+        "L1,Room 1,Room 2,OM4,120,2\n"
+        "L2,Room 1,Hut 3,OS2,1500,1\n"
+    ),
+    "results/day1.csv": (
+        "link_id,strand,wavelength_nm,direction,loss_db,tested_at,instrument\n"
+        "L1,1,850,ab,1.20,2030-01-15T09:00,SRC-1;PM-1\n"
+        "L2,1,1310,ab,1.05,2030-01-15T10:00,SRC-1\n"
+    ),
+}
+
+
+@pytest.fixture
+def make_project(tmp_path: Path) -> Callable[[dict[str, str | bytes | None]], Path]:
+    """Write MINIMAL_PROJECT into tmp_path/project; ``files`` (text or bytes) replace or add files."""
+
+    def make(files: dict[str, str | bytes | None] | None = None) -> Path:
+        root = tmp_path / "project"
+        merged = {**MINIMAL_PROJECT, **(files or {})}
+        for name, content in merged.items():
+            if content is None:
+                continue
+            path = root / name
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(content.encode("utf-8") if isinstance(content, str) else content)
+        root.mkdir(parents=True, exist_ok=True)
+        return root
+
+    return make
