@@ -67,9 +67,9 @@ def margin_chart(links: Sequence[LinkView]) -> str:
         fig = _figure(6.6, 2.7)
         ax = fig.add_axes((0.09, 0.2, 0.89, 0.7))
         ax.axhline(0.0, color="#111111", linewidth=1.2)
-        ax.text(len(groups) - 0.5 if groups else 0.5, 0.0, " " + TEXT["chart_zero"], va="center",
-                ha="left", fontsize=7, clip_on=False)
+        ax.text(-0.58, 0.0, TEXT["chart_zero"], va="bottom", ha="left", fontsize=7)
         for index, (name, values) in enumerate(groups.items()):
+            values = sorted(values)  # smallest margin at the left of its column
             count = len(values)
             spread = [index + 0.6 * ((n + 0.5) / count - 0.5) for n in range(count)]
             within = [(x, m) for x, (m, over) in zip(spread, values) if not over]

@@ -30,11 +30,11 @@ from .messages import TEXT, format_db, msg
 from .viewmodel import BudgetView, LinkView, ResultView
 
 WIDTH: Final = 640
-HEIGHT: Final = 230
+HEIGHT: Final = 236
 PLOT_LEFT: Final = 46
 PLOT_RIGHT: Final = 430
-PLOT_TOP: Final = 14
-PLOT_BOTTOM: Final = 186
+PLOT_TOP: Final = 24
+PLOT_BOTTOM: Final = 194
 COLUMN_LEFT: Final = 462
 COLUMN_WIDTH: Final = 56
 COLUMN_GAP: Final = 28
@@ -147,7 +147,7 @@ def _axes(canvas: _Canvas, step_db: float) -> None:
         tick += step_db
     canvas.add(f'<line x1="{PLOT_LEFT}" y1="{PLOT_TOP}" x2="{PLOT_LEFT}" y2="{PLOT_BOTTOM}" class="axis"/>')
     canvas.add(f'<line x1="{PLOT_LEFT}" y1="{PLOT_BOTTOM}" x2="{PLOT_RIGHT}" y2="{PLOT_BOTTOM}" class="axis"/>')
-    canvas.text(12, PLOT_TOP + 4, TEXT["dg_axis"], "tick", "middle")
+    canvas.text(PLOT_LEFT - 4, PLOT_TOP - 8, TEXT["dg_axis"], "tick", "end")
     canvas.text(PLOT_LEFT, PLOT_BOTTOM + 30, TEXT["dg_start"], "end-label", "middle")
     canvas.text(PLOT_RIGHT, PLOT_BOTTOM + 30, TEXT["dg_finish"], "end-label", "middle")
 
@@ -190,7 +190,7 @@ def _column(canvas: _Canvas, index: int, budget: BudgetView, results: list[Resul
     canvas.add(f'<line x1="{PLOT_RIGHT}" y1="{y_limit}" x2="{left}" y2="{y_limit}" '
                f'stroke="{colour}" stroke-width="0.8"{dash_attr}/>')
     canvas.add(f'<line x1="{left - 3}" y1="{y_limit}" x2="{right + 3}" y2="{y_limit}" class="limit"/>')
-    canvas.text(right + 2, y_limit - 3, format_db(budget.total_db), "value", "start")
+    canvas.text((left + right) / 2, PLOT_TOP - 5, msg("dg_limit", value=format_db(budget.total_db)), "value", "middle")
     canvas.text((left + right) / 2, PLOT_BOTTOM + 14, msg("budget_wavelength", wavelength=budget.wavelength_nm), "joint", "middle")
     count = len(results)
     for n, result in enumerate(results):
@@ -256,7 +256,7 @@ def loss_diagram(link: LinkView) -> str:
 
 def _legend_line(canvas: _Canvas, index: int, budget: BudgetView, style: tuple[str, str]) -> None:
     colour, dash = style
-    x, y = PLOT_LEFT + 10 + index * 80, PLOT_TOP + 6
+    x, y = PLOT_LEFT + 8 + index * 80, PLOT_TOP - 8
     dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
     canvas.add(f'<line x1="{x}" y1="{y}" x2="{x + 22}" y2="{y}" stroke="{colour}" stroke-width="1.6"{dash_attr}/>')
     canvas.text(x + 26, y + 3, msg("budget_wavelength", wavelength=budget.wavelength_nm), "wl")

@@ -43,9 +43,9 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "overall_empty": "The project lists no links.",
     "overall_all_pass": "Every one of the {links} links meets the limit set on every required result.",
     "overall_not_ready": (
-        "{pass_} of {links} links meet the limit set. {fail} fail and {incomplete} lack "
-        "required results: the work is not ready for acceptance until they are resolved "
-        "(see \u201cLinks needing action\u201d)."
+        "{pass_} of {links} links meet the limit set; failing: {fail}; incomplete (required "
+        "results missing): {incomplete}. The work is not ready for acceptance until these "
+        "are resolved (see \u201cLinks needing action\u201d)."
     ),
     "signoff_heading": "Acceptance",
     "signoff_intro": (
@@ -101,8 +101,9 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # charts
     "charts_heading": "Margins at a glance",
     "charts_intro": (
-        "Each dot is one judged result; its height is the margin to the limit (above the zero "
-        "line: within the limit). Filled triangles mark results over the limit."
+        "Each mark is one judged result; its height is its margin to the limit (above the "
+        "limit line: within the limit). Within each column the results are sorted, smallest "
+        "margin on the left. Filled triangles mark results over the limit."
     ),
     "chart_margin_axis": "margin to limit [dB]",
     "chart_margin_title": "Margins by fiber type and wavelength",
@@ -130,7 +131,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "none": "none",
     "plant_inside": "inside plant",
     "plant_outside": "outside plant (incl. indoor-outdoor)",
-    "link_verdict_label": "Link verdict",
+    "link_kind": "Link sheet",
     "worst_margin_label": "worst margin",
     "judged_count": "{judged} results judged",
     "budget_heading": "Allowed loss, term by term",
@@ -148,7 +149,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "results_heading": "Measured results",
     "results_none": "No valid result was recorded for this link.",
     "set_aside_heading": "Results set aside",
-    "set_aside_superseded": "superseded by a later test of the same strand, wavelength and direction",
+    "set_aside_superseded": "replaced by a later test of the same strand, \u03bb and direction",
     "set_aside_invalid": "negative loss beyond the uncertainty: the reference was bad; repeat the test",
     "missing_heading": "Required results not available",
     "missing_not-tested": "not tested",
@@ -315,9 +316,9 @@ def format_km(length_km: float) -> str:
 
 
 def format_date(value: object, with_time: bool = False) -> str:
-    """A date (or date-time) as ISO 8601: 2026-04-14 or 2026-04-14 08:40."""
+    """A date (or date-time) as ISO 8601: 2026-04-14 or 2026-04-14 08:40 (midnight: date only)."""
     if value is None:
         return TEXT["not_given"]
-    if with_time and hasattr(value, "hour"):
+    if with_time and hasattr(value, "hour") and (value.hour, value.minute, value.second) != (0, 0, 0):
         return f"{value:%Y-%m-%d %H:%M}"
     return f"{value:%Y-%m-%d}"

@@ -56,13 +56,14 @@ class ReportDocument:
 
 
 def css_string(text: object) -> Markup:
-    """``text`` as a quoted CSS string, every character outside [A-Za-z0-9 ] hex-escaped.
+    """``text`` as a quoted CSS string, every character outside [A-Za-z0-9 ] hex-escaped
+    (six digits and a terminating space, so a following blank is kept).
 
     Safe inside a ``<style>`` element: no quote, backslash, ``<`` or newline survives.
     """
     out = []
     for char in str(text):
-        out.append(char if char.isascii() and (char.isalnum() or char == " ") else f"\\{ord(char):06x}")
+        out.append(char if char.isascii() and (char.isalnum() or char == " ") else f"\\{ord(char):06x} ")
     return Markup('"' + "".join(out) + '"')
 
 

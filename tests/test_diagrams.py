@@ -1,0 +1,108 @@
+"""The per-link loss diagram (hand-written SVG) and the project charts."""
+from __future__ import annotations
+
+import math
+import xml.etree.ElementTree as ET
+from datetime import datetime
+
+import pytest
+
+from builders import make_link, make_project
+from reportgen import charts
+from reportgen.diagrams import build_steps, loss_diagram
+from reportgen.judge import judge_project
+from reportgen.model import Component, FiberType, LimitSet, ReferenceMethod
+from reportgen.viewmodel import build_view
+
+SVG = "{http://www.w3.org/2000/svg}"
+NOW = datetime(2030, 2, 1, 12, 0)
+
+
+def _view(links, results, **kwargs):
+    project = make_project(links, results, **kwargs)
+    return build_view(project, judge_project(project), now=NOW, version="test")
+
+
+def test_staircase_ends_at_the_hand_worked_limit():
+    # Hand-worked from the formula with tests/builders.TEST_LIMITS (OM4 850 nm: 2.0 dB/km,
+    # 0.5 dB per connection, 0.1 dB per splice), one-cord (E = 2):
+    # 0.5 km x 2.0 + (2 + 2) x 0.5 + 2 x 0.1 = 1.0 + 2.0 + 0.2 = 3.2 dB.
+    view = _view([make_link("L1", connections=2, splices=2)], [])
+    budget = next(b for b in view.links[0].budgets if b.wavelength_nm == 850)
+    steps = build_steps(budget)
+    assert math.isclose(budget.total_db, 3.2, abs_tol=1e-9)
+    assert math.isclose(steps[-1].cumulative_db, budget.total_db, abs_tol=1e-9)
+    kinds = [s.kind for s in steps]
+    assert kinds[0] == "end" and kinds[-1] == "end"  # one-cord: both end connections
+    assert kinds.count("connection") == 2 and kinds.count("splice") == 2
+    assert math.isclose(sum(s.loss_db for s in steps if s.kind == "fiber"), 1.0, abs_tol=1e-9)
+    assert all(b.cumulative_db >= a.cumulative_db for a, b in zip(steps, steps[1:]))
+
+
+@pytest.mark.parametrize(("method", "ends"), [
+    # End connections left in the measurement, IEC 61280-4-1/-4-2 as copied in budget.py.
+    (ReferenceMethod.ONE_CORD, 2), (ReferenceMethod.TWO_CORD, 1), (ReferenceMethod.THREE_CORD, 0)])
+def test_staircase_counts_the_end_connections_of_the_method(method, ends):
+    view = _view([make_link("L1")], [], method=method)
+    budget = view.links[0].budgets[0]
+    steps = build_steps(budget)
+    assert sum(s.loss_db for s in steps if s.kind == "end") == pytest.approx(ends * 0.5)
+    assert steps[-1].cumulative_db == pytest.approx(budget.total_db)
+
+
+def test_many_joints_are_one_step_per_kind_and_still_add_up():
+    # Hand-worked: OS2 1310 nm inside 0.4 dB/km x 2 km = 0.8; 40 splices x 0.1 = 4.0;
+    # part 3.5; ends 2 x 0.5 = 1.0; total 9.3 dB.
+    link = make_link("L1", fiber_type=FiberType.OS2, length_m=2000.0,
+                     splices=40, components=("p",))
+    view = _view([link], [], components={"p": Component("p", 3.5)})
+    budget = next(b for b in view.links[0].budgets if b.wavelength_nm == 1310)
+    steps = build_steps(budget)
+    assert budget.total_db == pytest.approx(9.3)
+    assert steps[-1].cumulative_db == pytest.approx(9.3)
+    assert [s.kind for s in steps].count("splice") == 1
+
+
+def test_diagram_svg_parses_and_marks_each_result_by_shape():
+    results = [dict(wavelength_nm=850, loss_db=1.0), dict(wavelength_nm=850, direction="ba", loss_db=9.0),
+               dict(wavelength_nm=1300, loss_db=1.0)]
+    view = _view([make_link("L1")], results)
+    svg = loss_diagram(view.links[0])
+    root = ET.fromstring(svg)
+    assert root.tag == f"{SVG}svg"
+    within = [c for c in root.iter(f"{SVG}circle") if c.get("class") == "mark-within"]
+    over = [p for p in root.iter(f"{SVG}path") if p.get("class") == "mark-over"]
+    assert (len(within), len(over)) == (2, 1)
+    texts = "".join(t.text or "" for t in root.iter(f"{SVG}text"))
+    # Limits at 850 and 1300 nm, hand-worked: 0.5 x 2.0 + 2 x 0.5 = 2.00; 0.5 x 1.0 + 1.0 = 1.50.
+    assert "2.00" in texts and "1.50" in texts
+
+
+def test_diagram_escapes_component_ids_and_ids_are_unique_per_link():
+    evil = '<x onload="a">'
+    view = _view([make_link("L1", components=(evil,)), make_link("L2")], [],
+                 components={evil: Component(evil, 1.0)})
+    first, second = (loss_diagram(link) for link in view.links)
+    ET.fromstring(first)
+    assert "<x onload" not in first
+    assert 'id="link-l1-over"' in first and 'id="link-l2-over"' in second
+
+
+def test_no_budget_no_diagram():
+    # A limit set with no wavelength for OM4 gives no budget, hence no diagram.
+    empty = LimitSet(id="empty", title="t", source="s", connection_db=0.5, splice_db=0.1,
+                     attenuation_db_per_km={FiberType.OM4: {}})
+    view = _view([make_link("L1")], [], limits=empty)
+    assert loss_diagram(view.links[0]) == ""
+
+
+def test_charts_are_reproducible_svg_with_text_as_text():
+    view = _view([make_link("L1")], [dict(wavelength_nm=850, loss_db=1.0),
+                                     dict(wavelength_nm=850, direction="ba", loss_db=3.0)])
+    first, second = charts.margin_chart(view.links), charts.margin_chart(view.links)
+    assert first == second
+    assert "<dc:date>" not in first and "<text" in first  # svg.fonttype none keeps text
+    ET.fromstring(first)
+    bars = charts.verdict_chart(view.totals)
+    ET.fromstring(bars)
+    assert charts.svg_data_uri(bars).startswith("data:image/svg+xml;base64,")

@@ -1,0 +1,187 @@
+"""Rendering the report: content, escaping, strictness, template overrides, PDF parts."""
+from __future__ import annotations
+
+import dataclasses
+import re
+import xml.etree.ElementTree as ET
+from datetime import datetime
+from html.parser import HTMLParser
+from pathlib import Path
+
+import jinja2
+import pytest
+
+from builders import make_link, make_project
+from reportgen import messages
+from reportgen.judge import judge_project
+from reportgen.model import Paper, ReportOptions
+from reportgen.render import build_report, css_string
+from reportgen.viewmodel import link_anchors
+
+NOW = datetime(2030, 2, 1, 12, 0)
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
+        "track", "wbr"}
+HOSTILE_SCRIPT = "<script>alert(1)</script>"
+HOSTILE_ATTR = '"><img src=x onerror=alert(1)>'
+HOSTILE_TEMPLATE = "{{ 7*7 }}"
+
+
+class _TagBalance(HTMLParser):
+    """Fails on a closing tag that does not match the open one (SVG self-closing allowed)."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.ids: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.ids += [value for name, value in attrs if name == "id"]
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.ids += [value for name, value in attrs if name == "id"]
+
+    def handle_endtag(self, tag):
+        assert self.stack and self.stack[-1] == tag, f"</{tag}> closes <{self.stack[-1:]}>"
+        self.stack.pop()
+
+
+def well_formed(html: str) -> list[str]:
+    """Parse; check tag balance; every inline SVG parses as XML. Returns the element ids."""
+    parser = _TagBalance()
+    parser.feed(html)
+    parser.close()
+    assert parser.stack == []
+    for svg in re.findall(r"<svg\b.*?</svg>", html, flags=re.S):
+        ET.fromstring(svg)
+    return parser.ids
+
+
+def mixed_project(**kwargs):
+    """L-PASS passes, L-FAIL fails at 850 nm, L-INC lacks results (limits: builders.TEST_LIMITS)."""
+    links = [make_link("L-PASS"), make_link("L-FAIL"), make_link("L-INC")]
+    results = []
+    for link_id, loss in (("L-PASS", 1.0), ("L-FAIL", 2.5)):
+        for wl in (850, 1300):
+            for direction in ("ab", "ba"):
+                results.append(dict(link_id=link_id, wavelength_nm=wl, direction=direction,
+                                    loss_db=loss if wl == 850 else 1.0))
+    results.append(dict(link_id="L-INC", wavelength_nm=850, loss_db=1.0))
+    return make_project(links, results, **kwargs)
+
+
+def render(project, **kwargs):
+    return build_report(project, judge_project(project), now=NOW, version="9.9-test", **kwargs)
+
+
+def test_every_link_id_and_verdict_appears_and_html_is_well_formed():
+    doc = render(mixed_project())
+    ids = well_formed(doc.html)
+    assert len(ids) == len(set(ids)), "element ids must be unique"
+    for link_id, verdict in (("L-PASS", "pass"), ("L-FAIL", "fail"), ("L-INC", "incomplete")):
+        assert link_id in doc.html
+        sheet = doc.html.split(f'id="{link_anchors([link_id])[link_id]}"')[1].split("</section>")[0]
+        assert f"&#8202;{verdict}</span>" in sheet
+    # Numbers: 0.5 km x 2.0 dB/km + 2 x 0.5 dB = 2.00 dB limit at 850 nm (hand-worked from
+    # the formula, builders.TEST_LIMITS); L-FAIL's 2.50 dB gives a margin of -0.50 dB.
+    assert ">2.00<" in doc.html and ">-0.50<" in doc.html
+    assert "9.9-test" in doc.html and "2030-02-01" in doc.html
+
+
+def test_parts_follow_the_pdf_contract():
+    project = mixed_project()
+    doc = render(project)
+    assert len(doc.bodies) == 2  # one run of link sheets, then the appendix
+    front = doc.front({"link-l-pass": 7, "link-l-fail": 8, "link-l-inc": 9, "appendix": 10}, 12)
+    for part in (front, *doc.bodies):
+        assert part.startswith("<!DOCTYPE html>") and "size: A4" in part
+        well_formed(part)
+    assert 'id="link-l-fail"' in doc.bodies[0] and 'data-bookmark-level="2"' in doc.bodies[0]
+    assert 'id="appx-safety"' in doc.bodies[-1]
+    assert '<a href="#link-l-fail">8</a>' in front
+    assert "@bottom-right" not in doc.html  # left empty for the page stamp
+    letter = render(dataclasses.replace(project, report=ReportOptions(paper=Paper.LETTER)))
+    assert "size: letter" in letter.bodies[0]
+
+
+def test_same_input_same_html():
+    assert render(mixed_project()).html == render(mixed_project()).html
+
+
+def test_hostile_text_is_escaped_everywhere():
+    links = [make_link(HOSTILE_SCRIPT, end_a=HOSTILE_ATTR, end_b=HOSTILE_TEMPLATE,
+                       notes=HOSTILE_SCRIPT + HOSTILE_TEMPLATE)]
+    project = make_project(links, [dict(link_id=HOSTILE_SCRIPT, wavelength_nm=850, loss_db=1.0,
+                                        technician=HOSTILE_ATTR, note=HOSTILE_SCRIPT)])
+    info = dataclasses.replace(project.info, title=HOSTILE_SCRIPT + HOSTILE_ATTR,
+                               customer=HOSTILE_TEMPLATE)
+    doc = render(dataclasses.replace(project, info=info))
+    for html in (doc.html, doc.front({}, 1), *doc.bodies):
+        assert "<script" not in html
+        assert "<img src=x" not in html
+        well_formed(html)
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in doc.html
+    assert HOSTILE_TEMPLATE in doc.html  # printed as text, never evaluated
+    sheet = doc.html.split('id="link-script-alert-1-script"')[1].split("</section>")[0]
+    assert HOSTILE_TEMPLATE in sheet and ">49<" not in sheet
+
+
+def test_css_string_cannot_leave_the_style_element():
+    text = css_string('a"b</style><script>x\\ y')
+    assert all(ch not in text[1:-1] for ch in '"<>\\\n') or "\\" in text
+    assert "</style>" not in text and '"b' not in text
+
+
+def test_zero_results_one_link_and_a_failing_link_render():
+    empty = render(make_project([make_link("ONLY")], []))
+    assert "ONLY" in empty.html and messages.TEXT["no_results_dates"] in empty.html
+    assert messages.TEXT["results_none"] in empty.html
+    failing = render(make_project([make_link("F1")], [dict(link_id="F1", wavelength_nm=850, loss_db=9.0)]))
+    assert "F1" in failing.html and messages.TEXT["action_heading"] in failing.html
+
+
+def test_misspelt_template_variable_raises(tmp_path: Path):
+    (tmp_path / "report.html.j2").write_text("<p>{{ report.titel }}</p>", encoding="utf-8")
+    project = dataclasses.replace(mixed_project(), report=ReportOptions(templates=tmp_path))
+    with pytest.raises(jinja2.UndefinedError):
+        render(project)
+
+
+def test_project_template_replaces_one_file_and_falls_back_for_others(tmp_path: Path):
+    (tmp_path / "partials").mkdir()
+    (tmp_path / "partials" / "appendix.html.j2").write_text(
+        '<section id="appendix"><p>OUR OWN APPENDIX for {{ report.title }}</p></section>',
+        encoding="utf-8")
+    project = dataclasses.replace(mixed_project(), report=ReportOptions(templates=tmp_path))
+    doc = render(project)
+    assert "OUR OWN APPENDIX for T" in doc.html
+    assert messages.SAFETY[0] not in doc.html  # ours replaced
+    assert 'id="link-l-fail"' in doc.html  # the other files still ours
+
+
+def test_link_anchors_are_unique_and_safe():
+    anchors = link_anchors(["A/1", "a 1", "a-1", "", "<x>"])
+    assert list(anchors.values()) == ["link-a-1", "link-a-1-2", "link-a-1-3", "link-x", "link-x-2"]
+
+
+def test_number_formats():
+    # Two decimals for dB everywhere; no negative zero (common practice in test reports).
+    assert messages.format_db(-0.004) == "0.00"
+    assert messages.format_db(1.25) == "1.25" and messages.format_db(-0.5) == "-0.50"
+    assert messages.format_db(None) == messages.TEXT["no_margin"]
+    # 1 ft = 0.3048 m exactly (international foot, 1959): 30.48 m is 100 ft.
+    assert messages.format_length(30.48, "ft") == "100\u00a0ft"
+    assert messages.format_length(79.94) == "79.9\u00a0m"
+    assert messages.PAGE_LABEL.format(page=3, pages=9) == "Page 3 of 9"
+
+
+def test_one_small_pdf_renders_with_the_link_text():
+    weasyprint = pytest.importorskip("weasyprint")
+    pypdf = pytest.importorskip("pypdf")
+    import io
+
+    doc = render(make_project([make_link("PDF-1")], [dict(link_id="PDF-1", wavelength_nm=850, loss_db=9.0)]))
+    pdf = pypdf.PdfReader(io.BytesIO(weasyprint.HTML(string=doc.bodies[0]).write_pdf()))
+    text = "".join(page.extract_text() or "" for page in pdf.pages)
+    assert "PDF-1" in text and "fail" in text
