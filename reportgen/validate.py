@@ -14,6 +14,7 @@ from typing import Final
 
 import pandas as pd
 
+from .applications import validate_application_ids
 from .csvread import CsvTable, read_csv
 from .errors import InputError, InputProblem
 from .load import read_yaml
@@ -73,6 +74,7 @@ def load_project(project_dir: Path) -> Project:
     links, all_link_ids, link_problems = _load_links(root, settings)
     problems += _wavelength_coverage(settings, links)
     problems += link_problems
+    problems += validate_application_ids(links)
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
