@@ -67,8 +67,13 @@ def css_string(text: object) -> Markup:
     return Markup('"' + "".join(out) + '"')
 
 
+@functools.lru_cache(maxsize=8)
 def make_environment(project_templates: Path | None, length_unit: str = "m") -> jinja2.Environment:
-    """A strict Jinja environment: the project's templates first, ours as fallback per file."""
+    """A strict Jinja environment: the project's templates first, ours as fallback per file.
+
+    Cached (compiling the templates costs about half a second); the loaders still notice
+    edited template files. Callers must not modify the returned environment.
+    """
     loaders: list[jinja2.BaseLoader] = []
     if project_templates is not None:
         loaders.append(jinja2.FileSystemLoader(str(project_templates)))

@@ -26,7 +26,6 @@ from .limits import describe_rows
 from .model import Instrument, Link, LinkVerdict, Project, ResultVerdict
 
 LINKS_PER_PART: Final = 40  # link sheets per PDF body part (see ReportDocument.bodies)
-ACTION_ITEMS_SHOWN: Final = 6  # reasons listed per link in "needs action" before "and N more"
 
 _LOGO_TYPES: Final[Mapping[str, str]] = {
     ".svg": "image/svg+xml", ".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg",
