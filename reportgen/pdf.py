@@ -1,0 +1,167 @@
+"""Turn the report's HTML parts into one PDF, rendering the parts in parallel.
+
+One WeasyPrint render of a 2,000-page report takes about 6 minutes and 6 GB on a
+2-core machine, and layout work per page grows with the document. So the body parts
+are rendered separately in worker processes (a fresh process every few parts keeps
+memory flat) and merged with pypdf; what spans parts is rebuilt after the merge
+(:mod:`reportgen.pdf_merge`): page numbers, links between parts, the outline.
+
+The front matter (cover, contents, summary) shows page numbers, and its own length
+shifts them, so it is rendered last, repeatedly, until its page count and every page
+number it asked for are consistent. A first estimate is rendered while the workers
+are busy, so usually only one more render is needed afterwards.
+"""
+
+from __future__ import annotations
+
+import logging
+import multiprocessing
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from concurrent.futures import Future, ThreadPoolExecutor
+from datetime import datetime
+from pathlib import Path
+from typing import Final
+
+from .errors import ReportgenError
+from .pdf_layout import RenderedPart, render_indexed_part, render_part
+from .pdf_merge import assemble_pdf
+from .pdf_stamp import check_label_text
+
+LOGGER = logging.getLogger(__name__)
+
+FrontMatter = Callable[[Mapping[str, int], int], str]
+Progress = Callable[[int, int], None]
+
+PARTS_PER_WORKER_PROCESS: Final = 4   # then a fresh process: memory stays flat
+MAX_FRONT_RENDERS: Final = 6
+PROBE_PAGE_NUMBER: Final = 999        # stands for every page number in the first estimate
+
+
+class PageMap(Mapping[str, int]):
+    """Page of each anchor id, as given to the front matter; records what was looked up.
+
+    With ``fallback`` set (first estimate, before the bodies are laid out), unknown ids
+    read as ``fallback`` instead of raising :class:`KeyError`.
+    """
+
+    def __init__(self, known: Mapping[str, int], fallback: int | None = None) -> None:
+        self._known = dict(known)
+        self._fallback = fallback
+        self.used: dict[str, int] = {}
+
+    def __getitem__(self, anchor_id: str) -> int:
+        if anchor_id in self._known:
+            page = self._known[anchor_id]
+        elif self._fallback is not None:
+            page = self._fallback
+        else:
+            raise KeyError(anchor_id)
+        self.used[anchor_id] = page
+        return page
+
+    def __contains__(self, anchor_id: object) -> bool:
+        return anchor_id in self._known
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._known)
+
+    def __len__(self) -> int:
+        return len(self._known)
+
+
+def page_numbers(parts: Sequence[RenderedPart], first_page: int = 1) -> dict[str, int]:
+    """Map every anchor id in ``parts`` to its page number; the first occurrence wins."""
+    numbers: dict[str, int] = {}
+    page = first_page
+    for part in parts:
+        for anchor_id, anchor in part.anchors.items():
+            numbers.setdefault(anchor_id, page + anchor.page_index)
+        page += part.page_count
+    return numbers
+
+
+def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
+                   on_done: Callable[[int], None]) -> list[RenderedPart]:
+    tasks = [(index, html, str(root)) for index, html in enumerate(bodies)]
+    done: list[RenderedPart | None] = [None] * len(tasks)
+    context = multiprocessing.get_context("forkserver")
+    context.set_forkserver_preload(["reportgen.pdf_layout"])
+    with context.Pool(min(workers, len(tasks)) or 1,
+                      maxtasksperchild=PARTS_PER_WORKER_PROCESS) as pool:
+        for count, (index, part) in enumerate(
+                pool.imap_unordered(render_indexed_part, tasks), start=1):
+            done[index] = part
+            on_done(count)
+    return [part for part in done if part is not None]
+
+
+def _probe_front(front: FrontMatter, root: Path) -> RenderedPart:
+    """Render the front matter once with placeholder page numbers, to learn its length."""
+    return render_part(front(PageMap({}, PROBE_PAGE_NUMBER), PROBE_PAGE_NUMBER), root)
+
+
+def _settle_front(front: FrontMatter, bodies: Sequence[RenderedPart], root: Path,
+                  estimate: RenderedPart | None) -> RenderedPart:
+    """Render the front matter until its length and the numbers it used are consistent."""
+    body_pages = sum(part.page_count for part in bodies)
+    front_pages = estimate.page_count if estimate else 1
+    front_numbers = page_numbers([estimate]) if estimate else {}
+    for attempt in range(1, MAX_FRONT_RENDERS + 1):
+        known = {**page_numbers(bodies, front_pages + 1), **front_numbers}
+        asked = PageMap(known)
+        part = render_part(front(asked, front_pages + body_pages), root)
+        actual = {**page_numbers(bodies, part.page_count + 1), **page_numbers([part])}
+        LOGGER.debug("front matter render %d: %d pages (assumed %d)",
+                     attempt, part.page_count, front_pages)
+        if part.page_count == front_pages and all(
+                actual.get(anchor_id) == page for anchor_id, page in asked.used.items()):
+            return part
+        front_pages, front_numbers = part.page_count, page_numbers([part])
+    raise ReportgenError(
+        f"the front matter's page numbers did not settle after {MAX_FRONT_RENDERS} renders "
+        f"(last length {front_pages} pages)")
+
+
+def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: str,
+               page_label: str = "Page {page} of {pages}", created: datetime,
+               workers: int = 2, progress: Progress | None = None) -> bytes:
+    """Render the front matter and body parts into one PDF and return its bytes.
+
+    Parameters
+    ----------
+    front
+        ``front(page_of, total_pages)`` returns the front matter as a complete HTML
+        document, given the 1-based page of every anchor id and the page count.
+    bodies
+        Complete HTML documents, in report order, after the front matter.
+    root
+        Project folder: the only place (with ``data:`` URIs) resources are read from.
+    title, created
+        Document title and creation date written to the PDF's metadata.
+    page_label
+        Stamped at the bottom right of every page, with ``{page}`` and ``{pages}``.
+    workers
+        Worker processes rendering the bodies.
+    progress
+        Called as ``progress(done_parts, total_parts)``; the parts are the bodies
+        plus one last step (front matter and assembly).
+    """
+    if workers < 1:
+        raise ValueError(f"workers must be at least 1 (got {workers})")
+    check_label_text([page_label.format(page=0, pages=0)])  # fail before the long work
+    total_steps = len(bodies) + 1
+
+    def report(done: int) -> None:
+        if progress is not None:
+            progress(done, total_steps)
+
+    report(0)
+    with ThreadPoolExecutor(max_workers=1) as thread:
+        estimate: Future[RenderedPart] = thread.submit(_probe_front, front, root)
+        body_parts = _render_bodies(bodies, root, workers, report) if bodies else []
+        first_front = estimate.result()
+    front_part = _settle_front(front, body_parts, root, first_front)
+    pdf = assemble_pdf([front_part, *body_parts], title=title, page_label=page_label,
+                       created=created)
+    report(total_steps)
+    return pdf

@@ -1,0 +1,145 @@
+"""Merge rendered parts into one PDF: pages, page numbers, links, outline, metadata.
+
+Every part was rendered on its own (see :mod:`reportgen.pdf_layout`), with its
+internal links, named destinations and outline left out. Here the pages are copied
+in order with pypdf, then the pieces that span parts are rebuilt from the recorded
+positions: a GoTo link annotation for every ``<a href="#id">`` whose target exists
+somewhere in the report, an outline entry for every bookmark element, and the
+"Page X of Y" stamp (:mod:`reportgen.pdf_stamp`).
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Sequence
+from datetime import datetime
+from typing import Final
+
+import pypdf
+import weasyprint
+from pypdf import PdfReader, PdfWriter
+from pypdf.generic import (
+    ArrayObject,
+    DictionaryObject,
+    Fit,
+    FloatObject,
+    IndirectObject,
+    NameObject,
+    NullObject,
+    NumberObject,
+    TextStringObject,
+)
+
+from . import __version__
+from .pdf_layout import Anchor, PageFrame, RenderedPart
+from .pdf_stamp import Stamper, make_stamp_font
+
+CREATOR: Final = f"reportgen {__version__}"
+PRODUCER: Final = f"WeasyPrint {weasyprint.__version__}, pypdf {pypdf.__version__}"
+
+
+def absolute_anchors(parts: Sequence[RenderedPart]) -> dict[str, tuple[int, Anchor]]:
+    """Map each anchor id to its 0-based page in the merged report (first occurrence wins)."""
+    found: dict[str, tuple[int, Anchor]] = {}
+    offset = 0
+    for part in parts:
+        for name, anchor in part.anchors.items():
+            found.setdefault(name, (offset + anchor.page_index, anchor))
+        offset += part.page_count
+    return found
+
+
+def pdf_date(moment: datetime) -> str:
+    """Format ``moment`` as a PDF date string (ISO 32000-1, 7.9.4), e.g. D:20300115093000Z."""
+    text = moment.strftime("D:%Y%m%d%H%M%S")
+    offset = moment.utcoffset()
+    if offset is None:
+        return text
+    minutes = int(offset.total_seconds() // 60)
+    if minutes == 0:
+        return text + "Z"
+    sign = "+" if minutes > 0 else "-"
+    return text + f"{sign}{abs(minutes) // 60:02d}'{abs(minutes) % 60:02d}'"
+
+
+def _link_annotation(link_rect_pt: tuple[float, float, float, float], page: IndirectObject,
+                     anchor: Anchor) -> DictionaryObject:
+    return DictionaryObject({
+        NameObject("/Type"): NameObject("/Annot"),
+        NameObject("/Subtype"): NameObject("/Link"),
+        NameObject("/Rect"): ArrayObject([FloatObject(round(v, 2)) for v in link_rect_pt]),
+        NameObject("/Border"): ArrayObject([NumberObject(0)] * 3),
+        NameObject("/Dest"): ArrayObject([
+            page, NameObject("/XYZ"), FloatObject(round(anchor.x_pt, 2)),
+            FloatObject(round(anchor.y_pt, 2)), NullObject()]),
+    })
+
+
+def add_links(writer: PdfWriter, frames: Sequence[PageFrame],
+              anchors: dict[str, tuple[int, Anchor]]) -> int:
+    """Add a GoTo link annotation for every internal link whose target exists; return the count."""
+    references = [page.indirect_reference for page in writer.pages]
+    added = 0
+    for page, frame in zip(writer.pages, frames):
+        annotations = []
+        for link in frame.links:
+            if link.target not in anchors:
+                continue
+            target_index, anchor = anchors[link.target]
+            annotation = _link_annotation(link.rect_pt, references[target_index], anchor)
+            annotation[NameObject("/P")] = page.indirect_reference
+            annotations.append(writer._add_object(annotation))
+        if annotations:
+            existing = page.get("/Annots")
+            existing = list(existing.get_object()) if existing is not None else []
+            page[NameObject("/Annots")] = ArrayObject(existing + annotations)
+            added += len(annotations)
+    return added
+
+
+def add_outline(writer: PdfWriter, parts: Sequence[RenderedPart],
+                anchors: dict[str, tuple[int, Anchor]]) -> None:
+    """Add the bookmarks of all parts, in order, as a two-level outline."""
+    parent = None
+    for part in parts:
+        for bookmark in part.bookmarks:
+            if bookmark.anchor_id not in anchors:
+                continue
+            page_index, anchor = anchors[bookmark.anchor_id]
+            item = writer.add_outline_item(
+                title=bookmark.label, page_number=page_index,
+                parent=parent if bookmark.level > 1 else None,
+                fit=Fit.xyz(left=round(anchor.x_pt, 2), top=round(anchor.y_pt, 2)))
+            if bookmark.level == 1:
+                parent = item
+    if parts and any(part.bookmarks for part in parts):
+        writer.page_mode = "/UseOutlines"
+
+
+def assemble_pdf(parts: Sequence[RenderedPart], *, title: str, page_label: str,
+                 created: datetime, compact: bool = True) -> bytes:
+    """Merge ``parts`` in order and return the finished PDF's bytes."""
+    writer = PdfWriter()
+    frames: list[PageFrame] = []
+    for part in parts:
+        for page in PdfReader(io.BytesIO(part.pdf)).pages:
+            writer.add_page(page)
+        frames.extend(part.pages)
+    total = len(frames)
+    texts = [page_label.format(page=number, pages=total) for number in range(1, total + 1)]
+    stamper = Stamper(writer, make_stamp_font(writer, texts))
+    for page, text, frame in zip(writer.pages, texts, frames):
+        stamper.stamp(page, text, frame)
+    anchors = absolute_anchors(parts)
+    add_links(writer, frames, anchors)
+    add_outline(writer, parts, anchors)
+    date = pdf_date(created)
+    writer.add_metadata({
+        "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
+        "/CreationDate": date, "/ModDate": date,
+    })
+    if compact:
+        writer.compress_identical_objects()
+    buffer = io.BytesIO()
+    writer.write(buffer)
+    return buffer.getvalue()

@@ -1,0 +1,223 @@
+"""Stamp "Page X of Y" on every page of the merged report.
+
+The parts are rendered separately, so no part knows its absolute page numbers or
+the total; the numbers are written afterwards, as one small content stream per page
+appended by pypdf. The text is set in DejaVu Sans, subset to the characters used and
+embedded once (a simple TrueType font, WinAnsi encoding). If no DejaVu Sans font file
+is found, the stamp falls back to the non-embedded base-14 Helvetica, which every PDF
+viewer provides but which is not archival.
+
+Each page's original content is wrapped in ``q … Q`` so that the graphics state a
+part leaves behind (WeasyPrint flips the y axis) cannot move the stamp.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import shutil
+import subprocess
+from collections.abc import Iterable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Final
+
+from fontTools import subset
+from fontTools.ttLib import TTFont
+from pypdf import PdfWriter
+from pypdf.generic import (
+    ArrayObject,
+    DecodedStreamObject,
+    DictionaryObject,
+    IndirectObject,
+    NameObject,
+    NumberObject,
+    StreamObject,
+)
+
+from .pdf_layout import PageFrame
+
+STAMP_FONT_SIZE_PT: Final = 8.0
+STAMP_FONT_RESOURCE: Final = "/RgStampFont"
+STAMP_ENCODING: Final = "cp1252"  # WinAnsiEncoding
+FALLBACK_ADVANCE_EM: Final = 0.556  # Helvetica's digit width; the right edge is approximate
+CAP_HEIGHT_EM: Final = 0.73
+DEJAVU_CANDIDATES: Final = (
+    "/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf",
+    "/usr/share/fonts/dejavu/DejaVuSans.ttf",
+    "/usr/share/fonts/TTF/DejaVuSans.ttf",
+    "/usr/local/share/fonts/DejaVuSans.ttf",
+    "/Library/Fonts/DejaVuSans.ttf",
+)
+
+
+@dataclass(frozen=True)
+class StampFont:
+    """A font resource in the writer and the advance width of each character."""
+
+    reference: IndirectObject
+    advance_em: dict[str, float]
+    embedded: bool
+
+    def width_pt(self, text: str, size_pt: float) -> float:
+        return sum(self.advance_em.get(char, FALLBACK_ADVANCE_EM) for char in text) * size_pt
+
+
+def find_dejavu_sans() -> Path | None:
+    """Return the path of DejaVuSans.ttf, from known places or fontconfig, or ``None``."""
+    for candidate in DEJAVU_CANDIDATES:
+        if Path(candidate).is_file():
+            return Path(candidate)
+    if shutil.which("fc-match"):
+        found = subprocess.run(
+            ["fc-match", "--format=%{file}", "DejaVu Sans:style=Book"],
+            capture_output=True, text=True, check=False).stdout.strip()
+        if found.endswith("DejaVuSans.ttf") and Path(found).is_file():
+            return Path(found)
+    return None
+
+
+def check_label_text(texts: Iterable[str]) -> str:
+    """Return the sorted characters of ``texts``; they must all be in WinAnsi (cp1252)."""
+    chars = sorted(set("".join(texts)))
+    for char in chars:
+        try:
+            char.encode(STAMP_ENCODING)
+        except UnicodeEncodeError:
+            raise ValueError(
+                f"page label character {char!r} is not supported by the page-number stamp "
+                f"(expected characters of the Windows-1252 set)") from None
+    return "".join(chars)
+
+
+def _subset_tag(chars: str) -> str:
+    digest = hashlib.sha256(chars.encode("utf-8")).digest()
+    return "".join(chr(ord("A") + byte % 26) for byte in digest[:6])
+
+
+def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
+    font = TTFont(font_path, recalcTimestamp=False)  # keep the output reproducible
+    units_per_em = font["head"].unitsPerEm
+    cmap = font.getBestCmap()
+    missing = [char for char in chars if ord(char) not in cmap and char != " "]
+    if missing:
+        raise ValueError(f"{font_path.name} has no glyph for {missing!r}")
+    advance_em = {char: font["hmtx"][cmap[ord(char)]][0] / units_per_em
+                  for char in chars if ord(char) in cmap}
+    options = subset.Options()
+    options.layout_features = []
+    options.name_IDs = ["*"]
+    options.notdef_outline = True
+    options.drop_tables += ["FFTM"]  # FontForge timestamps: not needed, not subsettable
+    subsetter = subset.Subsetter(options)
+    subsetter.populate(unicodes=[ord(char) for char in chars])
+    subsetter.subset(font)
+    buffer = io.BytesIO()
+    font.save(buffer)
+    file_stream = StreamObject()
+    file_stream.set_data(buffer.getvalue())
+    file_stream = file_stream.flate_encode()
+    file_stream[NameObject("/Length1")] = NumberObject(len(buffer.getvalue()))
+
+    head = font["head"]
+    scale = 1000 / units_per_em
+    base_font = NameObject(f"/{_subset_tag(chars)}+DejaVuSans")
+    descriptor = DictionaryObject({
+        NameObject("/Type"): NameObject("/FontDescriptor"),
+        NameObject("/FontName"): base_font,
+        NameObject("/Flags"): NumberObject(32),  # nonsymbolic
+        NameObject("/FontBBox"): ArrayObject(
+            [NumberObject(round(value * scale))
+             for value in (head.xMin, head.yMin, head.xMax, head.yMax)]),
+        NameObject("/ItalicAngle"): NumberObject(0),
+        NameObject("/Ascent"): NumberObject(round(font["hhea"].ascent * scale)),
+        NameObject("/Descent"): NumberObject(round(font["hhea"].descent * scale)),
+        NameObject("/CapHeight"): NumberObject(round(CAP_HEIGHT_EM * 1000)),
+        NameObject("/StemV"): NumberObject(80),
+        NameObject("/FontFile2"): writer._add_object(file_stream),
+    })
+    codes = [char.encode(STAMP_ENCODING)[0] for char in chars]
+    first, last = min(codes), max(codes)
+    widths = [0] * (last - first + 1)
+    for char, code in zip(chars, codes):
+        widths[code - first] = round(advance_em.get(char, 0) * 1000)
+    font_dict = DictionaryObject({
+        NameObject("/Type"): NameObject("/Font"),
+        NameObject("/Subtype"): NameObject("/TrueType"),
+        NameObject("/BaseFont"): base_font,
+        NameObject("/FirstChar"): NumberObject(first),
+        NameObject("/LastChar"): NumberObject(last),
+        NameObject("/Widths"): ArrayObject([NumberObject(width) for width in widths]),
+        NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
+        NameObject("/FontDescriptor"): writer._add_object(descriptor),
+    })
+    return StampFont(writer._add_object(font_dict), advance_em, embedded=True)
+
+
+def _base14_font(writer: PdfWriter) -> StampFont:
+    font_dict = DictionaryObject({
+        NameObject("/Type"): NameObject("/Font"),
+        NameObject("/Subtype"): NameObject("/Type1"),
+        NameObject("/BaseFont"): NameObject("/Helvetica"),
+        NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
+    })
+    return StampFont(writer._add_object(font_dict), {}, embedded=False)
+
+
+def make_stamp_font(writer: PdfWriter, texts: Iterable[str]) -> StampFont:
+    """Add the stamp font for ``texts`` to ``writer``: embedded DejaVu Sans, else Helvetica."""
+    chars = check_label_text(texts)
+    font_path = find_dejavu_sans()
+    if font_path is None:
+        return _base14_font(writer)
+    return _embedded_font(writer, font_path, chars)
+
+
+def _pdf_string(text: str) -> bytes:
+    raw = text.encode(STAMP_ENCODING)
+    return b"(" + raw.replace(b"\\", b"\\\\").replace(b"(", b"\\(").replace(b")", b"\\)") + b")"
+
+
+def stamp_operators(text: str, frame: PageFrame, font: StampFont) -> bytes:
+    """Content-stream operators that draw ``text`` right-aligned in the bottom margin."""
+    size_pt = STAMP_FONT_SIZE_PT
+    right_pt = frame.width_pt - frame.right_margin_pt
+    x_pt = right_pt - font.width_pt(text, size_pt)
+    baseline_pt = max(frame.bottom_margin_pt / 2 - CAP_HEIGHT_EM * size_pt / 2, 2.0)
+    return b"Q q 0 g BT %s %.1f Tf 1 0 0 1 %.2f %.2f Tm %s Tj ET Q" % (
+        STAMP_FONT_RESOURCE.encode(), size_pt, x_pt, baseline_pt, _pdf_string(text))
+
+
+class Stamper:
+    """Appends page-number streams to pages of one writer, sharing the font and ``q``."""
+
+    def __init__(self, writer: PdfWriter, font: StampFont) -> None:
+        self.writer = writer
+        self.font = font
+        save = DecodedStreamObject()
+        save.set_data(b"q\n")
+        self.save_reference = writer._add_object(save)
+
+    def stamp(self, page: DictionaryObject, text: str, frame: PageFrame) -> None:
+        """Wrap the page's content in ``q … Q`` and draw ``text`` after it."""
+        stream = DecodedStreamObject()
+        stream.set_data(b"\n" + stamp_operators(text, frame, self.font) + b"\n")
+        contents = page.get("/Contents")
+        if contents is None:
+            originals: list[IndirectObject] = []
+        elif isinstance(contents.get_object(), ArrayObject):
+            originals = list(contents.get_object())
+        else:
+            originals = [contents]
+        page[NameObject("/Contents")] = ArrayObject(
+            [self.save_reference, *originals, self.writer._add_object(stream)])
+        resources = page.get("/Resources")
+        resources = resources.get_object() if resources is not None else None
+        if resources is None:
+            resources = DictionaryObject()
+            page[NameObject("/Resources")] = resources
+        fonts = resources.get("/Font")
+        if fonts is None:
+            fonts = DictionaryObject()
+            resources[NameObject("/Font")] = fonts
+        fonts.get_object()[NameObject(STAMP_FONT_RESOURCE)] = self.font.reference

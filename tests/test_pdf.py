@@ -1,0 +1,191 @@
+"""The PDF engine: merge order, page numbers, anchors, outline, links, determinism.
+
+Checks read the finished PDF with pypdf (an independent reader of ISO 32000 files):
+page texts, the outline, link annotations and their destination pages.
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Mapping
+from datetime import datetime, timedelta, timezone
+from pathlib import Path
+
+import pypdf
+import pytest
+
+from reportgen.pdf import PageMap, _settle_front, render_pdf
+from reportgen.pdf_layout import render_part
+from reportgen.pdf_merge import pdf_date
+
+CREATED = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
+CSS = """<style>
+@page { size: A5; margin: 15mm 15mm 15mm 15mm }
+body { font-family: DejaVu Sans; font-size: 10pt }
+h1, h2 { bookmark-level: none }
+.page { break-before: page }
+</style>"""
+
+
+def document(body: str, title: str = "part") -> str:
+    return f"<html><head><title>{title}</title>{CSS}</head><body>{body}</body></html>"
+
+
+def pages(name: str, count: int, level: int = 2, extra: str = "") -> str:
+    """``count`` pages headed "name-k" (with that id); the first is a bookmark."""
+    html = []
+    for k in range(1, count + 1):
+        bookmark = (f' data-bookmark="Bookmark {name}" data-bookmark-level="{level}"'
+                    if k == 1 else "")
+        new_page = ' class="page"' if k > 1 else ""
+        html.append(f'<h2{new_page} id="{name}-{k}"{bookmark}>{name}-{k}</h2>{extra}')
+    return "".join(html)
+
+
+BODIES = [
+    document(pages("alpha", 2) + '<p><a href="#beta-2">to beta-2</a></p>'),
+    document('<h1 id="links" data-bookmark="Links" data-bookmark-level="1">Links</h1>'
+             + pages("beta", 2)),
+]
+
+
+def toc_front(page_of: Mapping[str, int], total_pages: int) -> str:
+    rows = "".join(f'<p><a href="#{anchor}">{anchor}</a> on page {page_of[anchor]}</p>'
+                   for anchor in ("alpha-1", "beta-2"))
+    return document(f'<h1 id="cover" data-bookmark="Cover" data-bookmark-level="1">Cover</h1>'
+                    f"<p>{total_pages} pages</p>{rows}")
+
+
+def read(pdf: bytes) -> pypdf.PdfReader:
+    return pypdf.PdfReader(io.BytesIO(pdf))
+
+
+def texts(reader: pypdf.PdfReader) -> list[str]:
+    return [page.extract_text() for page in reader.pages]
+
+
+@pytest.fixture(scope="module")
+def report_pdf(tmp_path_factory: pytest.TempPathFactory) -> bytes:
+    root = tmp_path_factory.mktemp("project")
+    return render_pdf(toc_front, BODIES, root=root, title="Test report", created=CREATED)
+
+
+def test_pages_follow_front_then_bodies_in_order(report_pdf: bytes) -> None:
+    page_texts = texts(read(report_pdf))
+    assert len(page_texts) == 5  # cover (1) + alpha (2) + beta (2)
+    markers = ["Cover", "alpha-1", "alpha-2", "beta-1", "beta-2"]
+    for text, marker in zip(page_texts, markers):
+        assert marker in text
+
+
+def test_every_page_is_stamped_with_its_number_and_the_total(report_pdf: bytes) -> None:
+    for number, text in enumerate(texts(read(report_pdf)), start=1):
+        assert f"Page {number} of 5" in text
+
+
+def test_front_matter_gets_the_absolute_page_of_anchors_in_other_parts(
+        report_pdf: bytes) -> None:
+    cover = texts(read(report_pdf))[0]
+    assert "5 pages" in cover
+    assert "alpha-1 on page 2" in cover
+    assert "beta-2 on page 5" in cover
+
+
+def test_outline_lists_bookmarks_in_order_nested_by_level(report_pdf: bytes) -> None:
+    reader = read(report_pdf)
+    outline = reader.outline
+    top = [item for item in outline if not isinstance(item, list)]
+    assert [item.title for item in top] == ["Cover", "Links"]
+    # pypdf lists an item's children as the list that follows it
+    assert [item.title for item in outline[1]] == ["Bookmark alpha"]
+    assert [item.title for item in outline[3]] == ["Bookmark beta"]
+    targets = {item.title: reader.get_destination_page_number(item)
+               for item in [*top, *outline[1], *outline[3]]}
+    assert targets == {"Cover": 0, "Bookmark alpha": 1, "Links": 3, "Bookmark beta": 3}
+
+
+def link_targets(reader: pypdf.PdfReader, page_index: int) -> list[int]:
+    found = []
+    for annotation in reader.pages[page_index].get("/Annots", []):
+        annotation = annotation.get_object()
+        if annotation["/Subtype"] == "/Link" and "/Dest" in annotation:
+            found.append(reader.get_page_number(annotation["/Dest"][0].get_object()))
+    return found
+
+
+def test_links_across_parts_become_goto_annotations_to_the_right_page(
+        report_pdf: bytes) -> None:
+    reader = read(report_pdf)
+    assert link_targets(reader, 0) == [1, 4]  # front → alpha-1 (page 2), beta-2 (page 5)
+    assert link_targets(reader, 2) == [4]     # alpha part → beta-2 in the next part
+
+
+def test_metadata_comes_from_the_inputs(report_pdf: bytes) -> None:
+    metadata = read(report_pdf).metadata
+    assert metadata.title == "Test report"
+    assert metadata["/CreationDate"] == "D:20300115093000Z"
+    assert metadata.creator.startswith("reportgen ")
+
+
+def test_same_input_gives_identical_bytes(report_pdf: bytes, tmp_path: Path) -> None:
+    again = render_pdf(toc_front, BODIES, root=tmp_path, title="Test report", created=CREATED)
+    assert again == report_pdf
+
+
+def test_front_matter_is_rendered_again_when_its_length_moves_the_numbers(
+        tmp_path: Path) -> None:
+    bodies = [render_part(body, tmp_path) for body in BODIES]
+    calls: list[tuple[dict[str, int], int]] = []
+
+    def two_page_front(page_of: Mapping[str, int], total_pages: int) -> str:
+        calls.append(({"beta-2": page_of["beta-2"]}, total_pages))
+        return document(f"<p>beta-2 on page {page_of['beta-2']} of {total_pages}</p>"
+                        '<p class="page">second front page</p>')
+
+    front = _settle_front(two_page_front, bodies, tmp_path, estimate=None)
+    # assumed 1 front page first: beta-2 on page 5 of 5; then 2 front pages: 6 of 6
+    assert calls == [({"beta-2": 5}, 5), ({"beta-2": 6}, 6)]
+    assert front.page_count == 2
+    assert "beta-2 on page 6 of 6" in texts(read(front.pdf))[0]
+
+
+def test_page_map_records_lookups_and_placeholder_only_when_asked() -> None:
+    exact = PageMap({"a": 3})
+    assert exact.get("a") == 3 and exact.get("zz") is None
+    assert exact.used == {"a": 3}
+    with pytest.raises(KeyError):
+        exact["zz"]
+    estimate = PageMap({}, fallback=999)
+    assert estimate["anything"] == 999 and "anything" not in estimate
+
+
+def test_progress_counts_parts_up_to_the_total(tmp_path: Path) -> None:
+    seen: list[tuple[int, int]] = []
+    render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED,
+               progress=lambda done, total: seen.append((done, total)))
+    assert seen == [(0, 3), (1, 3), (2, 3), (3, 3)]
+
+
+def cover_only(page_of: Mapping[str, int], total_pages: int) -> str:
+    return document("<h1>Cover</h1>")
+
+
+def test_page_label_is_formatted_per_page(tmp_path: Path) -> None:
+    pdf = render_pdf(cover_only, BODIES[:1], root=tmp_path, title="t", created=CREATED,
+                     page_label="Seite {page}/{pages}", workers=1)
+    assert "Seite 3/3" in texts(read(pdf))[2]
+
+
+def test_page_label_outside_winansi_is_refused(tmp_path: Path) -> None:
+    with pytest.raises(ValueError, match="not supported by the page-number stamp"):
+        render_pdf(cover_only, BODIES[:1], root=tmp_path, title="t", created=CREATED,
+                   page_label="頁 {page}")
+
+
+@pytest.mark.parametrize(("moment", "expected"), [
+    (datetime(2030, 1, 15, 9, 30), "D:20300115093000"),
+    (datetime(2030, 1, 15, 9, 30, tzinfo=timezone(timedelta(hours=-5))),
+     "D:20300115093000-05'00'"),
+], ids=["naive: no zone", "ISO 32000-1 7.9.4: offset HH'mm'"])
+def test_pdf_date_format(moment: datetime, expected: str) -> None:
+    assert pdf_date(moment) == expected
