@@ -17,7 +17,7 @@ from operator import itemgetter
 from pathlib import Path
 
 from .errors import InputProblem
-from .load import read_text
+from .load import clip, read_text
 
 _DECIMAL_COMMA = re.compile(r"\d,\d")
 _SEPARATORS = {";": "semicolon", "\t": "tab"}
@@ -61,7 +61,7 @@ def _header_problems(names: list[str], shown: str, required: Sequence[tuple[str,
             continue
         if name in first_column:
             problems.append(InputProblem(
-                shown, 1, name,
+                shown, 1, clip(name),
                 f"each column name once (found in columns {first_column[name]} and {index})"))
         first_column.setdefault(name, index)
     unknown = [name for name in first_column if name not in known]
@@ -109,11 +109,14 @@ def read_csv(path: Path, shown: str, *, required: Sequence[tuple[str, ...]],
 
     reader = csv.reader(io.StringIO(text, newline=""))
     try:
-        header = next(reader)
-        while not "".join(header).strip():  # leading blank lines
-            header = next(reader)
+        header = next(reader, None)
+        while header is not None and not "".join(header).strip():  # leading blank lines
+            header = next(reader, None)
     except csv.Error as error:
-        return None, [InputProblem(shown, reader.line_num, None, "well-formed CSV", str(error))]
+        return None, [InputProblem(shown, reader.line_num, None, "well-formed CSV", clip(str(error)))]
+    if header is None:
+        return None, [InputProblem(shown, None, None,
+                                   "a header row naming the columns (the file has only empty cells)")]
     names = [name.strip().lower() for name in header]
     known = {name for group in required for name in group} | set(optional)
     problems = _header_problems(names, shown, required, known)
@@ -125,11 +128,18 @@ def read_csv(path: Path, shown: str, *, required: Sequence[tuple[str, ...]],
     try:
         records = list(reader)
     except csv.Error as error:
-        return None, problems + [InputProblem(shown, reader.line_num, None, "well-formed CSV", str(error))]
+        return None, problems + [InputProblem(shown, reader.line_num, None, "well-formed CSV", clip(str(error)))]
     if reader.line_num == first_line - 1 + len(records):
         starts = range(first_line, first_line + len(records))  # one line per record: the usual case
     else:
         starts = _record_starts(text, first_line - 1)
+    if records and any("\n" in cell or "\r" in cell for cell in records[-1]) and text.count('"') % 2:
+        # The csv module reads a quote that is never closed as a cell running to the end of the
+        # file, silently swallowing every row after it: refuse the file instead.
+        return None, problems + [InputProblem(
+            shown, list(starts)[-1], None,
+            'a closing quote " for the cell opened on this line (otherwise every line after it '
+            "would be read as part of that cell)")]
     sizes = list(map(len, records))
     if sizes.count(width) == len(sizes):  # the usual case: every row as wide as the header
         rows, lines = records, list(starts)

@@ -7,6 +7,8 @@ in this module writes to the project folder.
 from __future__ import annotations
 
 import math
+import os
+import reprlib
 from pathlib import Path
 from typing import Any, Final
 
@@ -16,6 +18,33 @@ from .errors import InputProblem
 
 MAX_FILE_BYTES: Final = 256 * 2**20  # largest input file read (256 MB)
 _BYTES_PER_MB: Final = 2**20
+
+
+MAX_SHOWN_CHARS: Final = 80  # longest value quoted back in a problem
+_SHOWN_REPR = reprlib.Repr()
+_SHOWN_REPR.maxlevel = 3
+_SHOWN_REPR.maxstring = MAX_SHOWN_CHARS
+_SHOWN_REPR.maxother = MAX_SHOWN_CHARS
+
+
+def clip(text: str, limit: int = MAX_SHOWN_CHARS) -> str:
+    """``text`` cut to ``limit`` characters (ending in ``...``) so a message stays one short line."""
+    return text if len(text) <= limit else text[:limit - 3] + "..."
+
+
+def shown_value(value: object) -> str:
+    """A short text for any value, also a huge or deeply nested YAML structure (never expanded)."""
+    if isinstance(value, str):
+        return clip(value)
+    return clip(_SHOWN_REPR.repr(value))
+
+
+def printable(text: str) -> str:
+    """``text`` with characters a terminal would act on (escape sequences, bidirectional
+    overrides, other non-printable characters) written as ``\\x1b``-style escapes."""
+    if text.isprintable():
+        return text
+    return "".join(char if char.isprintable() else repr(char)[1:-1] for char in text)
 
 
 def size_in_mb(size_bytes: int) -> int:
@@ -42,6 +71,22 @@ def resolve_inside(root: Path, written: str) -> Path | None:
     if resolved == root or root in resolved.parents:
         return resolved
     return None
+
+
+def is_inside(root: Path, path: Path) -> bool:
+    """Whether the real path of ``path`` (every symbolic link resolved) lies inside ``root``.
+
+    ``root`` must already be resolved.
+    """
+    real = Path(os.path.realpath(path))
+    return real == root or root in real.parents
+
+
+def outside_problem(shown: str) -> InputProblem:
+    """The problem for an input file or folder whose real path is outside the project folder."""
+    return InputProblem(shown, None, None,
+                        "a file inside the project folder; this is a symbolic link leading outside "
+                        "it and was not read")
 
 
 def read_bytes(path: Path, shown: str, max_bytes: int = MAX_FILE_BYTES) -> tuple[bytes | None, list[InputProblem]]:
@@ -114,6 +159,15 @@ class _Loader(yaml.SafeLoader):
         return super().construct_mapping(node, deep=deep)
 
 
+    def construct_object(self, node: yaml.Node, deep: bool = False) -> Any:
+        """Any value error while building a value becomes a YAML error with line and column."""
+        try:
+            return super().construct_object(node, deep=deep)
+        except (ValueError, OverflowError, TypeError) as error:
+            raise yaml.constructor.ConstructorError(
+                None, None, clip(str(error), 120), node.start_mark) from error
+
+
 def _construct_int(loader: _Loader, node: yaml.ScalarNode) -> _Int:
     value = _Int(yaml.SafeLoader.construct_yaml_int(loader, node))
     value.yaml_text = node.value
@@ -126,7 +180,16 @@ def _construct_float(loader: _Loader, node: yaml.ScalarNode) -> _Float:
     return value
 
 
+def _construct_timestamp(loader: _Loader, node: yaml.ScalarNode) -> Any:
+    """A date or date-time; one that looks like a date but is none (2030-02-30) stays text."""
+    try:
+        return yaml.SafeLoader.construct_yaml_timestamp(loader, node)
+    except (ValueError, OverflowError):
+        return node.value
+
+
 _Loader.add_constructor("tag:yaml.org,2002:int", _construct_int)
+_Loader.add_constructor("tag:yaml.org,2002:timestamp", _construct_timestamp)
 _Loader.add_constructor("tag:yaml.org,2002:float", _construct_float)
 
 
@@ -145,11 +208,16 @@ def parse_yaml(text: str, shown: str) -> tuple[Any, list[InputProblem]]:
         line = mark.line + 1 if mark is not None else None
         column = f"column {mark.column + 1}" if mark is not None else None
         problem = getattr(error, "problem", None) or str(error)
-        return None, [InputProblem(shown, line, column, "valid YAML", problem)]
+        return None, [InputProblem(shown, line, column, "valid YAML", clip(problem, 120))]
+    except (ValueError, OverflowError, TypeError) as error:  # not expected: the constructors convert these
+        return None, [InputProblem(shown, None, None, "valid YAML", clip(str(error), 120))]
+    except RecursionError:
+        return None, [InputProblem(shown, None, None, "valid YAML nested at most a few hundred levels deep",
+                                   "nesting too deep to read")]
     finally:
         loader.dispose()
     problems = [
-        InputProblem(shown, line, str(key), f"each key once in its mapping (first given on line {first})")
+        InputProblem(shown, line, clip(str(key)), f"each key once in its mapping (first given on line {first})")
         for line, key, first in loader.duplicates
     ]
     return data, problems

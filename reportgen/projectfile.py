@@ -19,7 +19,7 @@ from typing import Any, Final, TypeVar
 from . import catalogs
 from . import limits as limit_sets
 from .errors import InputError, InputProblem
-from .load import MAX_FILE_BYTES, as_written, resolve_inside, shown_path, size_in_mb
+from .load import MAX_FILE_BYTES, as_written, clip, resolve_inside, shown_path, shown_value, size_in_mb
 from .model import (
     DEFAULT_ATTENUATORS_DB,
     DEFAULT_WAVELENGTHS_NM,
@@ -42,7 +42,7 @@ FILE: Final = "project.yaml"
 MAX_LOGO_BYTES: Final = 2 * 2**20
 LOGO_KINDS: Final = (".svg", ".png", ".jpg", ".jpeg")
 WAVELENGTH_RANGE_NM: Final = (600, 1700)
-_NUMBER_TEXT = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+_NUMBER_TEXT = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
 _MISSING = object()
 E = TypeVar("E", bound=StrEnum)
 
@@ -86,8 +86,9 @@ def match_enum(enum: type[E], text: str) -> E | None:
 
 
 def _shown(value: Any) -> str:
-    text = as_written(value) if not isinstance(value, (dict, list)) else str(value)
-    return text if len(text) <= 80 else text[:77] + "..."
+    """A value quoted back in a problem: numbers as written, structures never expanded in full."""
+    written = getattr(value, "yaml_text", None)
+    return clip(written) if written else shown_value(value)
 
 
 class Checker:
@@ -139,7 +140,7 @@ class Checker:
                 continue
             close = difflib.get_close_matches(key.lower(), known, n=1, cutoff=0.8)
             if close and close[0] not in data and not self._required(path, close[0]):
-                self.problem(f"{path}.{key}", f"a key the format knows (did you mean {close[0]}?)")
+                self.problem(f"{path}.{clip(key)}", f"a key the format knows (did you mean {close[0]}?)")
 
     @staticmethod
     def _required(path: str, key: str) -> bool:
@@ -168,15 +169,21 @@ class Checker:
 
     def number(self, value: Any, path: str, expected: str, low: float, high: float,
                *, low_open: bool = False) -> float | None:
+        written = value
         if isinstance(value, str) and _NUMBER_TEXT.fullmatch(value.strip()):
             value = float(value)
+        if isinstance(value, int) and not isinstance(value, bool):
+            try:
+                value = float(value)
+            except OverflowError:  # an integer of hundreds of digits
+                value = math.inf
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
             hint = " (write numbers with a decimal point, not a comma)" if isinstance(value, str) \
                 and "," in value else ""
-            self.problem(path, f"a number {expected}{hint}", value)
+            self.problem(path, f"a number {expected}{hint}", written)
             return None
         if value < low or value > high or (low_open and value == low):
-            self.problem(path, f"a number {expected}", value)
+            self.problem(path, f"a number {expected}", written)
             return None
         return float(value)
 

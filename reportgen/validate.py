@@ -7,6 +7,7 @@ within a CSV file by line). The folder is only read, never written.
 """
 from __future__ import annotations
 
+import dataclasses
 import re
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -17,7 +18,7 @@ import pandas as pd
 from .applications import validate_application_ids
 from .csvread import CsvTable, read_csv
 from .errors import InputError, InputProblem
-from .load import read_yaml
+from .load import clip, is_inside, outside_problem, printable, read_yaml
 from .model import (
     Component,
     FiberType,
@@ -41,8 +42,8 @@ LINK_OPTIONAL: Final = ("plant", "strands", "connections", "splices", "component
                         "transceiver", "notes")
 MAX_STRANDS: Final = 1000
 MAX_COUNT: Final = 1000  # connections or splices on one link
-_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
-_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+")
+_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
+_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+", re.ASCII)
 
 
 def load_project(project_dir: Path) -> Project:
@@ -61,7 +62,9 @@ def load_project(project_dir: Path) -> Project:
 
     settings = Settings()
     yaml_path = root / "project.yaml"
-    if not yaml_path.is_file():
+    if yaml_path.is_symlink() and not is_inside(root, yaml_path):
+        problems.append(outside_problem("project.yaml"))
+    elif not yaml_path.is_file():
         problems.append(InputProblem("project.yaml", None, None,
                                      "a file project.yaml in the project folder (not found)"))
     else:
@@ -83,6 +86,9 @@ def load_project(project_dir: Path) -> Project:
     files: list[str] = []
     for path in _result_files(root, problems):
         shown = f"{RESULTS_DIR}/{path.name}"
+        if not is_inside(root, path):
+            problems.append(outside_problem(shown))
+            continue
         files.append(shown)
         table, table_problems = read_csv(path, shown, required=RESULT_REQUIRED, optional=RESULT_OPTIONAL)
         if table is None:
@@ -94,7 +100,7 @@ def load_project(project_dir: Path) -> Project:
             frames.append(frame)
 
     if problems:
-        raise InputError(problems)
+        raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
     results = pd.concat(frames, ignore_index=True) if frames else empty_results()
     return Project(
@@ -114,22 +120,35 @@ def load_project(project_dir: Path) -> Project:
 
 
 def _result_files(root: Path, problems: list[InputProblem]) -> list[Path]:
-    """results/*.csv sorted by name; hidden files (``.x.csv``) and lock files (``~$x.csv``) skipped."""
+    """results/*.csv sorted by name; hidden files (``.x.csv``) and lock files (``~$x.csv``) skipped.
+
+    A name that is a symbolic link leading outside the project folder is listed too (whatever it
+    points at) so that the caller refuses it, in name order, without reading it.
+    """
     folder = root / RESULTS_DIR
+    if folder.is_symlink() and not is_inside(root, folder):
+        problems.append(InputProblem(RESULTS_DIR, None, None,
+                                     "a folder inside the project folder; this is a symbolic link leading "
+                                     "outside it and was not read"))
+        return []
     if not folder.exists():
         return []
     if not folder.is_dir():
         problems.append(InputProblem(RESULTS_DIR, None, None, "a folder of results CSV files"))
         return []
+    # A symbolic link leading outside the folder is kept here and refused by the caller, in name order.
     return sorted(
         (path for path in folder.iterdir()
-         if path.suffix.lower() == ".csv" and path.is_file() and not path.name.startswith((".", "~$"))),
+         if path.suffix.lower() == ".csv" and not path.name.startswith((".", "~$"))
+         and (path.is_file() or not is_inside(root, path))),
         key=lambda path: path.name)
 
 
 def _load_links(root: Path, settings: Settings
                 ) -> tuple[list[Link], frozenset[str] | None, list[InputProblem]]:
     path = root / LINKS_FILE
+    if path.is_symlink() and not is_inside(root, path):
+        return [], None, [outside_problem(LINKS_FILE)]
     if not path.is_file():
         return [], None, [InputProblem(LINKS_FILE, None, None,
                                        "a file links.csv in the project folder (not found)")]
@@ -143,6 +162,14 @@ def _load_links(root: Path, settings: Settings
     return links, frozenset(table.columns["link_id"]) - {""}, _by_line(problems + row_problems)
 
 
+def _printable(problem: InputProblem) -> InputProblem:
+    """The problem with file, field and expected text safe to print on a terminal (file names,
+    column names and ids come from the folder); ``found`` is shown quoted and escaped anyway."""
+    return dataclasses.replace(problem, file=printable(problem.file),
+                               field=None if problem.field is None else printable(problem.field),
+                               expected=printable(problem.expected))
+
+
 def _by_line(problems: list[InputProblem]) -> list[InputProblem]:
     """Problems of one CSV file in line order (stable: checks of a line keep their order)."""
     return sorted(problems, key=lambda problem: problem.line or 0)
@@ -153,7 +180,7 @@ def _number(text: str, column: str, expected: str, line: int, file: str,
     if _NUMBER.fullmatch(text):
         return float(text)
     hint = DECIMAL_HINT if _DECIMAL_COMMA.fullmatch(text) else ""
-    problems.append(InputProblem(file, line, column, expected + hint, text))
+    problems.append(InputProblem(file, line, column, expected + hint, clip(text)))
     return None
 
 
@@ -162,8 +189,8 @@ def _count(text: str, column: str, low: int, high: int, default: int, line: int,
     if not text:
         return default
     value = float(text) if _NUMBER.fullmatch(text) else None
-    if value is None or value != int(value) or not low <= value <= high:
-        problems.append(InputProblem(file, line, column, f"a whole number from {low} to {high}", text))
+    if value is None or not low <= value <= high or value != int(value):  # range first: int(inf) fails
+        problems.append(InputProblem(file, line, column, f"a whole number from {low} to {high}", clip(text)))
         return None
     return int(value)
 
@@ -199,7 +226,8 @@ def check_links(table: CsvTable, settings: Settings) -> tuple[list[Link], list[I
         row_problems: list[InputProblem] = []
 
         def problem(column: str, expected: str, found: str | None = None) -> None:
-            row_problems.append(InputProblem(file, line, column, expected, found))
+            row_problems.append(InputProblem(file, line, column, expected,
+                                             None if found is None else clip(found)))
 
         link_id = get["link_id"][row]
         if not link_id:

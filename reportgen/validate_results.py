@@ -15,6 +15,7 @@ import pandas as pd
 
 from .csvread import CsvTable
 from .errors import InputProblem
+from .load import clip
 from .model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
 from .units import M_PER_FT
 
@@ -23,6 +24,8 @@ LENGTH_COLUMNS: Final = ("length", "length_m", "length_ft")
 REQUIRED_NAMES: Final = tuple(group[0] for group in REQUIRED)
 OPTIONAL: Final = ("strand", "direction", "instrument", "technician", "note", *LENGTH_COLUMNS)
 MAX_LOSS_DB: Final = 100.0
+MAX_STRAND: Final = 1000  # as links.csv strands
+WAVELENGTH_RANGE_NM: Final = (600, 1700)  # as project.yaml testing.wavelengths
 MAX_LENGTH_M: Final = 200_000.0  # 200 km
 YEAR_RANGE: Final = (1900, 2199)
 EMPTY: Final = " (the cell is empty)"
@@ -54,7 +57,7 @@ class _Collector:
         for row in np.flatnonzero(mask):
             text = expected(row) if callable(expected) else expected
             value = found(row) if callable(found) else None if found is None else found[row]
-            shown = None if value is None else str(value)
+            shown = None if value is None else clip(str(value))
             self.items.append((row, self.order, InputProblem(
                 self.table.file, self.table.lines[row], column, text, shown)))
 
@@ -114,19 +117,21 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     strand_values[strand_text == ""] = 1
     strands = per_link(lambda link: float(link.strands), np.nan).astype(float)
     strand_bad |= ~strand_bad & ~_whole(strand_values)
-    strand_bad |= (strand_values < 1) | (has_link & (strand_values > strands))
+    strand_bad |= (strand_values < 1) | (strand_values > MAX_STRAND) | (has_link & (strand_values > strands))
 
     def strand_expected(row: int) -> str:
         if has_link[row]:
-            return f"a strand from 1 to {int(strands[row])} for link {link_ids[row]}"
-        return "a strand number, a whole number of 1 or more"
+            return f"a strand from 1 to {int(strands[row])} for link {clip(link_ids[row])}"
+        return f"a strand number, a whole number from 1 to {MAX_STRAND}"
 
     out.add(strand_bad, "strand", strand_expected, strand_text)
 
     # wavelength_nm
     wavelength_text = column["wavelength_nm"]
     wavelengths, wavelength_bad = _numbers(wavelength_text)
-    wavelength_bad |= ~wavelength_bad & (wavelength_text != "") & ~_whole(wavelengths)
+    low_nm, high_nm = WAVELENGTH_RANGE_NM
+    wavelength_bad |= ~wavelength_bad & (wavelength_text != "") & (
+        ~_whole(wavelengths) | (wavelengths < low_nm) | (wavelengths > high_nm))
     allowed_text = np.full(n, "", dtype=object)
     if context.limits is not None and links:
         groups = sorted({(link.fiber_type, link.plant) for link in links.values()})
@@ -144,7 +149,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     empty_wavelength = wavelength_text == ""
 
     def wavelength_expected(row: int) -> str:
-        described = allowed_text[row] or "a wavelength in whole nm"
+        described = allowed_text[row] or f"a wavelength in whole nm from {low_nm} to {high_nm}"
         return described + (EMPTY if empty_wavelength[row] else "")
 
     out.add(wavelength_bad | empty_wavelength, "wavelength_nm", wavelength_expected,
@@ -224,7 +229,10 @@ def _parse_timestamp(text: str) -> datetime | None:
     except ValueError:
         return None
     if moment.tzinfo is not None:
-        moment = moment.astimezone(timezone.utc).replace(tzinfo=None)
+        try:
+            moment = moment.astimezone(timezone.utc).replace(tzinfo=None)
+        except OverflowError:  # e.g. 0001-01-01T00:00+01:00 falls before year 1
+            return None
     if not YEAR_RANGE[0] <= moment.year <= YEAR_RANGE[1]:
         return None
     return moment
