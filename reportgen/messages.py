@@ -192,6 +192,144 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "dg_finish": "B",
     "dg_limit": "limit {value}",
     "dg_results": "results",
+    # applications and transceiver power (link sheet, project section, appendix)
+    "verdict_supported": "supported",
+    "verdict_not-supported": "not-supported",
+    "verdict_untested": "untested",
+    "verdict_ok": "ok",
+    "verdict_too-weak": "too-weak",
+    "verdict_too-strong": "too-strong",
+    "verdict_no-fit": "no-fit",
+    "mark_supported": "\u25cf",
+    "mark_not-supported": "\u2715",
+    "mark_untested": "\u25cc",
+    "mark_ok": "\u25ce",
+    "mark_too-weak": "\u2193",
+    "mark_too-strong": "\u2191",
+    "mark_no-fit": "\u21c8",
+    "cell_not-listed-not-supported": "\u00b7",
+    "link_apps_heading": "Applications on this link",
+    "link_apps_intro": (
+        "Each application listed for the link in links.csv, checked for {fiber_type} against its "
+        "maximum channel loss and length. Worst loss: the highest judged loss over every strand "
+        "and direction at the wavelengths the application needs."
+    ),
+    "link_apps_none": "No application is listed for this link in links.csv.",
+    "col_application": "Application",
+    "col_needs": "Tested at \u03bb nm",
+    "col_max_channel": "Channel loss allowed dB",
+    "col_worst_loss": "Worst loss dB",
+    "col_max_length": "Max. length",
+    "col_why": "Reasons",
+    "apps_loss_window": "{low} to {high}",
+    "apps_pon_least": "least {value}",
+    "apps_all_met": "every check met",
+    "apps_capable_label": "Supported as measured (every application in the table):",
+    "apps_capable_none": "none of the table\u2019s applications",
+    "power_heading": "Transceiver power budget",
+    "field_basis": "Loss basis",
+    "basis_measured": "measured \u2013 the lowest and highest judged loss of this link at {wavelength} nm, over every strand and direction",
+    "basis_budget": "budget \u2013 no judged result yet, so the link\u2019s limit at {wavelength} nm stands for both the lowest and the highest loss; confirm by testing",
+    "field_power_wavelength": "Wavelength used",
+    "power_wavelength_same": "{wavelength} nm, the optic\u2019s own",
+    "power_wavelength_nearest": "{wavelength} nm: the optic runs at {own} nm; the nearest wavelength with losses was used",
+    "field_loss_used": "Loss used",
+    "power_loss_range": "{least} to {worst} dB",
+    "field_launch": "Launch power",
+    "field_received": "Received power",
+    "power_dbm_range": "{low} to {high} dBm",
+    "power_received_how": "({tx_min} \u2212 {worst}) to ({tx_max} \u2212 {least})",
+    "field_receiver_window": "Receiver window",
+    "power_receiver_window": "{sensitivity} dBm (sensitivity) to {overload} dBm (overload)",
+    "field_margin_low": "Margin above sensitivity",
+    "field_headroom_high": "Headroom below overload",
+    "power_margin_how": "weakest case: lowest received power \u2212 sensitivity",
+    "power_headroom_how": "strongest case: overload \u2212 highest received power",
+    "field_power_verdict": "Outcome",
+    "power_says_ok": "Both the weakest and the strongest case fall inside the receiver window.",
+    "power_says_too-weak": (
+        "The weakest case is {short} dB below the sensitivity. An attenuator cannot help: bring the "
+        "link loss down (clean, re-terminate, remove a connection) or use an optic with a larger "
+        "power budget."
+    ),
+    "power_says_too-strong": (
+        "The strongest case is {excess} dB above the overload level. Fit a {attenuator} dB "
+        "attenuator at the receiver; received power is then {low} to {high} dBm, inside the window."
+    ),
+    "power_says_no-fit": (
+        "The strongest case is {excess} dB above the overload level, and no attenuator on the "
+        "project\u2019s list ({offered} dB) brings it down while keeping the weakest case at or "
+        "above the sensitivity. Choose a different optic."
+    ),
+    "power_attenuator_label": "Recommended attenuator",
+    "power_diagram_caption": (
+        "Solid line, round marks: highest level (maximum launch power, least loss). Dashed line, "
+        "square marks: lowest level (minimum launch power, worst loss). Hatched band: receiver "
+        "window. The loss is shared among the parts in proportion to the loss budget "
+        "(schematic); the end values are exact."
+    ),
+    "apps_heading": "Applications and optics",
+    "apps_intro": (
+        "Which network applications each link carries as measured, and whether the optics named "
+        "in project.yaml receive a usable level. Rules and sources are in the appendix."
+    ),
+    "power_list_heading": "Transceiver power budgets",
+    "power_list_intro": "Links fitted with a transceiver; those receiving too little or too much light come first.",
+    "power_list_none": "No link names a transceiver.",
+    "col_transceiver": "Transceiver",
+    "col_received": "Received dBm",
+    "col_margin_low": "Margin dB",
+    "col_headroom": "Headroom dB",
+    "col_attenuator": "Attenuator dB",
+    "matrix_heading": "Applications by link",
+    "matrix_intro": (
+        "One table per fiber type: its links against every application one of them lists or would "
+        "support as measured. Framed cells are the applications listed for the link in links.csv; "
+        "unframed grey cells are what the link would also carry."
+    ),
+    "matrix_group": "{fiber_type} links",
+    "matrix_group_continued": "{fiber_type} links (continued)",
+    "matrix_none": "No link lists or would support an application of the table.",
+    "legend_listed": "listed",
+    "legend_capable": "not listed",
+    "legend_dot": "not supported, not listed",
+    "appx_apps_heading": "Applications and power budgets: rules and sources",
+    "appx_apps_worst": (
+        "Applications. For each wavelength an application needs, the highest judged loss over "
+        "every strand and direction of the link (worst loss) is compared with the maximum channel "
+        "loss for the link\u2019s fiber type, and the documented length with the maximum length. "
+        "Any failed check makes the application not-supported, with every reason listed; a needed "
+        "wavelength without a judged result leaves it untested."
+    ),
+    "appx_apps_pon": (
+        "PON loss classes also set a minimum: the lowest judged loss at each needed wavelength must "
+        "not fall below the class minimum, or the receivers may be overloaded."
+    ),
+    "appx_apps_power": (
+        "Transceiver power. Received power = launched power \u2212 link loss (common practice). "
+        "The received power lies in the window [tx_min \u2212 worst loss, tx_max \u2212 least "
+        "loss], using the judged losses at the tested wavelength nearest the optic\u2019s (basis "
+        "measured) or, when the link has no judged result, its limit (basis budget). Margin = "
+        "lowest received power \u2212 sensitivity; headroom = overload \u2212 highest received "
+        "power. Verdicts: ok; too-weak (margin below zero); too-strong (headroom below zero, an "
+        "attenuator fits); no-fit (too strong and none fits)."
+    ),
+    "appx_apps_attenuator": (
+        "Attenuator: the smallest value from testing.attenuators_db ({offered} dB) that brings the "
+        "highest received power to or below the overload level while keeping the lowest at or "
+        "above the sensitivity."
+    ),
+    "appx_apps_table_intro": "Rows of the built-in application table used in this record: the applications shown, for the fiber types of this project.",
+    "appx_apps_status": (
+        "Status: \u201cverified, secondary\u201d = read in a public source reproducing the "
+        "standard\u2019s table; \u201cderived\u201d = arithmetic on such values or a stated rule; "
+        "\u201cfrom memory\u201d = recalled without the document at hand: check before relying on it."
+    ),
+    "col_family": "Family",
+    "col_fiber_types": "Fiber types",
+    "col_loss_window": "Channel loss dB",
+    "col_status": "Status",
+    "apps_max_only": "\u2264 {high}",
     # appendix
     "appendix_heading": "Appendix",
     "instruments_heading": "Test instruments",
@@ -267,6 +405,9 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("OM1\u2013OM5, OS1, OS1a, OS2", "Multimode (OM) and single-mode (OS) fiber categories of ISO/IEC 11801."),
     ("within uncertainty", "A result closer to its limit than the stated measurement uncertainty."),
     ("superseded", "An earlier test of the same strand, wavelength and direction, replaced by a later one."),
+    ("channel loss", "The insertion loss an application allows between its transmitter and receiver, connections included."),
+    ("power budget", "Launch power minus link loss, compared with the receiver\u2019s window from sensitivity (weakest usable) to overload (strongest tolerated)."),
+    ("attenuator", "A passive part that adds a fixed loss, fitted at the receiver when the light would otherwise be too strong."),
 )
 
 SAFETY: Final[tuple[str, ...]] = (

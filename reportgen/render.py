@@ -14,6 +14,12 @@ Contract with reportgen.pdf:
 - the bottom-right page margin box is left empty for the page stamp
   (:data:`reportgen.messages.PAGE_LABEL`);
 - ``front(page_of, total_pages)`` prints the page numbers pdf.py found.
+
+Applications and power budgets (``extras["applications"]``, a
+:class:`reportgen.applications.ProjectApplications`) add a block to each link sheet and
+a project section ``id="applications"`` (matrix and power list): in the front matter
+after the link register for small projects, else as parts of their own between the
+link sheets and the appendix (:data:`viewmodel.FRONT_MATRIX_MAX_LINKS`).
 """
 from __future__ import annotations
 
@@ -28,9 +34,12 @@ import jinja2
 from markupsafe import Markup
 
 from . import charts, diagrams, messages
+from .applications import ProjectApplications
+from .budget import link_budget
 from .judge import Judgement
+from .level_diagram import level_steps, power_level_svg
 from .model import Project
-from .viewmodel import ReportView, build_view, chunk_links
+from .viewmodel import ReportView, build_view, chunk_links, split_groups
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -111,21 +120,51 @@ def stylesheet(env: jinja2.Environment) -> Markup:
 
 def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
     """(anchor, catalogue key, level) of the contents list, in document order."""
-    entries = [("needs-action", "action_heading", 1), ("register", "register_heading", 1),
-               ("charts", "charts_heading", 1)]
+    apps = view.apps
+    entries = [("needs-action", "action_heading", 1), ("register", "register_heading", 1)]
+    if apps is not None and apps.in_front:
+        entries.append(("applications", "apps_heading", 1))
+    entries.append(("charts", "charts_heading", 1))
     if view.links:
         entries.append(("link-sheets", "links_heading", 1))
+    if apps is not None and not apps.in_front:
+        entries.append(("applications", "apps_heading", 1))
     entries += [("appendix", "appendix_heading", 1), ("appx-instruments", "instruments_heading", 2),
                 ("appx-technicians", "technicians_heading", 2), ("appx-method", "method_heading", 2),
-                ("appx-limits", "limits_heading", 2), ("appx-safety", "safety_heading", 2),
-                ("appx-glossary", "glossary_heading", 2)]
+                ("appx-limits", "limits_heading", 2)]
+    if apps is not None:
+        entries.append(("appx-applications", "appx_apps_heading", 2))
+    entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
+
+
+def power_diagrams(project: Project, view: ReportView,
+                   assessed: ProjectApplications | None) -> dict[str, Markup]:
+    """The power level diagram (inline SVG) of every link with a power budget, by anchor.
+
+    The steps follow the link's loss budget at the wavelength whose losses were used;
+    without a budget there (wavelength not in the limit set) the link is one step.
+    """
+    if assessed is None:
+        return {}
+    out: dict[str, Markup] = {}
+    limits, method = project.limits, project.testing.reference_method
+    for link, link_view in zip(project.links, view.links):
+        power = assessed.power.get(link.link_id)
+        if power is None:
+            continue
+        budget = None
+        if power.wavelength_nm in limits.wavelengths_nm(link.fiber_type, link.plant):
+            budget = link_budget(link, power.wavelength_nm, limits, method, project.components)
+        out[link_view.anchor] = Markup(power_level_svg(power, level_steps(budget)))
+    return out
 
 
 class _Renderer:
     """Renders the parts of one report from one view model."""
 
-    def __init__(self, env: jinja2.Environment, view: ReportView, extras: Mapping[str, Any]) -> None:
+    def __init__(self, env: jinja2.Environment, view: ReportView, extras: Mapping[str, Any],
+                 power_svgs: Mapping[str, Markup] | None = None) -> None:
         self.env = env
         self.view = view
         self.template = env.get_template(TEMPLATE_MAIN)
@@ -137,13 +176,17 @@ class _Renderer:
                        "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
             "toc": toc_entries(view),
             "extras": extras,
+            "power_diagrams": dict(power_svgs or {}),
         }
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
-               page_of: Mapping[str, int] | None = None, total_pages: int | None = None) -> str:
+               page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
+               matrix_groups: tuple | None = None) -> str:
+        if matrix_groups is None:
+            matrix_groups = self.view.apps.groups if self.view.apps is not None else ()
         return self.template.render(**self.common, part=part, links=links,
                                     first_part=first_part, page_of=page_of or {},
-                                    total_pages=total_pages)
+                                    total_pages=total_pages, matrix_groups=matrix_groups)
 
     def front(self, page_of: Mapping[str, int] | None, total_pages: int | None) -> str:
         return self.render("front", page_of=page_of or {}, total_pages=total_pages)
@@ -160,14 +203,20 @@ def build_report(
     """Render the report of a judged project.
 
     ``now`` and ``version`` are printed as given (determinism: same input, same HTML).
-    ``extras`` is reserved for later sections; unknown keys are ignored.
+    ``extras["applications"]`` (a ProjectApplications) adds the applications and power
+    budget sections; other keys are ignored.
     """
-    view = build_view(project, judgement, now=now, version=version)
+    extras = dict(extras or {})
+    assessed = extras.get("applications")
+    view = build_view(project, judgement, now=now, version=version, assessed=assessed)
     env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, dict(extras or {}))
+    renderer = _Renderer(env, view, extras, power_diagrams(project, view, assessed))
     html = renderer.render("all", links=view.links, first_part=True)
     chunks = chunk_links(view.links)
     bodies = tuple(renderer.render("body", links=chunk, first_part=index == 0)
                    for index, chunk in enumerate(chunks))
+    if view.apps is not None and not view.apps.in_front:
+        bodies += tuple(renderer.render("applications", first_part=index == 0, matrix_groups=groups)
+                        for index, groups in enumerate(split_groups(view.apps.groups)))
     bodies += (renderer.render("appendix"),)
     return ReportDocument(html=html, bodies=bodies, _front=renderer.front)

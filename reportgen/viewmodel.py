@@ -20,12 +20,22 @@ from typing import Any, Final
 
 import pandas as pd
 
+from .applications import ProjectApplications
+from .applications import describe_rows as describe_application_rows
 from .budget import Budget, link_budget
 from .judge import Judgement, LinkOutcome, calibration_state
 from .limits import describe_rows
 from .model import Instrument, Link, LinkVerdict, Project, ResultVerdict
+from .power import PowerBudget
 
 LINKS_PER_PART: Final = 40  # link sheets per PDF body part (see ReportDocument.bodies)
+# Up to this many links the applications matrix and power list sit in the front matter,
+# after the link register; above it they form their own part before the appendix (the
+# front matter is re-rendered until its page numbers settle, so it must stay short).
+FRONT_MATRIX_MAX_LINKS: Final = 60
+MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
+# Power verdicts in the order the project list shows them: what needs action first.
+POWER_ORDER: Final[Mapping[str, int]] = {"too-weak": 0, "no-fit": 1, "too-strong": 2, "ok": 3}
 
 _LOGO_TYPES: Final[Mapping[str, str]] = {
     ".svg": "image/svg+xml", ".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg",
@@ -145,6 +155,119 @@ class LimitRowView:
 
 
 @dataclass(frozen=True)
+class ApplicationView:
+    """One application listed for a link, with the limits it was checked against."""
+
+    id: str
+    verdict: str  # ApplicationVerdict value
+    wavelengths_nm: tuple[int, ...]  # test wavelengths the application needs
+    max_loss_db: float | None  # None: fiber type not specified for the application
+    min_loss_db: float | None  # PON classes only
+    worst_loss_db: float | None  # highest judged loss at the needed wavelengths
+    least_loss_db: float | None
+    max_length_m: float | None
+    reasons: tuple[str, ...]  # Reason.text() of each reason
+
+
+@dataclass(frozen=True)
+class PowerView:
+    """The received power window of a link with its transceiver (see power.PowerBudget)."""
+
+    transceiver: str
+    description: str
+    basis: str  # "measured" or "budget"
+    wavelength_nm: int  # wavelength whose losses were used
+    transceiver_wavelength_nm: int
+    worst_loss_db: float
+    least_loss_db: float
+    tx_min_dbm: float
+    tx_max_dbm: float
+    rx_sensitivity_dbm: float
+    rx_overload_dbm: float
+    rx_min_dbm: float
+    rx_max_dbm: float
+    low_margin_db: float  # rx_min − sensitivity
+    high_margin_db: float  # overload − rx_max
+    attenuator_db: float | None
+    verdict: str  # PowerVerdict value
+
+    @property
+    def fitted_rx_min_dbm(self) -> float | None:
+        """Weakest received power with the recommended attenuator fitted. [dBm]"""
+        return None if self.attenuator_db is None else self.rx_min_dbm - self.attenuator_db
+
+    @property
+    def fitted_rx_max_dbm(self) -> float | None:
+        """Strongest received power with the recommended attenuator fitted. [dBm]"""
+        return None if self.attenuator_db is None else self.rx_max_dbm - self.attenuator_db
+
+
+@dataclass(frozen=True)
+class LinkApplicationsView:
+    applications: tuple[ApplicationView, ...]  # listed in links.csv, in that order
+    capable: tuple[str, ...]  # every application supported as measured, table order
+    power: PowerView | None
+
+
+@dataclass(frozen=True)
+class MatrixCell:
+    verdict: str  # ApplicationVerdict value
+    listed: bool  # links.csv names the application for the link
+
+
+@dataclass(frozen=True)
+class MatrixRow:
+    link_id: str
+    anchor: str
+    cells: tuple[MatrixCell, ...]
+
+
+@dataclass(frozen=True)
+class MatrixGroup:
+    """Links of one fiber type × the applications some of them list or would support."""
+
+    fiber_type: str
+    columns: tuple[str, ...]
+    rows: tuple[MatrixRow, ...]
+    continued: bool = False  # a later slice of a group split over PDF parts
+
+
+@dataclass(frozen=True)
+class PowerRow:
+    link_id: str
+    anchor: str
+    power: PowerView
+
+
+@dataclass(frozen=True)
+class ApplicationRuleRow:
+    """One row of the application table as used in the report (applications.describe_rows)."""
+
+    id: str
+    family: str
+    fiber_types: str
+    test_wavelengths_nm: str
+    max_length_m: float
+    min_loss_db: float | None
+    max_loss_db: float
+    source: str
+    status: str
+
+
+@dataclass(frozen=True)
+class ApplicationsView:
+    """Applications and power budgets for the link sheets, the matrix and the appendix."""
+
+    by_anchor: Mapping[str, LinkApplicationsView]  # link sheet anchor -> its block
+    groups: tuple[MatrixGroup, ...]
+    power_rows: tuple[PowerRow, ...]  # problems first (POWER_ORDER), then links.csv order
+    rule_rows: tuple[ApplicationRuleRow, ...]  # applications shown, rows of fiber types in use
+    family_sources: tuple[tuple[str, str], ...]
+    attenuators_db: tuple[float, ...]
+    in_front: bool  # matrix in the front matter (small project), else a part of its own
+
+
+@dataclass(frozen=True)
 class ReportView:
     """Everything the templates may use, and nothing else."""
 
@@ -183,6 +306,7 @@ class ReportView:
     paper: str
     generated_at: datetime
     version: str
+    apps: ApplicationsView | None = None  # None when applications were not assessed
 
 
 def slugify(text: str) -> str:
@@ -322,8 +446,116 @@ def _technician_views(listed: Iterable[str], frame: pd.DataFrame) -> tuple[Techn
     return tuple(TechnicianView(name, counts.get(name, 0)) for name in names)
 
 
-def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str) -> ReportView:
-    """The whole report's view model from a validated project and its judgement."""
+def _power_view(project: Project, budget: PowerBudget) -> PowerView:
+    transceiver = project.transceivers.get(budget.transceiver)
+    return PowerView(
+        transceiver=budget.transceiver,
+        description=(transceiver.description or "") if transceiver else "",
+        basis=budget.basis.value, wavelength_nm=budget.wavelength_nm,
+        transceiver_wavelength_nm=budget.transceiver_wavelength_nm,
+        worst_loss_db=budget.worst_loss_db, least_loss_db=budget.least_loss_db,
+        tx_min_dbm=budget.tx_min_dbm, tx_max_dbm=budget.tx_max_dbm,
+        rx_sensitivity_dbm=budget.rx_sensitivity_dbm, rx_overload_dbm=budget.rx_overload_dbm,
+        rx_min_dbm=budget.rx_min_dbm, rx_max_dbm=budget.rx_max_dbm,
+        low_margin_db=budget.low_margin_db, high_margin_db=budget.high_margin_db,
+        attenuator_db=budget.attenuator_db, verdict=budget.verdict.value,
+    )
+
+
+def _matrix_groups(project: Project, assessed: ProjectApplications,
+                   anchors: Mapping[str, str]) -> tuple[MatrixGroup, ...]:
+    """One matrix per fiber type (first-seen order): its links × the applications that
+    run on that fiber type and that some of its links list or would support."""
+    table = assessed.table
+    by_type: dict[str, list[Link]] = {}
+    for link in project.links:
+        by_type.setdefault(link.fiber_type.value, []).append(link)
+    groups = []
+    for fiber_type, links in by_type.items():
+        ids = {link.link_id for link in links}
+        fiber = links[0].fiber_type
+        wanted: set[str] = set()
+        for link in links:
+            found = assessed.for_link(link.link_id)
+            wanted |= {a.id for a in found.assessments}
+            wanted |= {i for i in found.capable if table.get(i).limits_for(fiber) is not None}
+        columns = [i for i in table.ids if i in wanted]
+        matrix = assessed.matrix(columns)
+        rows = tuple(
+            MatrixRow(row["link_id"], anchors[row["link_id"]],
+                      tuple(MatrixCell(c["verdict"], c["listed"]) for c in row["cells"]))
+            for row in matrix["links"] if row["link_id"] in ids)
+        groups.append(MatrixGroup(fiber_type, tuple(columns), rows))
+    return tuple(groups)
+
+
+def build_applications_view(project: Project, assessed: ProjectApplications,
+                            anchors: Mapping[str, str]) -> ApplicationsView:
+    """Per-link blocks, the matrix groups, the power list and the rules used."""
+    table = assessed.table
+    by_anchor: dict[str, LinkApplicationsView] = {}
+    power_rows: list[PowerRow] = []
+    for link in project.links:
+        found = assessed.for_link(link.link_id)
+        budget = assessed.power.get(link.link_id)
+        power = _power_view(project, budget) if budget is not None else None
+        by_anchor[anchors[link.link_id]] = LinkApplicationsView(
+            applications=tuple(ApplicationView(
+                id=a.id, verdict=a.verdict.value,
+                wavelengths_nm=table.get(a.id).test_wavelengths_nm,
+                max_loss_db=a.max_loss_db, min_loss_db=a.min_loss_db,
+                worst_loss_db=a.worst_loss_db, least_loss_db=a.least_loss_db,
+                max_length_m=a.max_length_m, reasons=tuple(r.text() for r in a.reasons))
+                for a in found.assessments),
+            capable=found.capable, power=power)
+        if power is not None:
+            power_rows.append(PowerRow(link.link_id, anchors[link.link_id], power))
+    power_rows.sort(key=lambda row: POWER_ORDER.get(row.power.verdict, len(POWER_ORDER)))
+    groups = _matrix_groups(project, assessed, anchors)
+    shown = {i for group in groups for i in group.columns}
+    present = {link.fiber_type.value for link in project.links}
+    rule_rows = tuple(ApplicationRuleRow(
+        id=row["id"], family=row["family"], fiber_types=row["fiber_types"],
+        test_wavelengths_nm=row["test_wavelengths_nm"], max_length_m=row["max_length_m"],
+        min_loss_db=row["min_loss_db"], max_loss_db=row["max_loss_db"], source=row["source"],
+        status=row["status"]) for row in describe_application_rows(table)
+        if row["id"] in shown and present & set(row["fiber_types"].split(", ")))
+    families = {row.family for row in rule_rows}
+    return ApplicationsView(
+        by_anchor=by_anchor, groups=groups, power_rows=tuple(power_rows), rule_rows=rule_rows,
+        family_sources=tuple((k, v) for k, v in table.sources.items() if k in families),
+        attenuators_db=tuple(project.testing.attenuators_db),
+        in_front=len(project.links) <= FRONT_MATRIX_MAX_LINKS,
+    )
+
+
+def split_groups(groups: tuple[MatrixGroup, ...],
+                 size: int = MATRIX_ROWS_PER_PART) -> list[tuple[MatrixGroup, ...]]:
+    """Matrix groups cut into runs of at most ``size`` rows (for PDF parts of their own)."""
+    parts: list[tuple[MatrixGroup, ...]] = []
+    current: list[MatrixGroup] = []
+    room = size
+    for group in groups:
+        start = 0
+        while start < len(group.rows):
+            take = group.rows[start:start + room]
+            current.append(MatrixGroup(group.fiber_type, group.columns, take, continued=start > 0))
+            start += len(take)
+            room -= len(take)
+            if room == 0:
+                parts.append(tuple(current))
+                current, room = [], size
+    if current or not parts:
+        parts.append(tuple(current))
+    return parts
+
+
+def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
+               assessed: ProjectApplications | None = None) -> ReportView:
+    """The whole report's view model from a validated project and its judgement.
+
+    ``assessed`` (applications.assess_project) adds the applications and power budgets.
+    """
     info, testing, limits = project.info, project.testing, project.limits
     frame = judgement.results
     rows_by_link = _result_views(frame)
@@ -359,6 +591,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         technicians=_technician_views(project.technicians, frame),
         components=components, paper=project.report.paper.value,
         generated_at=now, version=version,
+        apps=None if assessed is None else build_applications_view(project, assessed, anchors),
     )
 
 
