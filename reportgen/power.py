@@ -106,6 +106,37 @@ def round_for_json(value: float | None) -> float | None:
     return None if value is None else round(float(value), JSON_DECIMALS) + 0.0  # no -0.0
 
 
+def judged_loss_table(results: pd.DataFrame) -> pd.DataFrame:
+    """Worst and least judged loss per link and wavelength, as a frame.
+
+    One groupby over the judged rows (``judged`` true) of ``Judgement.results``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``link_id``, ``wavelength_nm``, ``worst_loss_db`` (max), ``least_loss_db``
+        (min) and ``results`` (count), one row per link and wavelength, sorted by both.
+    """
+    judged = results.loc[results["judged"].astype(bool), ["link_id", "wavelength_nm", "loss_db"]]
+    stats = judged.groupby(["link_id", "wavelength_nm"], sort=True)["loss_db"].agg(
+        ["max", "min", "size"])
+    return stats.rename(columns={"max": "worst_loss_db", "min": "least_loss_db",
+                                 "size": "results"}).reset_index()
+
+
+def loss_ranges_from_table(table: pd.DataFrame) -> dict[str, dict[int, LossRange]]:
+    """``{link_id: {wavelength_nm: LossRange}}`` from :func:`judged_loss_table`."""
+    ranges: dict[str, dict[int, LossRange]] = {}
+    # Plain lists: iterating a MultiIndex or a Series row by row is far slower.
+    for link_id, wavelength_nm, worst, least, size in zip(
+            table["link_id"].tolist(), table["wavelength_nm"].tolist(),
+            table["worst_loss_db"].tolist(), table["least_loss_db"].tolist(),
+            table["results"].tolist()):
+        ranges.setdefault(str(link_id), {})[int(wavelength_nm)] = LossRange(
+            float(worst), float(least), int(size))
+    return ranges
+
+
 def judged_loss_ranges(results: pd.DataFrame) -> dict[str, dict[int, LossRange]]:
     """Worst and least judged loss per link and wavelength, over strands and directions.
 
@@ -116,22 +147,15 @@ def judged_loss_ranges(results: pd.DataFrame) -> dict[str, dict[int, LossRange]]
     dict
         ``{link_id: {wavelength_nm: LossRange}}``; links without judged results are absent.
     """
-    judged = results.loc[results["judged"].astype(bool), ["link_id", "wavelength_nm", "loss_db"]]
-    stats = judged.groupby(["link_id", "wavelength_nm"], sort=True)["loss_db"].agg(
-        ["max", "min", "size"])
-    ranges: dict[str, dict[int, LossRange]] = {}
-    for (link_id, wavelength_nm), worst, least, size in zip(
-            stats.index, stats["max"], stats["min"], stats["size"]):
-        ranges.setdefault(str(link_id), {})[int(wavelength_nm)] = LossRange(
-            float(worst), float(least), int(size))
-    return ranges
+    return loss_ranges_from_table(judged_loss_table(results))
 
 
 def budget_limits_db(budgets: pd.DataFrame) -> dict[str, dict[int, float]]:
     """``{link_id: {wavelength_nm: limit_db}}`` from ``Judgement.budgets``."""
     limits: dict[str, dict[int, float]] = {}
-    for link_id, wavelength_nm, limit_db in zip(
-            budgets["link_id"], budgets["wavelength_nm"], budgets["limit_db"]):
+    for link_id, wavelength_nm, limit_db in zip(budgets["link_id"].tolist(),
+                                                budgets["wavelength_nm"].tolist(),
+                                                budgets["limit_db"].tolist()):
         limits.setdefault(str(link_id), {})[int(wavelength_nm)] = float(limit_db)
     return limits
 
