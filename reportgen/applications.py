@@ -31,6 +31,8 @@ from functools import lru_cache
 from importlib import resources
 from typing import TYPE_CHECKING, Any, Final
 
+import numpy as np
+import pandas as pd
 import yaml
 
 from .errors import InputProblem, ReportgenError
@@ -39,10 +41,11 @@ from .power import (
     TOLERANCE_DB,
     LossRange,
     PowerBudget,
-    round_for_json,
     assess_power,
     budget_limits_db,
-    judged_loss_ranges,
+    judged_loss_table,
+    loss_ranges_from_table,
+    round_for_json,
 )
 
 if TYPE_CHECKING:
@@ -328,7 +331,8 @@ class LinkApplications:
     link_id: str
     assessments: tuple[ApplicationAssessment, ...]  # listed in links.csv, in that order
     capable: tuple[str, ...]  # ids of every table entry supported as measured, table order
-    every: tuple[ApplicationAssessment, ...] = ()  # every table entry, table order
+    # every table entry, table order (a tuple, or EntryAssessments worked out on reading)
+    every: Sequence[ApplicationAssessment] = ()
 
     def to_json(self) -> dict[str, Any]:
         return {"applications": [a.to_json() for a in self.assessments],
@@ -398,14 +402,184 @@ def assess_link_applications(
 
     ``loss_ranges`` is :func:`reportgen.power.judged_loss_ranges` of the judged results.
     Raises KeyError for a listed id the table lacks (see :func:`validate_application_ids`).
+
+    Only the listed applications are assessed in full (with their reasons). ``capable``
+    comes from plain comparisons with the table's limits prepared once per fiber type
+    (:class:`_FiberPlan`); they give ``supported`` exactly when :func:`assess_application`
+    finds no reason. ``every`` holds the full assessment of each table entry, each worked
+    out when first read.
     """
     table = table or load_applications()
+    plan = _table_plan(table)
     measured = loss_ranges.get(link.link_id) or {}
-    every = tuple(assess_application(link, entry, measured) for entry in table.entries)
-    by_id = {assessment.id: assessment for assessment in every}
-    listed = tuple(by_id[application_id] for application_id in link.applications)
-    capable = tuple(a.id for a in every if a.verdict is ApplicationVerdict.SUPPORTED)
+    listed = tuple(assess_application(link, table.entries[plan.index[application_id]], measured)
+                   for application_id in link.applications)
+    capable = plan.for_fiber(link.fiber_type).capable(link.length_m, measured)
+    every = EntryAssessments(link, table, measured,
+                             {plan.index[a.id]: a for a in listed})
     return LinkApplications(link.link_id, listed, capable, every)
+
+
+@dataclass(frozen=True)
+class _EntryCheck:
+    """The comparisons of one table entry on one fiber type, limits widened by the tolerance."""
+
+    id: str
+    wavelengths_nm: tuple[int, ...]
+    length_limit_m: float  # max_length_m + TOLERANCE_DB
+    loss_limit_db: float  # max_loss_db + TOLERANCE_DB
+    least_limit_db: float | None  # min_loss_db − TOLERANCE_DB; None without a minimum
+
+    def verdict(self, length_m: float, measured: Mapping[int, LossRange]) -> ApplicationVerdict:
+        """The verdict of :func:`assess_application`, without building its reasons."""
+        failed = length_m > self.length_limit_m
+        untested = False
+        for wl in self.wavelengths_nm:
+            loss = measured.get(wl)
+            if loss is None:
+                untested = True
+            elif loss.worst_loss_db > self.loss_limit_db or (
+                    self.least_limit_db is not None and loss.least_loss_db < self.least_limit_db):
+                failed = True
+        return (ApplicationVerdict.NOT_SUPPORTED if failed
+                else ApplicationVerdict.UNTESTED if untested
+                else ApplicationVerdict.SUPPORTED)
+
+
+@dataclass(frozen=True)
+class _FiberPlan:
+    """The table entries that specify one fiber type, in table order."""
+
+    checks: tuple[_EntryCheck, ...]
+
+    def capable(self, length_m: float, measured: Mapping[int, LossRange]) -> tuple[str, ...]:
+        """Ids of the entries with no reason against them (see :func:`assess_application`).
+
+        Every comparison is the negation of the one that gives a reason there, so the
+        verdicts agree also for values that compare false both ways.
+        """
+        if not measured:
+            return ()
+        losses = {wl: (loss.worst_loss_db, loss.least_loss_db) for wl, loss in measured.items()}
+        capable = []
+        for check in self.checks:
+            if length_m > check.length_limit_m:
+                continue
+            for wl in check.wavelengths_nm:
+                loss = losses.get(wl)
+                if (loss is None or loss[0] > check.loss_limit_db
+                        or (check.least_limit_db is not None and loss[1] < check.least_limit_db)):
+                    break
+            else:
+                capable.append(check.id)
+        return tuple(capable)
+
+
+class _TablePlan:
+    """Position of every id and the :class:`_FiberPlan` of every fiber type of one table."""
+
+    def __init__(self, table: ApplicationTable) -> None:
+        self.table = table
+        self.index: dict[str, int] = {}
+        for position, entry in enumerate(table.entries):
+            self.index.setdefault(entry.id, position)
+        self._fibers: dict[FiberType, _FiberPlan] = {}
+        self._by_position: dict[FiberType, tuple[_EntryCheck | None, ...]] = {}
+
+    def by_position(self, fiber_type: FiberType) -> tuple[_EntryCheck | None, ...]:
+        """The check of every table entry on ``fiber_type``; None where it is not specified."""
+        found = self._by_position.get(fiber_type)
+        if found is None:
+            checks = {check.id: check for check in self.for_fiber(fiber_type).checks}
+            found = self._by_position[fiber_type] = tuple(
+                checks.get(entry.id) for entry in self.table.entries)
+        return found
+
+    def for_fiber(self, fiber_type: FiberType) -> _FiberPlan:
+        plan = self._fibers.get(fiber_type)
+        if plan is None:
+            checks = []
+            for entry in self.table.entries:
+                row = entry.limits_for(fiber_type)
+                if row is not None:
+                    checks.append(_EntryCheck(
+                        entry.id, entry.test_wavelengths_nm,
+                        row.max_length_m + TOLERANCE_DB, row.max_loss_db + TOLERANCE_DB,
+                        None if row.min_loss_db is None else row.min_loss_db - TOLERANCE_DB))
+            plan = self._fibers[fiber_type] = _FiberPlan(tuple(checks))
+        return plan
+
+
+_LAST_PLAN: list[_TablePlan] = []
+
+
+def _table_plan(table: ApplicationTable) -> _TablePlan:
+    """The plan of ``table``, kept for the table used last (tables are immutable)."""
+    if not _LAST_PLAN or _LAST_PLAN[0].table is not table:
+        _LAST_PLAN[:] = [_TablePlan(table)]
+    return _LAST_PLAN[0]
+
+
+class EntryAssessments(Sequence[ApplicationAssessment]):
+    """:func:`assess_application` of one link for every table entry, in table order.
+
+    Behaves as a tuple of :class:`ApplicationAssessment` (indexing, iteration, ``len``,
+    equality with tuples); each element is worked out when first read and then kept.
+    """
+
+    __slots__ = ("_link", "_table", "_entries", "_measured", "_done")
+
+    def __init__(self, link: Link, table: ApplicationTable, measured: Mapping[int, LossRange],
+                 known: Mapping[int, ApplicationAssessment] | None = None) -> None:
+        self._link = link
+        self._table = table
+        self._entries = table.entries
+        self._measured = measured
+        self._done: list[ApplicationAssessment | None] = [None] * len(table.entries)
+        if known:
+            for position, assessment in known.items():
+                self._done[position] = assessment
+
+    def __len__(self) -> int:
+        return len(self._entries)
+
+    def verdict(self, index: int) -> ApplicationVerdict:
+        """``self[index].verdict``, without building the assessment when not yet read."""
+        position = range(len(self._entries))[index]
+        done = self._done[position]
+        if done is not None:
+            return done.verdict
+        check = _table_plan(self._table).by_position(self._link.fiber_type)[position]
+        if check is None:
+            return ApplicationVerdict.NOT_SUPPORTED
+        return check.verdict(self._link.length_m, self._measured)
+
+    def __getitem__(self, index):  # type: ignore[override]
+        if isinstance(index, slice):
+            return tuple(self)[index]
+        position = range(len(self._entries))[index]  # IndexError as a tuple's
+        done = self._done[position]
+        if done is None:
+            done = self._done[position] = assess_application(
+                self._link, self._entries[position], self._measured)
+        return done
+
+    def __iter__(self):
+        return (self[position] for position in range(len(self._entries)))
+
+    def __eq__(self, other: object) -> bool:
+        if isinstance(other, (EntryAssessments, tuple)):
+            return tuple(self) == tuple(other)
+        return NotImplemented
+
+    def __hash__(self) -> int:
+        return hash(tuple(self))
+
+    def __repr__(self) -> str:
+        return repr(tuple(self))
+
+    def __reduce__(self):
+        return tuple, (tuple(self),)
 
 
 # ------------------------------------------------------------------ project
@@ -420,10 +594,13 @@ class ProjectApplications:
     table: ApplicationTable
 
     def for_link(self, link_id: str) -> LinkApplications:
-        for link in self.links:
-            if link.link_id == link_id:
-                return link
-        raise KeyError(link_id)
+        index = self.__dict__.get("_by_link_id")
+        if index is None:  # built on first use: summary.json asks once per link
+            index = {}
+            for link in self.links:
+                index.setdefault(link.link_id, link)  # the first of a repeated id, as before
+            object.__setattr__(self, "_by_link_id", index)
+        return index[link_id]
 
     def link_json(self, link_id: str) -> dict[str, Any]:
         """``applications``, ``capable`` and ``power`` of one link for summary.json."""
@@ -440,19 +617,119 @@ def assess_project(project: Project, judgement: Judgement) -> ProjectApplication
     """Applications and transceiver power budgets of every link of a judged project.
 
     ``judgement`` is :class:`reportgen.judge.Judgement` (its ``results`` and ``budgets``).
+    Gives the same as :func:`assess_link_applications` on every link; ``capable`` is
+    worked out for all links at once (:func:`capable_by_link`).
     """
     table = load_applications()
-    ranges = judged_loss_ranges(judgement.results)
-    limits = budget_limits_db(judgement.budgets)
-    attenuators_db = project.testing.attenuators_db
-    links = tuple(assess_link_applications(link, ranges, table) for link in project.links)
-    power = {
-        link.link_id: assess_power(
-            link, project.transceivers[link.transceiver] if link.transceiver else None,
-            ranges, limits, attenuators_db)
-        for link in project.links
-    }
-    return ProjectApplications(links, power, table)
+    plan = _table_plan(table)
+    losses = judged_loss_table(judgement.results)
+    ranges = loss_ranges_from_table(losses)
+    links = project.links
+    capable = capable_by_link(links, losses, table)
+    assessed = []
+    for link, link_capable in zip(links, capable):
+        measured = ranges.get(link.link_id) or {}
+        if link.applications:
+            listed = tuple(assess_application(link, table.entries[plan.index[application_id]],
+                                              measured)
+                           for application_id in link.applications)
+            every = EntryAssessments(link, table, measured,
+                                     {plan.index[a.id]: a for a in listed})
+        else:
+            listed = ()
+            every = EntryAssessments(link, table, measured)
+        assessed.append(LinkApplications(link.link_id, listed, link_capable, every))
+    power: dict[str, PowerBudget | None] = dict.fromkeys(link.link_id for link in links)
+    fitted = [link for link in links if link.transceiver]
+    if fitted:
+        limits = budget_limits_db(judgement.budgets)
+        attenuators_db = project.testing.attenuators_db
+        for link in fitted:
+            power[link.link_id] = assess_power(
+                link, project.transceivers[link.transceiver], ranges, limits, attenuators_db)
+    return ProjectApplications(tuple(assessed), power, table)
+
+
+def capable_by_link(
+    links: Sequence[Link], losses: pd.DataFrame, table: ApplicationTable | None = None
+) -> list[tuple[str, ...]]:
+    """``capable`` of every link (see :func:`assess_link_applications`), in links order.
+
+    Array comparisons of a links × wavelengths table of worst and least judged loss with
+    each entry's limits for the links' fiber type; an entry is capable when its length,
+    maximum loss and minimum loss comparisons give no reason and every needed wavelength
+    has a judged result. Links with the same outcome share one tuple.
+
+    Parameters
+    ----------
+    links : sequence of Link
+        Fiber type and documented length ``length_m``. [m]
+    losses : pandas.DataFrame
+        :func:`reportgen.power.judged_loss_table` of the judged results.
+    table : ApplicationTable, optional
+        The application table (default: the built-in one).
+
+    References
+    ----------
+    .. [1] IEEE 802.3, INCITS FC-PI, ITU-T G.984.2 / G.987.2 / G.9807.1: maximum channel
+       insertion loss and reach; PON classes also a minimum loss.
+    """
+    table = table or load_applications()
+    plan = _table_plan(table)
+    link_ids = pd.Index([link.link_id for link in links])
+    if not link_ids.is_unique:  # not after validation; keep the per-link meaning anyway
+        ranges = loss_ranges_from_table(losses)
+        return [plan.for_fiber(link.fiber_type).capable(link.length_m,
+                                                        ranges.get(link.link_id) or {})
+                for link in links]
+    rows = link_ids.get_indexer(losses["link_id"].astype(object))
+    known = rows >= 0
+    rows = rows[known]
+    wavelengths_nm = sorted({int(wl) for wl in losses["wavelength_nm"].tolist()})
+    column = {wl: at for at, wl in enumerate(wavelengths_nm)}
+    columns = np.searchsorted(wavelengths_nm, losses["wavelength_nm"].to_numpy()[known])
+    shape = (len(links), len(wavelengths_nm))
+    present = np.zeros(shape, dtype=bool)
+    worst_db = np.zeros(shape)
+    least_db = np.zeros(shape)
+    present[rows, columns] = True
+    worst_db[rows, columns] = losses["worst_loss_db"].to_numpy(dtype=float)[known]
+    least_db[rows, columns] = losses["least_loss_db"].to_numpy(dtype=float)[known]
+    length_m = np.array([link.length_m for link in links], dtype=float)
+
+    capable: list[tuple[str, ...]] = [()] * len(links)
+    by_fiber: dict[FiberType, list[int]] = {}
+    for at, link in enumerate(links):
+        by_fiber.setdefault(link.fiber_type, []).append(at)
+    for fiber_type, members in by_fiber.items():
+        checks = plan.for_fiber(fiber_type).checks
+        if not checks or not wavelengths_nm:
+            continue
+        at = np.array(members)
+        ok = np.empty((len(at), len(checks)), dtype=bool)
+        for index, check in enumerate(checks):
+            # The negation of each comparison that gives a reason in assess_application.
+            fits = ~(length_m[at] > check.length_limit_m)
+            for wl in check.wavelengths_nm:
+                if wl not in column:
+                    fits[:] = False
+                    break
+                col = column[wl]
+                fits &= present[at, col] & ~(worst_db[at, col] > check.loss_limit_db)
+                if check.least_limit_db is not None:
+                    fits &= ~(least_db[at, col] < check.least_limit_db)
+            ok[:, index] = fits
+        # One tuple per distinct outcome: each row of `ok` as the bits of a Python int.
+        codes = [int.from_bytes(row, "little") for row in np.packbits(ok, axis=1,
+                                                                      bitorder="little")]
+        outcomes: dict[int, tuple[str, ...]] = {}
+        for link_at, code, fits in zip(members, codes, ok):
+            found = outcomes.get(code)
+            if found is None:
+                found = outcomes[code] = tuple(
+                    check.id for check, fit in zip(checks, fits.tolist()) if fit)
+            capable[link_at] = found
+    return capable
 
 
 def application_matrix(
@@ -473,11 +750,20 @@ def application_matrix(
         wanted = {a.id for link in assessed.links for a in link.assessments}
         wanted |= {application_id for link in assessed.links for application_id in link.capable}
         application_ids = [i for i in assessed.table.ids if i in wanted]
+    position = {}
+    for index, application_id in enumerate(assessed.table.ids):
+        position.setdefault(application_id, index)
+    columns = [(application_id, position[application_id]) for application_id in application_ids]
     rows = []
     for link in assessed.links:
-        by_id = {a.id: a for a in link.every}
         listed = {a.id for a in link.assessments}
         rows.append({"link_id": link.link_id, "cells": [
-            {"id": i, "verdict": by_id[i].verdict.value, "listed": i in listed}
-            for i in application_ids]})
+            {"id": i, "verdict": _verdict(link.every, at).value, "listed": i in listed}
+            for i, at in columns]})
     return {"applications": list(application_ids), "links": rows}
+
+
+def _verdict(every: Sequence[ApplicationAssessment], position: int) -> ApplicationVerdict:
+    if isinstance(every, EntryAssessments):
+        return every.verdict(position)
+    return every[position].verdict

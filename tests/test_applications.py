@@ -7,9 +7,12 @@ Hand-worked cases use the test limit set of tests/builders.py (test inputs, not 
 from __future__ import annotations
 
 import dataclasses
+import pickle
+import random
 
+import pandas as pd
 import pytest
-from hypothesis import given
+from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from reportgen.applications import (
@@ -19,6 +22,7 @@ from reportgen.applications import (
     assess_application,
     assess_link_applications,
     assess_project,
+    capable_by_link,
     describe_rows,
     load_applications,
     parse_applications,
@@ -350,3 +354,114 @@ def test_results_are_frozen():
     got = assess_application(link, TABLE.get("10GBASE-SR"), _ranges((850, 1.0, 1.0)))
     with pytest.raises(dataclasses.FrozenInstanceError):
         got.verdict = ApplicationVerdict.UNTESTED  # type: ignore[misc]
+
+
+# ------------------------------------------- fast paths against assess_application
+# The per-link and per-project shortcuts (capable from plain comparisons or arrays,
+# every entry worked out on reading, matrix verdicts without reasons) must give exactly
+# what assess_application gives entry by entry. Limits are the table's; inputs random.
+
+WAVELENGTHS_NM = (850, 1300, 1310, 1550)
+
+
+def _straightforward(link, measured):
+    every = tuple(assess_application(link, entry, measured) for entry in TABLE.entries)
+    by_id = {a.id: a for a in every}
+    return (tuple(by_id[i] for i in link.applications),
+            tuple(a.id for a in every if a.verdict is ApplicationVerdict.SUPPORTED), every)
+
+
+def _check_agrees(got, link, measured):
+    listed, capable, every = _straightforward(link, measured)
+    assert got.link_id == link.link_id
+    assert got.assessments == listed
+    assert got.capable == capable
+    assert [got.every.verdict(i) for i in range(len(every))] == [a.verdict for a in every]
+    assert got.every == every and tuple(got.every) == every and len(got.every) == len(every)
+    assert got.to_json() == {"applications": [a.to_json() for a in listed],
+                             "capable": list(capable)}
+
+
+_loss_db = st.one_of(st.floats(min_value=0.0, max_value=40.0),
+                     st.sampled_from([1.5, 1.9, 2.6, 2.9, 2.9 + 1e-10, 2.9 + 1e-8, 13.0, 28.0]))
+_measured = st.dictionaries(
+    st.sampled_from(WAVELENGTHS_NM),
+    st.tuples(_loss_db, _loss_db).map(lambda pair: LossRange(max(pair), min(pair), 2)))
+
+
+@settings(max_examples=150, deadline=None)
+@given(fiber_type=st.sampled_from(list(FiberType)),
+       length_m=st.one_of(st.floats(min_value=1.0, max_value=40000.0),
+                          st.sampled_from([100.0, 400.0, 400.0 + 1e-10, 20000.0])),
+       measured=_measured,
+       listed=st.lists(st.sampled_from(REQUIRED_IDS), max_size=3, unique=True))
+def test_link_shortcuts_agree_with_assess_application(fiber_type, length_m, measured, listed):
+    link = make_link(fiber_type=fiber_type, length_m=length_m, applications=tuple(listed))
+    got = assess_link_applications(link, {"L1": measured})
+    _check_agrees(got, link, measured)
+    [vectorised] = capable_by_link([link], _loss_table(link.link_id, measured))
+    assert vectorised == got.capable
+
+
+def _loss_table(link_id, measured):
+    rows = sorted(measured.items())
+    return pd.DataFrame({"link_id": [link_id] * len(rows),
+                         "wavelength_nm": [wl for wl, _ in rows],
+                         "worst_loss_db": [r.worst_loss_db for _, r in rows],
+                         "least_loss_db": [r.least_loss_db for _, r in rows],
+                         "results": [r.results for _, r in rows]})
+
+
+def _random_project(seed, links=300):
+    """OM4 and OS2 links (the test limit set's fiber types) with random lengths and losses,
+    some wavelengths or whole links untested, some negative (invalid) readings."""
+    rng = random.Random(seed)
+    built, results = [], []
+    for number in range(links):
+        fiber = rng.choice([FiberType.OM4, FiberType.OS2])
+        if fiber is FiberType.OM4:
+            length_m, wavelengths, top_db = rng.uniform(5, 600), (850, 1300), 4.0
+        else:
+            length_m, wavelengths, top_db = rng.uniform(100, 25000), (1310, 1550), 38.0
+        link_id = f"R{number:04d}"
+        built.append(make_link(link_id, fiber_type=fiber, length_m=round(length_m), strands=2,
+                               applications=tuple(rng.sample(REQUIRED_IDS, rng.randint(0, 2)))))
+        if rng.random() < 0.05:
+            continue  # not tested at all
+        for wl in wavelengths:
+            if rng.random() < 0.1:
+                continue  # this wavelength untested
+            for strand in (1, 2):
+                for direction in ("ab", "ba"):
+                    loss_db = round(rng.uniform(-0.3 if rng.random() < 0.05 else 0.0, top_db), 2)
+                    results.append(dict(link_id=link_id, wavelength_nm=wl, strand=strand,
+                                        direction=direction, loss_db=loss_db))
+    return make_project(built, results)
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_project_shortcuts_agree_with_assess_application(seed):
+    project = _random_project(seed)
+    judgement = judge_project(project)
+    assessed = assess_project(project, judgement)
+    ranges = judged_loss_ranges(judgement.results)
+    assert [link.link_id for link in assessed.links] == [link.link_id for link in project.links]
+    for link, got in zip(project.links, assessed.links):
+        _check_agrees(got, link, ranges.get(link.link_id) or {})
+        assert assessed.for_link(link.link_id) is got
+    # the matrix reads verdicts without building every assessment
+    matrix = assessed.matrix(list(TABLE.ids))
+    for link, row in zip(project.links, matrix["links"]):
+        every = _straightforward(link, ranges.get(link.link_id) or {})[2]
+        assert [cell["verdict"] for cell in row["cells"]] == [a.verdict.value for a in every]
+    # pickled, every entry travels as a plain tuple
+    again = pickle.loads(pickle.dumps(assessed.links[0]))
+    assert again == assessed.links[0] and isinstance(again.every, tuple)
+
+
+def test_project_with_repeated_link_ids_keeps_the_per_link_meaning():
+    a = make_link("L1", fiber_type=FiberType.OM4, length_m=50)
+    b = make_link("L1", fiber_type=FiberType.OS2, length_m=50)
+    table = _loss_table("L1", _ranges((850, 1.0, 1.0)))
+    assert capable_by_link([a, b], table) == [
+        assess_link_applications(a, {"L1": _ranges((850, 1.0, 1.0))}).capable, ()]
