@@ -200,7 +200,14 @@ def as_written(value: Any) -> str:
 
 def parse_yaml(text: str, shown: str) -> tuple[Any, list[InputProblem]]:
     """YAML data from text; a syntax error gives one problem with line and column."""
-    loader = _Loader(text)
+    try:
+        loader = _Loader(text)  # checks that every character is one YAML allows
+    except yaml.reader.ReaderError as error:
+        line = text.count("\n", 0, error.position) + 1
+        column = error.position - (text.rfind("\n", 0, error.position) + 1) + 1
+        return None, [InputProblem(shown, line, f"column {column}",
+                                   "valid YAML: printable characters, tabs and line breaks only",
+                                   f"character U+{error.character:04X}")]
     try:
         data = loader.get_single_data()
     except yaml.YAMLError as error:

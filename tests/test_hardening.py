@@ -95,6 +95,10 @@ BAD = [
     pytest.param("project.yaml", Y + "deep: " + "[" * 600 + "]" * 600 + "\n",
                  ["project.yaml: expected valid YAML nested at most a few hundred levels deep "
                   "(got 'nesting too deep to read')"], id="yaml nested too deep"),
+    # fuzz: a control character in YAML was an internal ReaderError
+    pytest.param("project.yaml", Y.replace("Test backbone", "Test\x1fbackbone"),
+                 ["project.yaml, line 2, column 14: expected valid YAML: printable characters, tabs and line "
+                  "breaks only (got 'character U+001F')"], id="yaml control character"),
     # an alias bomb is never expanded into the message
     pytest.param("project.yaml", Y + "technicians: &a [&b [&c [&d [x, x, x], *d, *d], *c, *c], *b, *b]\n",
                  ["project.yaml, technicians: expected a list of names (got '[[[[...], [...], [...]], "
