@@ -25,7 +25,10 @@ from .model import Project
 OUTPUT_NAMES: Final = ("report.html", "report.pdf", "results.csv", "summary.json")
 TEMP_PREFIX: Final = ".reportgen-partial-"
 SUMMARY_FORMAT: Final = 1
-DECIMALS: Final = 4  # computed dB values are written to 0.0001 dB
+# Computed dB values are written with the report's resolution (0.01 dB, the resolution
+# of the meters' results), rounded the same way, so every number in the report
+# appears identically here.
+DECIMALS: Final = 2
 
 RESULTS_COLUMNS: Final = (
     "link_id", "strand", "wavelength_nm", "direction", "loss_db", "tested_at", "limit_db",
@@ -52,8 +55,8 @@ def results_csv_bytes(results: pd.DataFrame) -> bytes:
         "direction": results["direction"],
         "loss_db": results["loss_db"],
         "tested_at": results["tested_at_text"],
-        "limit_db": results["limit_db"].round(DECIMALS),
-        "margin_db": results["margin_db"].round(DECIMALS),
+        "limit_db": results["limit_db"].map(_rounded),
+        "margin_db": results["margin_db"].map(_rounded),
         "verdict": results["verdict"],
         "flags": results["flags"],
         "technician": results["technician"],
@@ -70,10 +73,18 @@ def results_csv_bytes(results: pd.DataFrame) -> bytes:
     return buffer.getvalue().encode("utf-8")
 
 
+def _rounded(value: float) -> float:
+    """Round like the report's number format (correctly rounded, no negative zero)."""
+    if math.isnan(value):
+        return value
+    rounded = float(f"{value:.{DECIMALS}f}")
+    return rounded + 0.0 if rounded == 0 else rounded
+
+
 def _number(value: float | None) -> float | None:
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return None
-    return round(float(value), DECIMALS)
+    return _rounded(float(value))
 
 
 def summary_dict(project: Project, judgement: Judgement,

@@ -18,6 +18,7 @@ from . import __version__, export
 from .errors import InputError, InputProblem, ReportgenError
 from .applications import assess_project
 from .judge import Judgement, judge_project
+from .messages import PAGE_LABEL
 from .model import Project
 from .validate import load_project
 
@@ -146,5 +147,5 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                                    version=version, extras=outcome.extras)
     pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
                                title=outcome.project.info.title, created=now,
-                               page_label=document.page_label, progress=progress)
+                               page_label=PAGE_LABEL, progress=progress)
     return {"report.html": document.html.encode("utf-8"), "report.pdf": pdf_bytes}

@@ -97,16 +97,29 @@ def print_limit_set(console: Console, set_id: str) -> None:
 
 
 def print_applications(console: Console) -> None:
+    """The application table: limits per fiber type, then each entry's source and status."""
     from .applications import describe_rows as application_rows
 
     rows = application_rows()
-    table = Table(header_style="bold", title="Applications", title_justify="left")
-    columns = list(rows[0]) if rows else []
-    for column in columns:
-        table.add_column(column)
+    table = Table(header_style="bold", title="Applications (maximum channel insertion loss "
+                  "and length per fiber type)", title_justify="left")
+    for column, justify in (("id", "left"), ("fiber types", "left"), ("tested at nm", "left"),
+                            ("max length m", "right"), ("min dB", "right"),
+                            ("max dB", "right")):
+        table.add_column(column, justify=justify, no_wrap=column == "id")
     for row in rows:
-        table.add_row(*("" if row[c] is None else str(row[c]) for c in columns))
+        table.add_row(row["id"], row["fiber_types"], row["test_wavelengths_nm"],
+                      f"{row['max_length_m']:,.0f}", _optional_db(row["min_loss_db"]),
+                      _optional_db(row["max_loss_db"]))
     console.print(table)
+    console.print("Sources:")
+    for row in rows:
+        console.print(f"  {row['id']} on {row['fiber_types']}: {row['source']} — {row['status']}",
+                      markup=False)
+
+
+def _optional_db(value: float | None) -> str:
+    return "" if value is None else f"{value:.2f}"
 
 
 @contextmanager

@@ -1,0 +1,156 @@
+"""End to end: the command line on the demo project and on bad input."""
+from __future__ import annotations
+
+import csv
+import hashlib
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pypdf
+import pytest
+
+from reportgen import __version__, cli
+
+ROOT = Path(__file__).resolve().parent.parent
+DEMO = ROOT / "demo_project"
+
+
+def _digest(folder: Path) -> str:
+    sha = hashlib.sha256()
+    for path in sorted(folder.rglob("*")):
+        sha.update(str(path.relative_to(folder)).encode())
+        if path.is_file():
+            sha.update(path.read_bytes())
+    return sha.hexdigest()
+
+
+@pytest.fixture(scope="module")
+def demo_build(tmp_path_factory):
+    """The demo project built once for this module (the real PDF)."""
+    out = tmp_path_factory.mktemp("demo") / "out"
+    before = _digest(DEMO)
+    assert cli.main(["build", str(DEMO), "-o", str(out)]) == 0
+    assert _digest(DEMO) == before  # the project folder is never modified
+    return out
+
+
+@pytest.mark.slow
+def test_demo_build_writes_the_four_outputs(demo_build):
+    assert sorted(p.name for p in demo_build.iterdir()) == [
+        "report.html", "report.pdf", "results.csv", "summary.json"]
+
+
+@pytest.mark.slow
+def test_demo_summary_matches_results_csv(demo_build):
+    summary = json.loads((demo_build / "summary.json").read_text(encoding="utf-8"))
+    with (demo_build / "results.csv").open(encoding="utf-8") as handle:
+        rows = list(csv.DictReader(handle))
+    assert summary["format"] == 1
+    assert summary["totals"]["links"] == len(summary["links"]) == 30
+    # The demo is built to show one failing and one incomplete link (demo_project/README
+    # of the scenario: A-BB-07 fails, CB-05 misses 1550 nm on strand 2).
+    verdicts = {link["link_id"]: link["verdict"] for link in summary["links"]}
+    assert verdicts["A-BB-07"] == "fail"
+    assert verdicts["CB-05"] == "incomplete"
+    assert summary["totals"] == {"links": 30, "pass": 28, "fail": 1, "incomplete": 1}
+    # worst margin = smallest margin of the judged rows of that link in results.csv
+    for link in summary["links"]:
+        judged = [float(r["margin_db"]) for r in rows
+                  if r["link_id"] == link["link_id"] and r["verdict"] in ("pass", "fail")]
+        assert link["worst_margin_db"] == (min(judged) if judged else None)
+    assert {r["verdict"] for r in rows} == {"pass", "fail", "superseded", "invalid"}
+
+
+@pytest.mark.slow
+def test_demo_pdf_and_html_name_every_link_and_verdict(demo_build):
+    summary = json.loads((demo_build / "summary.json").read_text(encoding="utf-8"))
+    html = (demo_build / "report.html").read_text(encoding="utf-8")
+    reader = pypdf.PdfReader(demo_build / "report.pdf")
+    text = "\n".join(page.extract_text() or "" for page in reader.pages)
+    assert len(reader.pages) >= len(summary["links"])  # at least a page per link
+    for link in summary["links"]:
+        assert link["link_id"] in html and link["link_id"] in text
+    for verdict in ("pass", "fail", "incomplete"):
+        assert verdict in html and verdict in text
+    assert f"Page 1 of {len(reader.pages)}" in (reader.pages[0].extract_text() or "")
+
+
+def test_check_exit_status_reflects_link_verdicts(make_project, capsys):
+    # The minimal project has missing results: incomplete links -> exit 1.
+    assert cli.main(["check", str(make_project())]) == 1
+    assert "incomplete" in capsys.readouterr().out
+
+
+def test_check_exit_0_when_every_link_passes(make_project, capsys):
+    rows = "".join(f"L1,{s},{w},{d},1.0,2030-01-15\n" for s in (1, 2) for w in (850, 1300)
+                   for d in ("ab", "ba"))
+    rows += "".join(f"L2,1,{w},{d},1.5,2030-01-15\n" for w in (1310, 1550) for d in ("ab", "ba"))
+    project = make_project({"results/day1.csv":
+                            "link_id,strand,wavelength_nm,direction,loss_db,tested_at\n" + rows})
+    assert cli.main(["check", str(project)]) == 0
+    assert "2 links: 2 pass, 0 fail, 0 incomplete" in capsys.readouterr().out
+
+
+def test_bad_input_exits_2_and_writes_nothing(make_project, tmp_path, capsys):
+    project = make_project({"results/day1.csv": "link_id,wavelength_nm,loss_db,tested_at\n"
+                                                "NOPE,850,1.2,2030-01-15\n"})
+    out = tmp_path / "out"
+    assert cli.main(["build", str(project), "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "results/day1.csv, line 2, link_id:" in err
+    assert "Traceback" not in err
+    assert not out.exists()
+
+
+def test_output_folder_inside_results_is_refused(make_project, capsys):
+    project = make_project()
+    assert cli.main(["build", str(project), "-o", str(project / "results")]) == 2
+    assert "input folders" in capsys.readouterr().err
+
+
+def test_data_only_build_and_default_output_folder(make_project):
+    project = make_project()
+    assert cli.main(["build", str(project), "--data-only"]) == 0
+    assert sorted(p.name for p in (project / "report").iterdir()) == ["results.csv",
+                                                                      "summary.json"]
+    # a second build reads the project again, ignoring its own report/ folder
+    assert cli.main(["build", str(project), "--data-only"]) == 0
+
+
+def test_limits_and_applications_listings(capsys):
+    assert cli.main(["limits"]) == 0
+    out = capsys.readouterr().out
+    assert "tia-568.3-d" in out and "iso-11801-1" in out
+    assert cli.main(["limits", "iso-11801-1"]) == 0
+    assert "OS2" in capsys.readouterr().out
+    assert cli.main(["limits", "nope"]) == 2
+    assert "no built-in limit set 'nope'" in capsys.readouterr().err
+    assert cli.main(["applications"]) == 0
+    assert "10GBASE-SR" in capsys.readouterr().out
+
+
+def test_version_help_and_usage_errors(capsys):
+    assert cli.main(["--version"]) == 0
+    assert __version__ in capsys.readouterr().out
+    assert cli.main(["--help"]) == 0
+    assert "Examples" in capsys.readouterr().out
+    assert cli.main(["bogus"]) == 2
+    assert cli.main(["check"]) == 2
+
+
+def test_installed_package_runs_from_another_folder(tmp_path):
+    """The wheel ships templates and data: run the installed package outside the checkout."""
+    probe = subprocess.run([sys.executable, "-c", "import reportgen, sys; print(reportgen.__file__)"],
+                           cwd=tmp_path, capture_output=True, text=True)
+    location = probe.stdout.strip()
+    if probe.returncode != 0 or Path(location).resolve().is_relative_to(ROOT):
+        pytest.skip("reportgen is not installed outside the checkout (run pip install . first)")
+    out = tmp_path / "out"
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
+    done = subprocess.run([sys.executable, "-m", "reportgen", "build", str(DEMO), "-o", str(out)],
+                          cwd=tmp_path, capture_output=True, text=True, env=env)
+    assert done.returncode == 0, done.stderr
+    assert (out / "report.pdf").stat().st_size > 10_000
