@@ -28,6 +28,7 @@ import pandas as pd
 from .budget import budget_frame
 from .model import (
     Directions,
+    FiberType,
     Instrument,
     Link,
     LinkVerdict,
@@ -102,17 +103,33 @@ def judge_project(project: Project) -> Judgement:
 def required_results(links: Sequence[Link], testing: Testing) -> pd.DataFrame:
     """Every result a complete test must contain: link × strand × wavelength × direction.
 
-    With ``directions: one`` the direction column is ``"any"``.
+    With ``directions: one`` the direction column is ``"any"``. Rows in links order, then
+    strand, wavelength (as listed in ``testing``) and direction.
     """
     directions = (["ab", "ba"] if testing.directions is Directions.BOTH else [ANY_DIRECTION])
-    frame = pd.DataFrame({
-        "link_id": [link.link_id for link in links],
-        "strand": [list(range(1, link.strands + 1)) for link in links],
-        "wavelength_nm": [list(testing.wavelengths_nm[link.fiber_type.category]) for link in links],
+    wavelengths: dict[FiberType, list[int]] = {}
+    link_ids: list[str] = []
+    strands: list[int] = []
+    wavelengths_nm: list[int] = []
+    directions_out: list[str] = []
+    for link in links:
+        per_strand = wavelengths.get(link.fiber_type)
+        if per_strand is None:
+            per_strand = wavelengths[link.fiber_type] = list(
+                testing.wavelengths_nm[link.fiber_type.category])
+        width = len(per_strand) * len(directions)
+        link_ids += [link.link_id] * (link.strands * width)
+        for strand in range(1, link.strands + 1):
+            strands += [strand] * width
+            for wavelength_nm in per_strand:
+                wavelengths_nm += [wavelength_nm] * len(directions)
+                directions_out += directions
+    return pd.DataFrame({
+        "link_id": pd.Series(link_ids, dtype="str"),
+        "strand": pd.Series(strands, dtype="int64"),
+        "wavelength_nm": pd.Series(wavelengths_nm, dtype="int64"),
+        "direction": pd.Series(directions_out, dtype="str"),
     })
-    frame = frame.explode("strand").explode("wavelength_nm")
-    frame = frame.merge(pd.DataFrame({"direction": directions}), how="cross")
-    return frame.astype({"strand": "int64", "wavelength_nm": "int64"})[KEY].reset_index(drop=True)
 
 
 def judge_results(
@@ -127,16 +144,16 @@ def judge_results(
     Rows keep their input order (files by name, then line).
     """
     frame = results.reset_index(drop=True).copy()
-    frame["_order"] = np.arange(len(frame))
-    frame = frame.merge(budgets[["link_id", "wavelength_nm", "limit_db"]],
-                        on=["link_id", "wavelength_nm"], how="left", validate="many_to_one")
-    frame = frame.sort_values("_order", ignore_index=True)
+    pairs = ["link_id", "wavelength_nm"]
+    frame_pairs, budget_pairs, required_pairs = _key_codes(
+        [frame, budgets, required if required is not None else frame.iloc[:0]], pairs)
+    frame["limit_db"] = _lookup(frame_pairs, budget_pairs,
+                                budgets["limit_db"].to_numpy(dtype=float))
     frame["margin_db"] = frame["limit_db"] - frame["loss_db"]
     invalid = frame["loss_db"] < -uncertainty_db - TOLERANCE_DB
-    latest_first = frame.sort_values(["tested_at", "_order"], ascending=False, kind="stable")
-    rank = latest_first.groupby(KEY, sort=False).cumcount().reindex(frame.index)
-    group_size = frame.groupby(KEY, sort=False)["_order"].transform("size")
-    latest = rank == 0
+    latest_array, group_size = _latest_of_groups(
+        _key_codes([frame], KEY)[0], frame["tested_at"])
+    latest = pd.Series(latest_array, index=frame.index)
     passed = frame["loss_db"] <= frame["limit_db"] + TOLERANCE_DB
     verdict = np.select(
         [invalid, ~latest, passed],
@@ -152,42 +169,103 @@ def judge_results(
         ResultFlag.NEGATIVE_LOSS: invalid,
         ResultFlag.RETEST: latest & (group_size > 1),
         ResultFlag.CALIBRATION_OVERDUE: _calibration_overdue(frame, instruments),
-        ResultFlag.NOT_REQUIRED: _not_required(frame, required),
+        ResultFlag.NOT_REQUIRED: pd.Series(
+            False if required is None else ~np.isin(frame_pairs, required_pairs),
+            index=frame.index),
     }
     frame["flags"] = _join_flags(frame.index, flags)
-    return frame.drop(columns="_order")
+    return frame
+
+
+def _key_codes(frames: Sequence[pd.DataFrame], key: Sequence[str]) -> list[np.ndarray]:
+    """One integer per row for the values of the ``key`` columns, comparable across frames.
+
+    Rows of any of ``frames`` get the same code exactly when their key values are equal
+    (as for a merge on ``key``); -1 where a key value is missing. Works for empty frames
+    whatever their column types.
+    """
+    sizes = [len(frame) for frame in frames]
+    combined = np.zeros(sum(sizes), dtype=np.int64)
+    missing = np.zeros(sum(sizes), dtype=bool)
+    for column in key:
+        parts = [frame[column] for frame in frames if len(frame)]
+        if not parts:
+            break
+        codes, uniques = pd.factorize(pd.concat(parts, ignore_index=True))
+        missing |= codes < 0
+        combined = combined * max(len(uniques), 1) + np.maximum(codes, 0)
+        if combined.size and combined.max() > 2**40:  # keep far from overflowing int64
+            combined = pd.factorize(combined)[0].astype(np.int64)
+    combined[missing] = -1
+    return np.split(combined, np.cumsum(sizes)[:-1])
+
+
+def _lookup(codes: np.ndarray, table_codes: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """``values`` of the ``table_codes`` row matching each of ``codes``; NaN where none.
+
+    Like a left merge with ``validate="many_to_one"``: the table's keys must be unique.
+    """
+    index = pd.Index(table_codes)
+    if not index.is_unique:
+        raise pd.errors.MergeError(
+            "Merge keys are not unique in right dataset; not a many-to-one merge")
+    at = index.get_indexer(codes)
+    found = np.full(len(codes), np.nan)
+    found[at >= 0] = values[at[at >= 0]]
+    return found
+
+
+def _latest_of_groups(groups: np.ndarray, tested_at: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Which row of each group is the latest, and the size of every row's group.
+
+    Latest: the latest ``tested_at`` (a time before none), ties to the row read last.
+    Rows without a group (code -1) are never latest and count as a group of 0.
+    """
+    count = len(groups)
+    time_codes = pd.factorize(tested_at, sort=True)[0]  # -1: no time
+    order = np.lexsort((np.arange(count), time_codes, time_codes >= 0, groups))
+    in_order = groups[order]
+    last = np.ones(count, dtype=bool)
+    last[:-1] = in_order[:-1] != in_order[1:]
+    latest = np.zeros(count, dtype=bool)
+    latest[order[last]] = True
+    has_group = groups >= 0
+    latest &= has_group
+    sizes = np.bincount(groups[has_group], minlength=1)
+    return latest, np.where(has_group, sizes[np.maximum(groups, 0)], 0)
 
 
 def _join_flags(index: pd.Index, flags: Mapping[ResultFlag, pd.Series]) -> pd.Series:
-    joined = pd.Series("", index=index, dtype=object)
+    joined = np.full(len(index), "", dtype=object)
     for flag, mask in flags.items():
-        mask = mask.fillna(False).astype(bool)
-        joined[mask] = joined[mask].where(joined[mask] == "", joined[mask] + ";") + flag.value
-    return joined
+        chosen = mask.fillna(False).astype(bool).to_numpy()
+        if chosen.any():
+            before = joined[chosen]
+            joined[chosen] = np.where(before == "", flag.value, before + f";{flag.value}")
+    return pd.Series(joined, index=index, dtype=object)
 
 
 def _calibration_overdue(frame: pd.DataFrame, instruments: Sequence[Instrument]) -> pd.Series:
-    """True where an instrument named on the row was used after its calibration due date."""
-    due = {i.id: i.calibration_due for i in instruments if i.calibration_due is not None}
+    """True where an instrument named on the row was used after its calibration due date.
+
+    A row is late when its test day is after the earliest due date among the instruments
+    it names, worked out once per distinct ``instrument`` text (a project has few).
+    """
+    due = {i.id: pd.Timestamp(i.calibration_due) for i in instruments
+           if i.calibration_due is not None}
     overdue = pd.Series(False, index=frame.index)
     if not due or frame.empty:
         return overdue
-    used = frame["instrument"].fillna("").astype(str).str.split(";").explode().str.strip()
-    due_ts = used.map({k: pd.Timestamp(v) for k, v in due.items()})
+    codes, texts = pd.factorize(frame["instrument"].fillna("").astype(str))
+    earliest = []
+    for text in texts:
+        dates = [due[name.strip()] for name in str(text).split(";") if name.strip() in due]
+        earliest.append(min(dates) if dates else pd.NaT)
+    earliest_due = pd.Series(pd.to_datetime(pd.Series(earliest, dtype=object)).to_numpy()[codes],
+                             index=frame.index)
     # Used on the due date itself is still in calibration; any later day is not.
-    tested_day = frame["tested_at"].dt.normalize().reindex(used.index)
-    late = (tested_day > due_ts).fillna(False).astype(bool)
-    return late.groupby(level=0).any().reindex(frame.index, fill_value=False)
-
-
-def _not_required(frame: pd.DataFrame, required: pd.DataFrame | None) -> pd.Series:
-    if required is None or frame.empty:
-        return pd.Series(False, index=frame.index)
-    needed = required[["link_id", "wavelength_nm"]].drop_duplicates()
-    needed = needed.assign(_needed=True)
-    merged = frame[["link_id", "wavelength_nm"]].merge(needed, how="left",
-                                                       on=["link_id", "wavelength_nm"])
-    return ~merged["_needed"].fillna(False).astype(bool).set_axis(frame.index)
+    tested_day = frame["tested_at"].dt.normalize()
+    return (tested_day > earliest_due).fillna(False).astype(bool)
 
 
 def link_outcomes(
@@ -198,34 +276,26 @@ def link_outcomes(
 ) -> tuple[LinkOutcome, ...]:
     """Link verdicts, worst margins and missing results, in links.csv order."""
     frame = judged_results
-    judged = frame[frame["judged"]]
-    latest_invalid = frame[(frame["verdict"] == ResultVerdict.INVALID.value)]
+    judged_rows = frame["judged"].fillna(False).to_numpy(dtype=bool)
+    invalid_rows = (frame["verdict"] == ResultVerdict.INVALID.value).to_numpy(dtype=bool)
+    keys = frame[KEY]
     if directions is not Directions.BOTH:
-        judged = judged.assign(direction=ANY_DIRECTION)
-        latest_invalid = latest_invalid.assign(direction=ANY_DIRECTION)
-    have = judged[KEY].drop_duplicates().assign(_have=True)
-    missing = required.merge(have, on=KEY, how="left")
-    missing = missing[missing["_have"].isna()].drop(columns="_have")
-    invalid_keys = latest_invalid[KEY].drop_duplicates().assign(_invalid=True)
-    missing = missing.merge(invalid_keys, on=KEY, how="left")
-    missing["reason"] = np.where(missing["_invalid"].fillna(False).astype(bool),
-                                 "invalid", "not-tested")
-    stats = judged.groupby("link_id").agg(
-        worst_margin_db=("margin_db", "min"),
-        judged=("margin_db", "size"),
-        failed=("verdict", lambda v: int((v == ResultVerdict.FAIL.value).sum())),
-        within=("flags", lambda f: int(f.str.contains(ResultFlag.WITHIN_UNCERTAINTY.value).sum())),
-    )
-    missing_by_link = {
-        link_id: tuple(MissingResult(int(r.strand), int(r.wavelength_nm), str(r.direction), r.reason)
-                       for r in group.itertuples(index=False))
-        for link_id, group in missing.sort_values(KEY).groupby("link_id", sort=False)
-    }
+        keys = keys.assign(direction=ANY_DIRECTION)
+    frame_keys, required_keys = _key_codes([keys, required], KEY)
+    lacking = ~np.isin(required_keys, frame_keys[judged_rows])
+    missing = required.loc[lacking, KEY].assign(reason=np.where(
+        np.isin(required_keys[lacking], frame_keys[invalid_rows]), "invalid", "not-tested"))
+    missing_by_link: dict[str, list[MissingResult]] = {}
+    for link_id, strand, wavelength_nm, direction, reason in missing.sort_values(KEY)[
+            KEY + ["reason"]].itertuples(index=False, name=None):
+        missing_by_link.setdefault(link_id, []).append(
+            MissingResult(int(strand), int(wavelength_nm), str(direction), reason))
+    stats = _link_stats(frame[judged_rows])
     outcomes = []
     for link in links:
-        row = stats.loc[link.link_id] if link.link_id in stats.index else None
-        link_missing = missing_by_link.get(link.link_id, ())
-        failed = int(row["failed"]) if row is not None else 0
+        row = stats.get(link.link_id)
+        link_missing = tuple(missing_by_link.get(link.link_id, ()))
+        failed = row[2] if row is not None else 0
         if failed:
             verdict = LinkVerdict.FAIL
         elif link_missing:
@@ -235,13 +305,38 @@ def link_outcomes(
         outcomes.append(LinkOutcome(
             link_id=link.link_id,
             verdict=verdict,
-            worst_margin_db=float(row["worst_margin_db"]) if row is not None else None,
+            worst_margin_db=row[0] if row is not None else None,
             missing=link_missing,
-            judged=int(row["judged"]) if row is not None else 0,
+            judged=row[1] if row is not None else 0,
             failed=failed,
-            within_uncertainty=int(row["within"]) if row is not None else 0,
+            within_uncertainty=row[3] if row is not None else 0,
         ))
     return tuple(outcomes)
+
+
+def _link_stats(judged: pd.DataFrame) -> dict[str, tuple[float, int, int, int]]:
+    """Per link_id of the judged rows: worst (smallest) margin, judged, failed, within-uncertainty.
+
+    The worst margin skips missing margins (NaN when a link has none).
+    """
+    links, link_ids = pd.factorize(judged["link_id"])
+    known = links >= 0
+    links = links[known]
+    count = len(link_ids)
+    margins = judged["margin_db"].to_numpy(dtype=float)[known]
+    failed = (judged["verdict"] == ResultVerdict.FAIL.value).to_numpy(dtype=bool)[known]
+    flag_codes, flag_texts = pd.factorize(judged["flags"])  # few distinct texts
+    within_text = np.array([ResultFlag.WITHIN_UNCERTAINTY.value in str(text)
+                            for text in flag_texts] + [False])
+    within = within_text[flag_codes][known]  # code -1 (no flags) takes the last: False
+    worst = np.full(count, np.nan)
+    np.fmin.at(worst, links, margins)
+    judged_count = np.bincount(links, minlength=count)
+    failed_count = np.bincount(links[failed], minlength=count)
+    within_count = np.bincount(links[within], minlength=count)
+    return {str(link_id): (float(w), int(j), int(f), int(u)) for link_id, w, j, f, u in zip(
+        link_ids.tolist(), worst.tolist(), judged_count.tolist(), failed_count.tolist(),
+        within_count.tolist())}
 
 
 def calibration_state(instrument: Instrument, first_use: date | None, last_use: date | None) -> str:

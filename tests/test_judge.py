@@ -190,3 +190,88 @@ def test_property_limit_grows_with_length_connections_splices(length_m, extra_m,
     assert limit(length_m=length_m + extra_m) >= limit()
     assert limit(connections=connections + more) > limit()
     assert limit(splices=splices + more) > limit()
+
+
+def test_empty_project_is_judged_without_error():
+    # Zero links and zero results: nothing to judge, every count zero.
+    judgement = judge_project(make_project([], []))
+    assert judgement.links == ()
+    assert judgement.totals == {"links": 0, "pass": 0, "fail": 0, "incomplete": 0}
+    assert judgement.results.empty and judgement.budgets.empty
+    for column in ("limit_db", "margin_db", "verdict", "flags", "judged"):
+        assert column in judgement.results.columns
+
+
+def test_same_time_retest_the_row_read_last_wins():
+    # Rule of docs/project-format.md, "How a result is judged": ties go to the row read last.
+    rows = FULL[1:] + [
+        dict(wavelength_nm=850, direction="ab", loss_db=2.4, tested_at="2030-01-16T10:00"),
+        dict(wavelength_nm=850, direction="ab", loss_db=1.2, tested_at="2030-01-16T10:00"),
+        dict(wavelength_nm=850, direction="ab", loss_db=1.9, tested_at="2030-01-15T10:00"),
+    ]
+    judgement = judge_project(make_project([make_link()], rows))
+    assert list(judgement.results["verdict"].iloc[-3:]) == ["superseded", "pass", "superseded"]
+    assert list(judgement.results["judged"].iloc[-3:]) == [False, True, False]
+
+
+def test_calibration_overdue_when_any_named_instrument_is_late():
+    # Of several instruments on a row, the one due earliest decides; unknown names and
+    # instruments without a due date never make a row late.
+    early = Instrument("SRC-1", InstrumentKind.LIGHT_SOURCE, calibration_due=date(2030, 1, 10))
+    late = Instrument("PM-1", InstrumentKind.POWER_METER, calibration_due=date(2030, 1, 20))
+    undated = Instrument("PM-2", InstrumentKind.POWER_METER)
+    rows = [dict(wavelength_nm=850, loss_db=1.0, tested_at="2030-01-12", instrument="PM-1"),
+            dict(wavelength_nm=850, direction="ba", loss_db=1.0, tested_at="2030-01-12",
+                 instrument=" PM-1 ; SRC-1 "),
+            dict(wavelength_nm=1300, loss_db=1.0, tested_at="2030-01-25",
+                 instrument="PM-2;OTHER"),
+            dict(wavelength_nm=1300, direction="ba", loss_db=1.0, tested_at="2030-01-10T23:00",
+                 instrument="SRC-1")]
+    judgement = judge_project(make_project([make_link()], rows,
+                                           instruments=[early, late, undated]))
+    overdue = ["calibration-overdue" in flags for flags in judgement.results["flags"]]
+    assert overdue == [False, True, False, False]
+
+
+def _oracle(rows, links, strands_by_link):
+    """The judging rules read row by row (docs/project-format.md): latest per key, ties to
+    the row read last; invalid when loss < −uncertainty (here 0); missing when a required
+    key has no judged row."""
+    latest = {}
+    for order, row in enumerate(rows):
+        key = (row["link_id"], row["strand"], row["wavelength_nm"], row["direction"])
+        stamp = (row["tested_at"], order)
+        if key not in latest or stamp > latest[key][0]:
+            latest[key] = (stamp, order)
+    judged_orders = {order for _, order in latest.values() if rows[order]["loss_db"] >= 0}
+    judged_keys = {(r["link_id"], r["strand"], r["wavelength_nm"], r["direction"])
+                   for order, r in enumerate(rows) if order in judged_orders}
+    missing = {link: sorted((s, w, d) for s in range(1, strands_by_link[link] + 1)
+                            for w in (850, 1300) for d in ("ab", "ba")
+                            if (link, s, w, d) not in judged_keys) for link in links}
+    return judged_orders, missing
+
+
+@pytest.mark.parametrize("seed", [3, 4])
+def test_retests_and_missing_results_follow_the_rules_on_random_rows(seed):
+    import random
+
+    rng = random.Random(seed)
+    links = [make_link(f"L{n}", strands=rng.randint(1, 3)) for n in range(40)]
+    strands_by_link = {link.link_id: link.strands for link in links}
+    rows = []
+    for _ in range(300):
+        link = rng.choice(links)
+        rows.append(dict(link_id=link.link_id, strand=rng.randint(1, link.strands),
+                         wavelength_nm=rng.choice((850, 1300)), direction=rng.choice(("ab", "ba")),
+                         loss_db=rng.choice([-0.5, 0.8, 1.4, 3.0]),
+                         tested_at=f"2030-01-{rng.randint(10, 12)}T0{rng.randint(8, 9)}:00"))
+    judgement = judge_project(make_project(links, rows))
+    judged_orders, missing = _oracle(rows, [link.link_id for link in links], strands_by_link)
+    assert [i for i, judged in enumerate(judgement.results["judged"]) if judged] == sorted(
+        judged_orders)
+    for outcome in judgement.links:
+        assert [(m.strand, m.wavelength_nm, m.direction) for m in outcome.missing] == missing[
+            outcome.link_id]
+        assert outcome.judged == sum(1 for i in judged_orders
+                                     if rows[i]["link_id"] == outcome.link_id)
