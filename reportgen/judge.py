@@ -290,34 +290,32 @@ def link_outcomes(
             KEY + ["reason"]].itertuples(index=False, name=None):
         missing_by_link.setdefault(link_id, []).append(
             MissingResult(int(strand), int(wavelength_nm), str(direction), reason))
-    stats = _link_stats(frame[judged_rows])
+    position, worst, judged, failed, within = _link_stats(frame[judged_rows])
+    fail, incomplete, passing = LinkVerdict.FAIL, LinkVerdict.INCOMPLETE, LinkVerdict.PASS
     outcomes = []
     for link in links:
-        row = stats.get(link.link_id)
+        at = position.get(link.link_id)
         link_missing = tuple(missing_by_link.get(link.link_id, ()))
-        failed = row[2] if row is not None else 0
-        if failed:
-            verdict = LinkVerdict.FAIL
-        elif link_missing:
-            verdict = LinkVerdict.INCOMPLETE
-        else:
-            verdict = LinkVerdict.PASS
+        link_failed = failed[at] if at is not None else 0
         outcomes.append(LinkOutcome(
             link_id=link.link_id,
-            verdict=verdict,
-            worst_margin_db=row[0] if row is not None else None,
+            verdict=fail if link_failed else incomplete if link_missing else passing,
+            worst_margin_db=worst[at] if at is not None else None,
             missing=link_missing,
-            judged=row[1] if row is not None else 0,
-            failed=failed,
-            within_uncertainty=row[3] if row is not None else 0,
+            judged=judged[at] if at is not None else 0,
+            failed=link_failed,
+            within_uncertainty=within[at] if at is not None else 0,
         ))
     return tuple(outcomes)
 
 
-def _link_stats(judged: pd.DataFrame) -> dict[str, tuple[float, int, int, int]]:
+def _link_stats(
+    judged: pd.DataFrame,
+) -> tuple[dict[str, int], list[float], list[int], list[int], list[int]]:
     """Per link_id of the judged rows: worst (smallest) margin, judged, failed, within-uncertainty.
 
-    The worst margin skips missing margins (NaN when a link has none).
+    Returns the position of each link_id in the four lists that follow. The worst margin
+    skips missing margins (NaN when a link has none).
     """
     links, link_ids = pd.factorize(judged["link_id"])
     known = links >= 0
@@ -331,12 +329,10 @@ def _link_stats(judged: pd.DataFrame) -> dict[str, tuple[float, int, int, int]]:
     within = within_text[flag_codes][known]  # code -1 (no flags) takes the last: False
     worst = np.full(count, np.nan)
     np.fmin.at(worst, links, margins)
-    judged_count = np.bincount(links, minlength=count)
-    failed_count = np.bincount(links[failed], minlength=count)
-    within_count = np.bincount(links[within], minlength=count)
-    return {str(link_id): (float(w), int(j), int(f), int(u)) for link_id, w, j, f, u in zip(
-        link_ids.tolist(), worst.tolist(), judged_count.tolist(), failed_count.tolist(),
-        within_count.tolist())}
+    return (dict(zip(link_ids.tolist(), range(count))), worst.tolist(),
+            np.bincount(links, minlength=count).tolist(),
+            np.bincount(links[failed], minlength=count).tolist(),
+            np.bincount(links[within], minlength=count).tolist())
 
 
 def calibration_state(instrument: Instrument, first_use: date | None, last_use: date | None) -> str:
