@@ -377,3 +377,231 @@ def test_one_hundred_thousand_results_validate(tmp_path):
     project_dir = make_synthetic(tmp_path / "big", links=12_500)
     project = pipeline.validate_only(project_dir)
     assert (len(project.links), len(project.results)) == (12_500, 100_000)
+
+
+# --- hostile content end to end: text stays text, resources stay inside the folder ----------
+
+HOSTILE = {
+    "script": "<script>alert(1)</script>",
+    "attribute": '"><img src=x onerror=alert(1)>',
+    "template": "{{ 7*7 }}{% if true %}T{% endif %}",
+    "style": "</style><style>body{display:none}</style>",
+    "cdata": "]]><x>",
+}
+RTL = "\u202eevil\u202c\u200f"
+
+
+def _png(width: int, height: int) -> bytes:
+    """A valid grey PNG (PNG specification, ISO/IEC 15948: signature, IHDR, IDAT, IEND)."""
+    import struct
+    import zlib
+
+    def chunk(kind: bytes, data: bytes) -> bytes:
+        return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data))
+
+    raw = b"".join(b"\x00" + b"\x80" * width for _ in range(height))
+    return (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", width, height, 8, 0, 0, 0, 0))
+            + chunk(b"IDAT", zlib.compress(raw)) + chunk(b"IEND", b""))
+
+
+def _hostile_project(root: Path, outside_png: Path, web_url: str) -> None:
+    import csv
+    import io
+    from datetime import date
+
+    import yaml
+
+    h = HOSTILE
+    project = {
+        "project": {"title": f"Title {h['script']} {h['template']} {RTL}", "site": h["attribute"],
+                    "customer": h["style"], "job_number": h["cdata"],
+                    "contractor": {"name": f"Crew {h['attribute']}", "address": h["script"],
+                                   "email": "x@example.invalid", "logo": "assets/logo.svg"}},
+        "testing": {"limits": "tia-568.3-d", "reference_method": "one-cord", "directions": "one"},
+        "components": {"split-1x8": {"loss_db": 10.5, "description": h["script"]}},
+        "instruments": [{"id": "SRC-1", "kind": "light-source", "model": h["attribute"],
+                         "serial": h["template"], "calibration_due": date(2030, 3, 1),
+                         "description": h["style"]}],
+        "technicians": [h["script"], h["attribute"]],
+    }
+    root.mkdir(parents=True)
+    (root / "project.yaml").write_text(yaml.safe_dump(project, allow_unicode=True), encoding="utf-8")
+    links = io.StringIO()
+    writer = csv.writer(links, lineterminator="\n")
+    writer.writerow(["link_id", "end_a", "end_b", "fiber_type", "length_m", "notes"])
+    ids = [f"{name[0].upper()}{text}" for name, text in h.items()]
+    for link_id, (name, text) in zip(ids, h.items()):
+        writer.writerow([link_id, f"A {text}", f"B {RTL}", "OM4", "90", f"note {text}"])
+    (root / "links.csv").write_text(links.getvalue(), encoding="utf-8")
+    results = io.StringIO()
+    writer = csv.writer(results, lineterminator="\n")
+    writer.writerow(["link_id", "wavelength_nm", "loss_db", "tested_at", "instrument", "technician", "note"])
+    for link_id, text in zip(ids, h.values()):
+        for wavelength in (850, 1300):
+            writer.writerow([link_id, wavelength, "0.9", "2030-01-15", "SRC-1", text, f"=cmd|{text}"])
+    (root / "results").mkdir()
+    (root / "results" / "day1.csv").write_text(results.getvalue(), encoding="utf-8")
+    (root / "assets").mkdir()
+    (root / "assets" / "leak.png").symlink_to(outside_png)
+    inside = (root / "assets" / "leak.png").resolve()
+    assert inside == outside_png  # the symlink leads outside
+    # An SVG logo that tries every way out: an outside file by file: URL and through a symlink in
+    # the folder, the web (image, feImage, stylesheet import), and a script (inert in a PDF).
+    (root / "assets" / "logo.svg").write_text(
+        '<svg xmlns="http://www.w3.org/2000/svg" xmlns:xlink="http://www.w3.org/1999/xlink" '
+        'width="120" height="40" viewBox="0 0 120 40">'
+        f'<style>@import url("{web_url}style.css");</style>'
+        '<script>alert(1)</script>'
+        f'<image x="0" y="0" width="20" height="20" href="{outside_png.as_uri()}"/>'
+        f'<image x="20" y="0" width="20" height="20" xlink:href="{(root / "assets" / "leak.png").as_uri()}"/>'
+        '<image x="40" y="0" width="20" height="20" href="file:///etc/passwd"/>'
+        f'<image x="60" y="0" width="20" height="20" href="{web_url}logo.png"/>'
+        f'<filter id="f"><feImage href="{web_url}filter.png"/></filter>'
+        '<rect x="80" y="0" width="20" height="20" fill="#234" filter="url(#f)"/>'
+        '</svg>', encoding="utf-8")
+
+
+class _Listener:
+    """A local web server that counts the requests it gets (there must be none)."""
+
+    def __enter__(self) -> _Listener:
+        import http.server
+        import threading
+
+        hits: list[str] = []
+
+        class Handler(http.server.BaseHTTPRequestHandler):
+            def do_GET(self) -> None:  # noqa: N802 (http.server's name)
+                hits.append(self.path)
+                self.send_response(404)
+                self.end_headers()
+
+            def log_message(self, *args: object) -> None:
+                pass
+
+        self.hits = hits
+        self.server = http.server.ThreadingHTTPServer(("127.0.0.1", 0), Handler)
+        self.url = f"http://127.0.0.1:{self.server.server_address[1]}/"
+        self.thread = threading.Thread(target=self.server.serve_forever, daemon=True)
+        self.thread.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.server.shutdown()
+        self.server.server_close()
+        self.thread.join()
+
+
+@pytest.mark.slow
+def test_hostile_text_and_logo_end_to_end(tmp_path):
+    import csv
+    import html.parser
+    import io
+    import subprocess
+    import sys
+
+    from pypdf import PdfReader
+
+    outside_png = tmp_path / "outside.png"
+    outside_png.write_bytes(_png(7, 13))  # a size no image of the report has
+    project_dir = tmp_path / "project"
+    out = tmp_path / "out"
+    with _Listener() as web:
+        _hostile_project(project_dir, outside_png, web.url)
+        before = tree_digest(project_dir)
+        done = subprocess.run([sys.executable, "-m", "reportgen", "build", str(project_dir), "-o", str(out)],
+                              capture_output=True, text=True, timeout=600,
+                              cwd=Path(__file__).resolve().parent.parent)
+        assert done.returncode == 0, done.stderr
+        assert web.hits == []  # nothing was fetched from the network
+    assert tree_digest(project_dir) == before
+
+    # HTML: no element or attribute from the inputs; every hostile text is there as text.
+    class Collect(html.parser.HTMLParser):
+        def __init__(self) -> None:
+            super().__init__(convert_charrefs=True)
+            self.tags: list[tuple[str, dict[str, str | None]]] = []
+            self.text: list[str] = []
+            self.style: list[str] = []
+            self._in_style = False
+
+        def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+            self.tags.append((tag, dict(attrs)))
+            self._in_style = tag == "style"
+
+        def handle_endtag(self, tag: str) -> None:
+            self._in_style = False
+
+        def handle_data(self, data: str) -> None:
+            (self.style if self._in_style else self.text).append(data)
+
+    page = (out / "report.html").read_text(encoding="utf-8")
+    parsed = Collect()
+    parsed.feed(page)
+    tags = {tag for tag, _ in parsed.tags}
+    assert "script" not in tags and "x" not in tags and "iframe" not in tags and "object" not in tags
+    assert not [(tag, name) for tag, attrs in parsed.tags for name in attrs if name.lower().startswith("on")]
+    sources = [attrs.get("src") or "" for tag, attrs in parsed.tags if tag == "img"]
+    assert sources and all(source.startswith("data:image/") for source in sources)
+    links = [attrs.get("href") or "" for tag, attrs in parsed.tags if tag in ("a", "link")]
+    assert all(href.startswith(("#", "mailto:")) for href in links), links
+    assert not any("display:none" in style for style in parsed.style)
+    text = "".join(parsed.text)
+    for hostile in HOSTILE.values():
+        assert hostile in text, hostile
+    assert "{{ 7*7 }}{% if true %}T{% endif %}" in text  # shown as typed, never evaluated
+    assert "\u202eevil" in text
+
+    # PDF: the same texts, literally; no attachment; the outside image was never embedded.
+    reader = PdfReader(out / "report.pdf")
+    pdf_text = "".join("".join(p.extract_text().split()) for p in reader.pages)
+    for name in ("script", "attribute", "template", "style"):
+        assert "".join(HOSTILE[name].split()) in pdf_text, name
+    assert reader.attachments == {}
+    sizes = {(int(image.image.width), int(image.image.height))
+             for p in reader.pages for image in p.images}
+    assert (7, 13) not in sizes
+    assert b"/JavaScript" not in (out / "report.pdf").read_bytes()
+
+    # results.csv: text cells that a spreadsheet would run are neutralised.
+    rows = list(csv.DictReader(io.StringIO((out / "results.csv").read_text(encoding="utf-8"))))
+    assert rows and all(row["note"].startswith("'=cmd|") for row in rows)
+
+
+LOGO_CASES = [
+    pytest.param("../outside.svg", None,
+                 "error: project.yaml, project.contractor.logo: expected a path to an image inside the project "
+                 "folder (symbolic links are followed) (got '../outside.svg')", id="outside"),
+    pytest.param("assets/link.svg", "symlink",
+                 "error: project.yaml, project.contractor.logo: expected a path to an image inside the project "
+                 "folder (symbolic links are followed) (got 'assets/link.svg')", id="symlink outside"),
+    pytest.param("assets/big.png", b"\x89PNG\r\n\x1a\n" + b"\0" * (2 * 2**20),
+                 "error: project.yaml, project.contractor.logo: expected an image of at most 2 MB; this one is "
+                 "3 MB (got 'assets/big.png')", id="too large"),
+    pytest.param("assets/logo.png", b"<html>not an image</html>",
+                 "error: project.yaml, project.contractor.logo: expected a file whose content is a PNG image "
+                 "(got 'assets/logo.png')", id="not an image"),
+    pytest.param("assets/logo.pdf", b"%PDF-1.4",
+                 "error: project.yaml, project.contractor.logo: expected an image file ending .svg, .png, .jpg "
+                 "or .jpeg (got 'assets/logo.pdf')", id="kind not accepted"),
+    pytest.param("/etc/passwd", None,
+                 "error: project.yaml, project.contractor.logo: expected a path to an image inside the project "
+                 "folder (symbolic links are followed) (got '/etc/passwd')", id="absolute path outside"),
+]
+
+
+@pytest.mark.parametrize(("logo", "content", "message"), LOGO_CASES)
+def test_bad_logo_is_refused(make_project, tmp_path, capsys, logo, content, message):
+    (tmp_path / "outside.svg").write_text("<svg/>", encoding="utf-8")
+    project_dir = make_project({"project.yaml": Y.replace("{name: Test Cabling}",
+                                                          f"{{name: Test Cabling, logo: '{logo}'}}")})
+    if content == "symlink":
+        (project_dir / "assets").mkdir()
+        (project_dir / logo).symlink_to(tmp_path / "outside.svg")
+    elif content is not None:
+        (project_dir / logo).parent.mkdir(parents=True, exist_ok=True)
+        (project_dir / logo).write_bytes(content)
+    out = tmp_path / "out"
+    assert main(["build", str(project_dir), "-o", str(out)]) == 2
+    assert capsys.readouterr().err.splitlines() == [message, "1 problem(s) found; nothing was written"]
+    assert not out.exists()
