@@ -18,13 +18,13 @@ import logging
 import multiprocessing
 import time
 from collections.abc import Callable, Iterator, Mapping, Sequence
-from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import Future, ProcessPoolExecutor, ThreadPoolExecutor, as_completed
 from datetime import datetime
 from pathlib import Path
 from typing import Final
 
 from .errors import ReportgenError
-from .pdf_layout import RenderedPart, render_indexed_part, render_part
+from .pdf_layout import RenderedPart, render_part
 from .pdf_merge import assemble_pdf
 from .pdf_stamp import check_label_text
 
@@ -83,17 +83,28 @@ def page_numbers(parts: Sequence[RenderedPart], first_page: int = 1) -> dict[str
 
 def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
                    on_done: Callable[[int], None]) -> list[RenderedPart]:
-    tasks = [(index, html, str(root)) for index, html in enumerate(bodies)]
-    done: list[RenderedPart | None] = [None] * len(tasks)
+    """Render the bodies in worker processes; call ``on_done(count)`` as each finishes.
+
+    The workers come from a fork server (started once, with WeasyPrint imported), not
+    from a fork of this process, which may be running threads (the front matter
+    estimate, a progress display). Like every multiprocessing program, the calling
+    script must guard its entry point with ``if __name__ == "__main__":``.
+    """
     context = multiprocessing.get_context("forkserver")
     context.set_forkserver_preload(["reportgen.pdf_layout"])
-    with context.Pool(min(workers, len(tasks)) or 1,
-                      maxtasksperchild=PARTS_PER_WORKER_PROCESS) as pool:
-        for count, (index, part) in enumerate(
-                pool.imap_unordered(render_indexed_part, tasks), start=1):
-            done[index] = part
-            on_done(count)
-    return [part for part in done if part is not None]
+    rendered: list[RenderedPart | None] = [None] * len(bodies)
+    with ProcessPoolExecutor(max_workers=min(workers, len(bodies)), mp_context=context,
+                             max_tasks_per_child=PARTS_PER_WORKER_PROCESS) as pool:
+        futures = {pool.submit(render_part, html, root): index
+                   for index, html in enumerate(bodies)}
+        try:
+            for count, future in enumerate(as_completed(futures), start=1):
+                rendered[futures[future]] = future.result()
+                on_done(count)
+        except BaseException:
+            pool.shutdown(wait=True, cancel_futures=True)
+            raise
+    return [part for part in rendered if part is not None]
 
 
 def _probe_front(front: FrontMatter, root: Path) -> RenderedPart:

@@ -125,8 +125,3 @@ def render_part(html: str, root: Path) -> RenderedPart:
     return RenderedPart(pdf, tuple(frames), anchors,
                         tuple(iter_bookmarks(source.etree_element)))
 
-
-def render_indexed_part(task: tuple[int, str, str]) -> tuple[int, RenderedPart]:
-    """Worker entry point: ``(index, html, root)`` → ``(index, rendered part)``."""
-    index, html, root = task
-    return index, render_part(html, Path(root))

@@ -189,3 +189,15 @@ def test_page_label_outside_winansi_is_refused(tmp_path: Path) -> None:
 ], ids=["naive: no zone", "ISO 32000-1 7.9.4: offset HH'mm'"])
 def test_pdf_date_format(moment: datetime, expected: str) -> None:
     assert pdf_date(moment) == expected
+
+
+def test_without_qpdf_the_merged_file_is_still_complete(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr("reportgen.pdf_merge.shutil.which", lambda name: None)
+    first = render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED)
+    again = render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED)
+    assert first == again
+    reader = read(first)
+    assert "/ObjStm" not in first.decode("latin-1")  # qpdf's object streams are absent
+    assert "Page 5 of 5" in texts(reader)[4]
+    assert link_targets(reader, 0) == [1, 4]
