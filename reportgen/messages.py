@@ -276,6 +276,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "power_list_heading": "Transceiver power budgets",
     "power_list_intro": "Links fitted with a transceiver; those receiving too little or too much light come first.",
     "power_list_none": "No link names a transceiver.",
+    "power_list_ok_unlisted": "A further {count} links with a transceiver are ok: both cases inside the receiver window (see each link\u2019s sheet).",
     "col_transceiver": "Transceiver",
     "col_received": "Received dBm",
     "col_margin_low": "Margin dB",

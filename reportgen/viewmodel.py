@@ -36,6 +36,7 @@ FRONT_MATRIX_MAX_LINKS: Final = 60
 MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
 # Power verdicts in the order the project list shows them: what needs action first.
 POWER_ORDER: Final[Mapping[str, int]] = {"too-weak": 0, "no-fit": 1, "too-strong": 2, "ok": 3}
+POWER_LIST_ALL_MAX: Final = 60  # above this many links with a transceiver, list only problems
 
 _LOGO_TYPES: Final[Mapping[str, str]] = {
     ".svg": "image/svg+xml", ".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg",
@@ -261,6 +262,7 @@ class ApplicationsView:
     by_anchor: Mapping[str, LinkApplicationsView]  # link sheet anchor -> its block
     groups: tuple[MatrixGroup, ...]
     power_rows: tuple[PowerRow, ...]  # problems first (POWER_ORDER), then links.csv order
+    power_ok_unlisted: int  # links whose power is ok, left out of a long list
     rule_rows: tuple[ApplicationRuleRow, ...]  # applications shown, rows of fiber types in use
     family_sources: tuple[tuple[str, str], ...]
     attenuators_db: tuple[float, ...]
@@ -511,6 +513,11 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
         if power is not None:
             power_rows.append(PowerRow(link.link_id, anchors[link.link_id], power))
     power_rows.sort(key=lambda row: POWER_ORDER.get(row.power.verdict, len(POWER_ORDER)))
+    power_ok_unlisted = 0
+    if len(power_rows) > POWER_LIST_ALL_MAX:
+        listed = [row for row in power_rows if row.power.verdict != "ok"]
+        power_ok_unlisted = len(power_rows) - len(listed)
+        power_rows = listed
     groups = _matrix_groups(project, assessed, anchors)
     shown = {i for group in groups for i in group.columns}
     present = {link.fiber_type.value for link in project.links}
@@ -522,7 +529,8 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
         if row["id"] in shown and present & set(row["fiber_types"].split(", ")))
     families = {row.family for row in rule_rows}
     return ApplicationsView(
-        by_anchor=by_anchor, groups=groups, power_rows=tuple(power_rows), rule_rows=rule_rows,
+        by_anchor=by_anchor, groups=groups, power_rows=tuple(power_rows),
+        power_ok_unlisted=power_ok_unlisted, rule_rows=rule_rows,
         family_sources=tuple((k, v) for k, v in table.sources.items() if k in families),
         attenuators_db=tuple(project.testing.attenuators_db),
         in_front=len(project.links) <= FRONT_MATRIX_MAX_LINKS,

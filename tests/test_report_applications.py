@@ -201,3 +201,13 @@ def test_demo_project_power_verdicts():
     # §9 again: A-BB-11 exceeds the 10GBASE-SR channel loss for OM4 (2.9 dB).
     apps = block(sheet(doc.html, "A-BB-11"), "link_apps_heading")
     assert "too much loss at 850 nm: 3.12 dB measured, 2.90 dB allowed" in apps
+
+
+def test_long_power_list_keeps_only_the_links_needing_action(monkeypatch):
+    monkeypatch.setattr(viewmodel, "POWER_LIST_ALL_MAX", 2)
+    front = render(hand_project()).front({}, 1)
+    section = front.split('id="applications"')[1].split("</section>")[0]
+    listing = section.split(messages.TEXT["matrix_heading"])[0]
+    assert 'href="#link-sr-weak"' in listing and 'href="#link-er-hot"' in listing
+    assert 'href="#link-sr-fine"' not in listing  # ok: counted, not listed
+    assert messages.msg("power_list_ok_unlisted", count=1) in listing
