@@ -9,6 +9,7 @@ from __future__ import annotations
 import difflib
 import functools
 import math
+import os
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -19,7 +20,7 @@ from typing import Any, Final, TypeVar
 from . import catalogs
 from . import limits as limit_sets
 from .errors import InputError, InputProblem
-from .load import MAX_FILE_BYTES, as_written, clip, resolve_inside, shown_path, shown_value, size_in_mb
+from .load import MAX_FILE_BYTES, as_written, clip, is_inside, resolve_inside, shown_path, shown_value, size_in_mb
 from .model import (
     DEFAULT_ATTENUATORS_DB,
     DEFAULT_WAVELENGTHS_NM,
@@ -368,6 +369,17 @@ def _attenuators(check: Checker, value: Any) -> tuple[float, ...] | None:
     return None if None in values else tuple(values)
 
 
+def _links_leading_outside(root: Path, folder: Path) -> str | None:
+    """The first entry under ``folder`` (as a path relative to ``root``) whose real path lies
+    outside ``root``, else None; symbolic links are not followed into other folders."""
+    for current, folders, files in os.walk(folder, followlinks=False):
+        for name in sorted(folders + files):
+            path = Path(current) / name
+            if path.is_symlink() and not is_inside(root, path):
+                return shown_path(root, path)
+    return None
+
+
 def _report(check: Checker, value: Any) -> ReportOptions | None:
     if value is None:
         return ReportOptions()
@@ -383,6 +395,12 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
             check.problem("report.templates", "an existing folder inside the project folder",
                           value["templates"])
             templates = None
+        if templates is not None:
+            leading_out = _links_leading_outside(check.root, templates)
+            if leading_out:
+                check.problem("report.templates", "template files inside the project folder; "
+                              f"{leading_out} is a symbolic link leading outside it", value["templates"])
+                templates = None
         if templates is None:
             return None
     return None if paper is None else ReportOptions(paper=paper, templates=templates)

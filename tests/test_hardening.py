@@ -605,3 +605,25 @@ def test_bad_logo_is_refused(make_project, tmp_path, capsys, logo, content, mess
     assert main(["build", str(project_dir), "-o", str(out)]) == 2
     assert capsys.readouterr().err.splitlines() == [message, "1 problem(s) found; nothing was written"]
     assert not out.exists()
+
+
+def test_templates_folder_with_a_symlink_leading_outside_is_refused(make_project, tmp_path):
+    (tmp_path / "secret.html").write_text("secret", encoding="utf-8")
+    project_dir = make_project({"project.yaml": Y + "report: {templates: tpl}\n", "tpl/partials/.keep": ""})
+    (project_dir / "tpl" / "partials" / "link.html.j2").symlink_to(tmp_path / "secret.html")
+    assert problems_of(project_dir) == [
+        "project.yaml, report.templates: expected template files inside the project folder; "
+        "tpl/partials/link.html.j2 is a symbolic link leading outside it (got 'tpl')"]
+
+
+@pytest.mark.xfail(strict=True, reason="render.make_environment runs a project's own templates in a "
+                                       "plain (unsandboxed) Jinja environment: they can run any code")
+def test_project_templates_cannot_reach_python_internals(make_project):
+    import jinja2
+
+    from reportgen import render
+
+    project_dir = make_project({"tpl/probe.html.j2": "{{ cycler.__init__.__globals__['os'].getcwd() }}"})
+    env = render.make_environment((project_dir / "tpl").resolve())
+    with pytest.raises((jinja2.exceptions.SecurityError, jinja2.exceptions.UndefinedError)):
+        env.get_template("probe.html.j2").render()
