@@ -7,9 +7,18 @@ from contextlib import contextmanager
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
+from rich.text import Text
 
 from .limits import builtin_ids, describe_rows, load_builtin_limit_set
 from .errors import ReportgenError
+
+_CONTROL = {code: f"\\x{code:02x}" for code in [*range(0x20), 0x7F]}
+
+
+def plain(text: str) -> Text:
+    """Input text for the terminal: no markup, control characters shown as escapes."""
+    return Text(str(text).translate(_CONTROL))
+
 
 # Verdict words shown in the terminal; style only adds emphasis, the word carries the meaning.
 _VERDICT_STYLE = {"pass": "", "fail": "bold reverse", "incomplete": "bold"}
@@ -32,8 +41,8 @@ FULL_TABLE_MAX_LINKS = 100
 def print_check_table(console: Console, outcome, show_all: bool = False) -> None:
     """Links with verdict, worst margin and what is missing, then totals."""
     project = outcome.project
-    table = Table(title=f"{project.info.title} — limits {project.limits.id}, "
-                        f"{project.testing.reference_method.value} reference",
+    table = Table(title=plain(f"{project.info.title} — limits {project.limits.id}, "
+                              f"{project.testing.reference_method.value} reference"),
                   title_justify="left", header_style="bold")
     table.add_column("link")
     table.add_column("fiber")
@@ -53,7 +62,7 @@ def print_check_table(console: Console, outcome, show_all: bool = False) -> None
         link = links[item.link_id]
         length = link.length_m if unit == "m" else link.length_m / 0.3048
         margin = "—" if item.worst_margin_db is None else f"{item.worst_margin_db:+.2f} dB"
-        table.add_row(item.link_id, link.fiber_type.value, f"{length:,.0f} {unit}",
+        table.add_row(plain(item.link_id), link.fiber_type.value, f"{length:,.0f} {unit}",
                       item.verdict.value.upper(), margin, _missing_text(item),
                       style=_VERDICT_STYLE[item.verdict.value] or None)
     console.print(table)
