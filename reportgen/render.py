@@ -31,6 +31,7 @@ from pathlib import Path
 from typing import Any, Final
 
 import jinja2
+from jinja2.sandbox import ImmutableSandboxedEnvironment
 from markupsafe import Markup
 
 from . import charts, diagrams, messages
@@ -87,7 +88,10 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
     if project_templates is not None:
         loaders.append(jinja2.FileSystemLoader(str(project_templates)))
     loaders.append(jinja2.FileSystemLoader(str(templates_dir())))
-    env = jinja2.Environment(
+    # Sandboxed: a project's own templates are untrusted input. They may format and
+    # loop, but cannot reach Python internals (attributes starting with "_",
+    # function globals) nor mutate the data they are given.
+    env = ImmutableSandboxedEnvironment(
         loader=jinja2.ChoiceLoader(loaders),
         autoescape=True,
         undefined=jinja2.StrictUndefined,  # a misspelt name fails the build, never a blank cell

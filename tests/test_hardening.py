@@ -616,8 +616,6 @@ def test_templates_folder_with_a_symlink_leading_outside_is_refused(make_project
         "tpl/partials/link.html.j2 is a symbolic link leading outside it (got 'tpl')"]
 
 
-@pytest.mark.xfail(strict=True, reason="render.make_environment runs a project's own templates in a "
-                                       "plain (unsandboxed) Jinja environment: they can run any code")
 def test_project_templates_cannot_reach_python_internals(make_project):
     import jinja2
 
