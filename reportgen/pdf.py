@@ -1,9 +1,9 @@
 """Turn the report's HTML parts into one PDF, rendering the parts in parallel.
 
 One WeasyPrint render of a 2,000-page report takes about 6 minutes and 6 GB on a
-2-core machine, and layout work per page grows with the document. So the body parts
-are rendered separately in worker processes (a fresh process every few parts keeps
-memory flat) and merged with pypdf; what spans parts is rebuilt after the merge
+2-core machine, and its time per page grows with the document. So the body parts
+are rendered separately in worker processes (a fresh process per part keeps memory
+flat) and merged with pypdf; what spans parts is rebuilt after the merge
 (:mod:`reportgen.pdf_merge`): page numbers, links between parts, the outline.
 
 The front matter (cover, contents, summary) shows page numbers, and its own length
@@ -17,9 +17,13 @@ from __future__ import annotations
 import logging
 import multiprocessing
 import time
+import traceback
+from collections import deque
 from collections.abc import Callable, Iterator, Mapping, Sequence
-from concurrent.futures import Future, ProcessPoolExecutor, ThreadPoolExecutor, as_completed
+from concurrent.futures import Future, ThreadPoolExecutor
 from datetime import datetime
+from multiprocessing.connection import Connection, wait
+from multiprocessing.process import BaseProcess
 from pathlib import Path
 from typing import Final
 
@@ -33,7 +37,6 @@ LOGGER = logging.getLogger(__name__)
 FrontMatter = Callable[[Mapping[str, int], int], str]
 Progress = Callable[[int, int], None]
 
-PARTS_PER_WORKER_PROCESS: Final = 4   # then a fresh process: memory stays flat
 MAX_FRONT_RENDERS: Final = 6
 PROBE_PAGE_NUMBER: Final = 999        # stands for every page number in the first estimate
 
@@ -81,30 +84,72 @@ def page_numbers(parts: Sequence[RenderedPart], first_page: int = 1) -> dict[str
     return numbers
 
 
+def _part_process(sender: Connection, html: str, root: str) -> None:
+    """Body of a worker process: render one part, send it back (or the error), exit."""
+    try:
+        sender.send(("done", render_part(html, Path(root))))
+    except Exception as error:  # reported by the parent, with the part's number
+        sender.send(("failed", f"{type(error).__name__}: {error}", traceback.format_exc()))
+    finally:
+        sender.close()
+
+
 def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
                    on_done: Callable[[int], None]) -> list[RenderedPart]:
-    """Render the bodies in worker processes; call ``on_done(count)`` as each finishes.
+    """Render each body in a fresh worker process, ``workers`` at a time, in any order.
 
-    The workers come from a fork server (started once, with WeasyPrint imported), not
-    from a fork of this process, which may be running threads (the front matter
-    estimate, a progress display). Like every multiprocessing program, the calling
-    script must guard its entry point with ``if __name__ == "__main__":``.
+    A process per part keeps memory flat: everything WeasyPrint built is returned to
+    the system when the part is done. The processes are forked from a fork server
+    (started once, with WeasyPrint imported), not from this process, which may be
+    running threads (the front matter estimate, a progress display). Like every
+    multiprocessing program, the calling script must guard its entry point with
+    ``if __name__ == "__main__":``. ``on_done(count)`` is called as each part finishes.
     """
     context = multiprocessing.get_context("forkserver")
     context.set_forkserver_preload(["reportgen.pdf_layout"])
+    waiting = deque(enumerate(bodies))
+    running: dict[Connection, tuple[int, BaseProcess]] = {}
     rendered: list[RenderedPart | None] = [None] * len(bodies)
-    with ProcessPoolExecutor(max_workers=min(workers, len(bodies)), mp_context=context,
-                             max_tasks_per_child=PARTS_PER_WORKER_PROCESS) as pool:
-        futures = {pool.submit(render_part, html, root): index
-                   for index, html in enumerate(bodies)}
-        try:
-            for count, future in enumerate(as_completed(futures), start=1):
-                rendered[futures[future]] = future.result()
-                on_done(count)
-        except BaseException:
-            pool.shutdown(wait=True, cancel_futures=True)
-            raise
+    finished = 0
+    try:
+        while waiting or running:
+            while waiting and len(running) < workers:
+                index, html = waiting.popleft()
+                receiver, sender = context.Pipe(duplex=False)
+                process = context.Process(target=_part_process, args=(sender, html, str(root)),
+                                          name=f"reportgen-part-{index + 1}", daemon=True)
+                process.start()
+                sender.close()
+                running[receiver] = (index, process)
+            for receiver in wait(list(running)):
+                index, process = running.pop(receiver)
+                rendered[index] = _receive_part(receiver, index, process)
+                finished += 1
+                on_done(finished)
+    finally:
+        for receiver, (_, process) in running.items():
+            process.terminate()
+            process.join()
+            receiver.close()
     return [part for part in rendered if part is not None]
+
+
+def _receive_part(receiver: Connection, index: int, process: BaseProcess) -> RenderedPart:
+    try:
+        status, *payload = receiver.recv()
+    except EOFError:
+        process.join()
+        raise ReportgenError(
+            f"the process rendering body part {index + 1} ended without a result "
+            f"(exit status {process.exitcode}; out of memory?)") from None
+    finally:
+        receiver.close()
+    process.join()
+    if status == "failed":
+        message, details = payload
+        LOGGER.debug("body part %d failed:\n%s", index + 1, details)
+        raise ReportgenError(f"rendering body part {index + 1} of the PDF failed: {message}")
+    return payload[0]
 
 
 def _probe_front(front: FrontMatter, root: Path) -> RenderedPart:

@@ -7,6 +7,7 @@ page texts, the outline, link annotations and their destination pages.
 from __future__ import annotations
 
 import io
+import multiprocessing
 from collections.abc import Mapping
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
@@ -14,7 +15,8 @@ from pathlib import Path
 import pypdf
 import pytest
 
-from reportgen.pdf import PageMap, _settle_front, render_pdf
+from reportgen.errors import ReportgenError
+from reportgen.pdf import PageMap, _receive_part, _settle_front, render_pdf
 from reportgen.pdf_layout import render_part
 from reportgen.pdf_merge import pdf_date
 
@@ -201,3 +203,13 @@ def test_without_qpdf_the_merged_file_is_still_complete(
     assert "/ObjStm" not in first.decode("latin-1")  # qpdf's object streams are absent
     assert "Page 5 of 5" in texts(reader)[4]
     assert link_targets(reader, 0) == [1, 4]
+
+
+def test_a_worker_that_dies_without_a_result_fails_the_build_with_a_message() -> None:
+    context = multiprocessing.get_context("forkserver")
+    receiver, sender = context.Pipe(duplex=False)
+    process = context.Process(target=int)  # ends at once and sends nothing
+    process.start()
+    sender.close()
+    with pytest.raises(ReportgenError, match="body part 3 ended without a result"):
+        _receive_part(receiver, 2, process)
