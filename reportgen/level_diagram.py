@@ -206,8 +206,10 @@ def power_level_svg(
                 out.append(f'<rect x="{px - 3.5}" y="{y(value) - 3.5}" width="7" height="7" '
                            f'fill="#fff" stroke="#000" stroke-width="1.5"/>')
     # values at launch and receiver
+    # The lowest level's launch value goes well below its marker: the dashed line
+    # leaves the marker falling through the first end connection.
     for value, above in ((high[0], True), (low[0], False)):
-        out.append(f'<text x="{xs[0] + 6}" y="{y(value) + (-6 if above else 13)}">'
+        out.append(f'<text x="{xs[0] + 6}" y="{y(value) + (-6 if above else 24)}">'
                    f"{_fmt(value, 2)}</text>")
     for value, above in ((high[-1], True), (low[-1], False)):
         out.append(f'<text x="{xs[-1] - 6}" y="{y(value) + (-6 if above else 13)}" '
