@@ -29,7 +29,7 @@ from typing import Final
 
 from .errors import ReportgenError
 from .pdf_layout import RenderedPart, render_part
-from .pdf_merge import assemble_pdf
+from .pdf_merge import finish_pdf, start_writer
 from .pdf_stamp import check_label_text
 
 LOGGER = logging.getLogger(__name__)
@@ -106,7 +106,7 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     ``if __name__ == "__main__":``. ``on_done(count)`` is called as each part finishes.
     """
     context = multiprocessing.get_context("forkserver")
-    context.set_forkserver_preload(["reportgen.pdf_layout"])
+    context.set_forkserver_preload(["reportgen.pdf"])
     waiting = deque(enumerate(bodies))
     running: dict[Connection, tuple[int, BaseProcess]] = {}
     rendered: list[RenderedPart | None] = [None] * len(bodies)
@@ -153,12 +153,21 @@ def _receive_part(receiver: Connection, index: int, process: BaseProcess) -> Ren
 
 
 def _probe_front(front: FrontMatter, root: Path) -> RenderedPart:
-    """Render the front matter once with placeholder page numbers, to learn its length."""
-    return render_part(front(PageMap({}, PROBE_PAGE_NUMBER), PROBE_PAGE_NUMBER), root)
+    """Render the front matter once with placeholder page numbers, to learn its length.
+
+    Rendered in its own process, so that its memory is returned when it is done.
+    """
+    return _render_isolated(front(PageMap({}, PROBE_PAGE_NUMBER), PROBE_PAGE_NUMBER), root)
+
+
+def _render_isolated(html: str, root: Path) -> RenderedPart:
+    """Render one document in a worker process (this one stays free for other work)."""
+    return _render_bodies([html], root, 1, lambda finished: None)[0]
 
 
 def _settle_front(front: FrontMatter, bodies: Sequence[RenderedPart], root: Path,
-                  estimate: RenderedPart | None) -> RenderedPart:
+                  estimate: RenderedPart | None,
+                  render: Callable[[str, Path], RenderedPart] = render_part) -> RenderedPart:
     """Render the front matter until its length and the numbers it used are consistent."""
     body_pages = sum(part.page_count for part in bodies)
     front_pages = estimate.page_count if estimate else 1
@@ -166,7 +175,7 @@ def _settle_front(front: FrontMatter, bodies: Sequence[RenderedPart], root: Path
     for attempt in range(1, MAX_FRONT_RENDERS + 1):
         known = {**page_numbers(bodies, front_pages + 1), **front_numbers}
         asked = PageMap(known)
-        part = render_part(front(asked, front_pages + body_pages), root)
+        part = render(front(asked, front_pages + body_pages), root)
         actual = {**page_numbers(bodies, part.page_count + 1), **page_numbers([part])}
         LOGGER.debug("front matter render %d: %d pages (assumed %d)",
                      attempt, part.page_count, front_pages)
@@ -218,13 +227,17 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         estimate: Future[RenderedPart] = thread.submit(_probe_front, front, root)
         body_parts = _render_bodies(bodies, root, workers, report) if bodies else []
         first_front = estimate.result()
-    bodies_done_s = time.perf_counter()
-    front_part = _settle_front(front, body_parts, root, first_front)
+        bodies_done_s = time.perf_counter()
+        # the front matter settles in a worker while this process copies the body pages
+        settled: Future[RenderedPart] = thread.submit(
+            _settle_front, front, body_parts, root, first_front, _render_isolated)
+        writer = start_writer(body_parts)
+        front_part = settled.result()
     front_done_s = time.perf_counter()
-    pdf = assemble_pdf([front_part, *body_parts], title=title, page_label=page_label,
-                       created=created)
-    LOGGER.info("PDF: bodies and first front estimate %.1f s, front matter %.1f s, "
-                "merge %.1f s", bodies_done_s - started_s, front_done_s - bodies_done_s,
-                time.perf_counter() - front_done_s)
+    pdf = finish_pdf(writer, front_part, body_parts, title=title, page_label=page_label,
+                     created=created)
+    LOGGER.info("PDF: bodies and first front estimate %.1f s, front matter and page copy "
+                "%.1f s, finishing %.1f s", bodies_done_s - started_s,
+                front_done_s - bodies_done_s, time.perf_counter() - front_done_s)
     report(total_steps)
     return pdf

@@ -124,15 +124,26 @@ def add_outline(writer: PdfWriter, parts: Sequence[RenderedPart],
         writer.page_mode = "/UseOutlines"
 
 
-def assemble_pdf(parts: Sequence[RenderedPart], *, title: str, page_label: str,
-                 created: datetime, compact: bool = True) -> bytes:
-    """Merge ``parts`` in order and return the finished PDF's bytes."""
+def start_writer(bodies: Sequence[RenderedPart]) -> PdfWriter:
+    """Copy the pages of the body parts, in order, into a new writer."""
     writer = PdfWriter()
-    frames: list[PageFrame] = []
-    for part in parts:
+    for part in bodies:
         for page in PdfReader(io.BytesIO(part.pdf)).pages:
             writer.add_page(page)
-        frames.extend(part.pages)
+    return writer
+
+
+def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
+               title: str, page_label: str, created: datetime, compact: bool = True) -> bytes:
+    """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
+
+    Adds the page-number stamps, links, outline and metadata; with ``compact``, merges
+    identical objects and repacks with qpdf when installed.
+    """
+    for index, page in enumerate(PdfReader(io.BytesIO(front.pdf)).pages):
+        writer.insert_page(page, index)
+    parts = [front, *bodies]
+    frames = [frame for part in parts for frame in part.pages]
     total = len(frames)
     texts = [page_label.format(page=number, pages=total) for number in range(1, total + 1)]
     stamper = Stamper(writer, make_stamp_font(writer, texts))
@@ -151,6 +162,13 @@ def assemble_pdf(parts: Sequence[RenderedPart], *, title: str, page_label: str,
     buffer = io.BytesIO()
     writer.write(buffer)
     return repack_with_qpdf(buffer.getvalue()) if compact else buffer.getvalue()
+
+
+def assemble_pdf(parts: Sequence[RenderedPart], *, title: str, page_label: str,
+                 created: datetime, compact: bool = True) -> bytes:
+    """Merge ``parts`` (front matter first) in order and return the finished PDF's bytes."""
+    return finish_pdf(start_writer(parts[1:]), parts[0], parts[1:], title=title,
+                      page_label=page_label, created=created, compact=compact)
 
 
 def repack_with_qpdf(pdf: bytes) -> bytes:
