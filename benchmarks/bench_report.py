@@ -4,6 +4,7 @@ Usage (from the repository root)::
 
     python benchmarks/bench_report.py                      # real build: 100, 500, 2000 links
     python benchmarks/bench_report.py --sizes 100 500 --single
+    python benchmarks/bench_report.py --sizes 100 500 --single-only   # the comparison alone
     python benchmarks/bench_report.py --synthetic-parts --links-per-part 20 40 100
     python benchmarks/bench_report.py --sizes 2000 --single --single-2000   # ~6 min, ~6 GB
 
@@ -255,6 +256,8 @@ def main() -> None:
                         help="synthetic mode: links per body part (several values compare)")
     parser.add_argument("--single", action="store_true",
                         help="also time one plain WeasyPrint render of the same HTML")
+    parser.add_argument("--single-only", action="store_true",
+                        help="time only the single render (skip the parted build)")
     parser.add_argument("--single-2000", action="store_true",
                         help=f"allow --single above {SINGLE_LIMIT_LINKS} links (slow, ~6 GB)")
     parser.add_argument("--work-dir", type=Path, default=Path("/tmp/reportgen-bench"))
@@ -273,11 +276,12 @@ def main() -> None:
     for per_part in args.links_per_part if args.synthetic_parts else [0]:
         for links in args.sizes:
             mode = "synthetic" if args.synthetic_parts else "build"
-            result = run_measured(["--work-dir", str(args.work_dir), "--child", mode,
-                                   str(links), str(per_part)])
-            rows.append((mode, links, per_part, result))
-            _print_row(*rows[-1])
-            if args.single and (links <= SINGLE_LIMIT_LINKS or args.single_2000):
+            if not args.single_only:
+                result = run_measured(["--work-dir", str(args.work_dir), "--child", mode,
+                                       str(links), str(per_part)])
+                rows.append((mode, links, per_part, result))
+                _print_row(*rows[-1])
+            if (args.single or args.single_only) and (links <= SINGLE_LIMIT_LINKS or args.single_2000):
                 single = "single-synthetic" if args.synthetic_parts else "single"
                 result = run_measured(["--work-dir", str(args.work_dir), "--child", single,
                                        str(links), str(per_part or 40)])
