@@ -24,6 +24,7 @@ link sheets and the appendix (:data:`viewmodel.FRONT_MATRIX_MAX_LINKS`).
 from __future__ import annotations
 
 import functools
+import re
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -113,11 +114,28 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
     return env
 
 
+_CSS_COMMENT: Final = re.compile(r"/\*.*?\*/", re.S)
+_CSS_BLANKS: Final = re.compile(r"\s*\n\s*")
+
+# Blank text between two block-level or table tags renders nothing, yet every run of it
+# is parsed and boxed by the PDF engine; squeezing it out makes each part cheaper.
+_BLOCK_TAGS: Final = ("html|head|body|main|section|header|footer|div|figure|figcaption|table|thead|"
+                      "tbody|tfoot|tr|td|th|colgroup|col|ul|ol|li|dl|dt|dd|h[1-6]|p|style|meta|title|svg")
+_BETWEEN_BLOCKS: Final = re.compile(rf"(</?(?:{_BLOCK_TAGS})\b[^<>]*>)\s+(?=</?(?:{_BLOCK_TAGS})\b)")
+
+
+def squeeze_html(html: str) -> str:
+    """``html`` without the blank text between block-level tags (which renders nothing)."""
+    return _BETWEEN_BLOCKS.sub(r"\1", html)
+
+
 def stylesheet(env: jinja2.Environment) -> Markup:
-    """Our CSS files (or the project's replacements) joined, for inlining."""
+    """Our CSS files (or the project's replacements) joined, for inlining (comments and
+    line breaks dropped: every part parses this text again)."""
     texts = []
     for name in STYLESHEETS:
         source, _, _ = env.loader.get_source(env, name)  # type: ignore[union-attr]
+        source = _CSS_BLANKS.sub("\n", _CSS_COMMENT.sub("", source)).strip()
         texts.append(source.replace("</", "<\\/"))
     return Markup("\n".join(texts))
 
@@ -188,9 +206,9 @@ class _Renderer:
                matrix_groups: tuple | None = None) -> str:
         if matrix_groups is None:
             matrix_groups = self.view.apps.groups if self.view.apps is not None else ()
-        return self.template.render(**self.common, part=part, links=links,
-                                    first_part=first_part, page_of=page_of or {},
-                                    total_pages=total_pages, matrix_groups=matrix_groups)
+        return squeeze_html(self.template.render(**self.common, part=part, links=links,
+                                                 first_part=first_part, page_of=page_of or {},
+                                                 total_pages=total_pages, matrix_groups=matrix_groups))
 
     def front(self, page_of: Mapping[str, int] | None, total_pages: int | None) -> str:
         return self.render("front", page_of=page_of or {}, total_pages=total_pages)
