@@ -30,11 +30,11 @@ from .messages import TEXT, format_db, msg
 from .viewmodel import BudgetView, LinkView, ResultView
 
 WIDTH: Final = 640
-HEIGHT: Final = 178
+HEIGHT: Final = 156
 PLOT_LEFT: Final = 46
 PLOT_RIGHT: Final = 430
-PLOT_TOP: Final = 24
-PLOT_BOTTOM: Final = 138
+PLOT_TOP: Final = 22
+PLOT_BOTTOM: Final = 120
 COLUMN_LEFT: Final = 462
 COLUMN_WIDTH: Final = 56
 COLUMN_GAP: Final = 28
