@@ -28,7 +28,10 @@ from .limits import describe_rows
 from .model import Instrument, Link, LinkVerdict, Project, ResultVerdict
 from .power import PowerBudget
 
-LINKS_PER_PART: Final = 40  # link sheets per PDF body part (see ReportDocument.bodies)
+LINKS_PER_PART: Final = 40  # most link sheets per PDF body part (see ReportDocument.bodies)
+MIN_LINKS_PER_PART: Final = 10
+# Small reports are cut finer so that both render workers stay busy to the end.
+TARGET_PARTS: Final = 8
 # Up to this many links the applications matrix and power list sit in the front matter,
 # after the link register; above it they form their own part before the appendix (the
 # front matter is re-rendered until its page numbers settle, so it must stay short).
@@ -603,6 +606,12 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
     )
 
 
-def chunk_links(links: tuple[LinkView, ...], size: int = LINKS_PER_PART) -> list[tuple[LinkView, ...]]:
-    """Link sheets split into runs of ``size`` for the PDF body parts."""
+def chunk_links(links: tuple[LinkView, ...], size: int | None = None) -> list[tuple[LinkView, ...]]:
+    """Link sheets split into runs for the PDF body parts.
+
+    By default runs of up to LINKS_PER_PART sheets; a small report is cut into about
+    TARGET_PARTS runs (at least MIN_LINKS_PER_PART sheets each) to balance the workers.
+    """
+    if size is None:
+        size = min(LINKS_PER_PART, max(MIN_LINKS_PER_PART, -(-len(links) // TARGET_PARTS)))
     return [links[i:i + size] for i in range(0, len(links), size)]
