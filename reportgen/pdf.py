@@ -1,19 +1,22 @@
 """Turn the report's HTML parts into one PDF, rendering the parts in parallel.
 
-One WeasyPrint render of a 2,000-page report takes about 6 minutes and 6 GB on a
-2-core machine, and its time per page grows with the document. So the body parts
+One WeasyPrint render of our 2,000-link report takes about 18 minutes and 12 GB on
+a 2-core machine (benchmarks/README.md), and its memory grows with the document. So the body parts
 are rendered separately in worker processes (a fresh process per part keeps memory
 flat) and merged with pypdf; what spans parts is rebuilt after the merge
 (:mod:`reportgen.pdf_merge`): page numbers, links between parts, the outline.
 
-The front matter (cover, contents, summary) shows page numbers, and its own length
-shifts them, so it is rendered last, repeatedly, until its page count and every page
-number it asked for are consistent. A first estimate is rendered while the workers
-are busy, so usually only one more render is needed afterwards.
+The front matter (cover, contents, summary) shows page numbers. Ours leaves a slot of
+fixed width for each (see :class:`reportgen.pdf_layout.PageSlot`), so its layout does
+not depend on them: it is rendered once, while the workers are busy, and the numbers
+are written into the slots after the merge. A front matter that prints the numbers
+as text (a project's own templates may) is rendered again after the bodies, until
+its page count and every page number it asked for are consistent.
 """
 
 from __future__ import annotations
 
+import gc
 import logging
 import multiprocessing
 import time
@@ -21,7 +24,10 @@ import traceback
 from collections import deque
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from concurrent.futures import Future, ThreadPoolExecutor
+from contextlib import contextmanager
+from dataclasses import dataclass
 from datetime import datetime
+from functools import partial
 from multiprocessing.connection import Connection, wait
 from multiprocessing.process import BaseProcess
 from pathlib import Path
@@ -29,7 +35,7 @@ from typing import Final
 
 from .errors import ReportgenError
 from .pdf_layout import RenderedPart, render_part
-from .pdf_merge import finish_pdf, start_writer
+from .pdf_merge import PageCopier, finish_pdf
 from .pdf_stamp import check_label_text
 
 LOGGER = logging.getLogger(__name__)
@@ -84,18 +90,82 @@ def page_numbers(parts: Sequence[RenderedPart], first_page: int = 1) -> dict[str
     return numbers
 
 
-def _part_process(sender: Connection, html: str, root: str) -> None:
-    """Body of a worker process: render one part, send it back (or the error), exit."""
+def _part_process(jobs: Connection, results: Connection) -> None:
+    """Body of a worker process: wait for one part, render it, send it back (or the error).
+
+    The process is started before its part is known (see :class:`_Workers`); it ends
+    without a word if the job pipe closes first. It renders one part and exits, and
+    the system takes back all its memory then, so Python's cycle collector is switched
+    off: it would only walk the growing layout over and over (a quarter of the render
+    time, for no memory saved, measured on 40-sheet parts).
+    """
+    gc.freeze()
+    gc.disable()
     try:
-        sender.send(("done", render_part(html, Path(root))))
+        try:
+            html, root, xml_first = jobs.recv()
+        except EOFError:
+            return
+        finally:
+            jobs.close()
+        results.send(("done", render_part(html, Path(root), xml_first=xml_first)))
     except Exception as error:  # reported by the parent, with the part's number
-        sender.send(("failed", f"{type(error).__name__}: {error}", traceback.format_exc()))
+        results.send(("failed", f"{type(error).__name__}: {error}", traceback.format_exc()))
     finally:
-        sender.close()
+        results.close()
+
+
+@dataclass
+class _Worker:
+    process: BaseProcess
+    jobs: Connection        # this end sends the part
+    results: Connection     # this end receives the rendered part
+
+
+class _Workers:
+    """Worker processes forked from a fork server, with one kept ready in advance.
+
+    Starting a process through the fork server takes up to a second on a busy machine;
+    a worker started while the others render is waiting when a slot frees.
+    """
+
+    def __init__(self) -> None:
+        self.context = multiprocessing.get_context("forkserver")
+        self.context.set_forkserver_preload(["reportgen.pdf"])
+        self.spare: _Worker | None = None
+        self.serial = 0
+
+    def start(self) -> _Worker:
+        self.serial += 1
+        job_receiver, job_sender = self.context.Pipe(duplex=False)
+        result_receiver, result_sender = self.context.Pipe(duplex=False)
+        process = self.context.Process(target=_part_process, args=(job_receiver, result_sender),
+                                       name=f"reportgen-part-{self.serial}", daemon=True)
+        process.start()
+        job_receiver.close()
+        result_sender.close()
+        return _Worker(process, job_sender, result_receiver)
+
+    def take(self) -> _Worker:
+        worker, self.spare = self.spare or self.start(), None
+        return worker
+
+    def prepare(self) -> None:
+        if self.spare is None:
+            self.spare = self.start()
+
+    def close(self) -> None:
+        if self.spare is not None:
+            self.spare.jobs.close()      # it ends without rendering anything
+            self.spare.process.join()
+            self.spare.results.close()
+            self.spare = None
 
 
 def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
-                   on_done: Callable[[int], None]) -> list[RenderedPart]:
+                   on_done: Callable[[int], None], xml_first: bool,
+                   on_part: Callable[[int, RenderedPart], None] | None = None,
+                   ) -> list[RenderedPart]:
     """Render each body in a fresh worker process, ``workers`` at a time, in any order.
 
     A process per part keeps memory flat: everything WeasyPrint built is returned to
@@ -103,35 +173,51 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     (started once, with WeasyPrint imported), not from this process, which may be
     running threads (the front matter estimate, a progress display). Like every
     multiprocessing program, the calling script must guard its entry point with
-    ``if __name__ == "__main__":``. ``on_done(count)`` is called as each part finishes.
+    ``if __name__ == "__main__":``. ``on_done(count)`` is called as each part finishes,
+    ``on_part(index, part)`` with each part, while the others are still rendering.
+    ``bodies[index]`` is read only when the part is about to be sent, so ``bodies``
+    may produce its documents on demand.
     """
-    context = multiprocessing.get_context("forkserver")
-    context.set_forkserver_preload(["reportgen.pdf"])
-    waiting = deque(enumerate(bodies))
+    pool = _Workers()
+    waiting = deque(range(len(bodies)))
     running: dict[Connection, tuple[int, BaseProcess]] = {}
     rendered: list[RenderedPart | None] = [None] * len(bodies)
-    finished = 0
+    arrived: list[int] = []
     try:
         while waiting or running:
             while waiting and len(running) < workers:
-                index, html = waiting.popleft()
-                receiver, sender = context.Pipe(duplex=False)
-                process = context.Process(target=_part_process, args=(sender, html, str(root)),
-                                          name=f"reportgen-part-{index + 1}", daemon=True)
-                process.start()
-                sender.close()
-                running[receiver] = (index, process)
+                index = waiting.popleft()
+                worker = pool.take()
+                worker.jobs.send((bodies[index], str(root), xml_first))
+                worker.jobs.close()
+                running[worker.results] = (index, worker.process)
+            # the slots are busy again: now the work this process does meanwhile
+            if waiting:
+                pool.prepare()
+                bodies[waiting[0]]  # a lazy sequence renders the next document now
+            _hand_over(arrived, rendered, on_part)
             for receiver in wait(list(running)):
                 index, process = running.pop(receiver)
                 rendered[index] = _receive_part(receiver, index, process)
-                finished += 1
-                on_done(finished)
+                arrived.append(index)
+                on_done(len(bodies) - len(waiting) - len(running))
+        _hand_over(arrived, rendered, on_part)
     finally:
         for receiver, (_, process) in running.items():
             process.terminate()
             process.join()
             receiver.close()
+        pool.close()
     return [part for part in rendered if part is not None]
+
+
+def _hand_over(arrived: list[int], rendered: Sequence[RenderedPart | None],
+               on_part: Callable[[int, RenderedPart], None] | None) -> None:
+    for index in arrived:
+        part = rendered[index]
+        if on_part is not None and part is not None:
+            on_part(index, part)
+    arrived.clear()
 
 
 def _receive_part(receiver: Connection, index: int, process: BaseProcess) -> RenderedPart:
@@ -152,17 +238,21 @@ def _receive_part(receiver: Connection, index: int, process: BaseProcess) -> Ren
     return payload[0]
 
 
-def _probe_front(front: FrontMatter, root: Path) -> RenderedPart:
+def _probe_front(front: FrontMatter, root: Path, xml_first: bool) -> tuple[RenderedPart, bool]:
     """Render the front matter once with placeholder page numbers, to learn its length.
 
     Rendered in its own process, so that its memory is returned when it is done.
+    Returns the part and whether the front matter looked up any page number. One
+    that did not (it leaves page slots instead) is final as rendered here.
     """
-    return _render_isolated(front(PageMap({}, PROBE_PAGE_NUMBER), PROBE_PAGE_NUMBER), root)
+    page_map = PageMap({}, PROBE_PAGE_NUMBER)
+    html = front(page_map, PROBE_PAGE_NUMBER)
+    return _render_isolated(html, root, xml_first=xml_first), bool(page_map.used)
 
 
-def _render_isolated(html: str, root: Path) -> RenderedPart:
+def _render_isolated(html: str, root: Path, *, xml_first: bool = False) -> RenderedPart:
     """Render one document in a worker process (this one stays free for other work)."""
-    return _render_bodies([html], root, 1, lambda finished: None)[0]
+    return _render_bodies([html], root, 1, lambda finished: None, xml_first)[0]
 
 
 def _settle_front(front: FrontMatter, bodies: Sequence[RenderedPart], root: Path,
@@ -188,9 +278,27 @@ def _settle_front(front: FrontMatter, bodies: Sequence[RenderedPart], root: Path
         f"(last length {front_pages} pages)")
 
 
+@contextmanager
+def _cycle_collector_paused() -> Iterator[None]:
+    """Pause Python's cycle collector while the pages are copied and merged.
+
+    Merging builds millions of small objects that stay alive until the file is
+    written; each collection walks all of them again, which made the copy about twice
+    as slow (500-sheet report, measured). The previous setting is restored after.
+    """
+    was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was_enabled:
+            gc.enable()
+
+
 def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: str,
                page_label: str = "Page {page} of {pages}", created: datetime,
-               workers: int = 2, progress: Progress | None = None) -> bytes:
+               workers: int = 2, progress: Progress | None = None,
+               xml_first: bool = False) -> bytes:
     """Render the front matter and body parts into one PDF and return its bytes.
 
     Parameters
@@ -211,6 +319,11 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
     progress
         Called as ``progress(done_parts, total_parts)``; the parts are the bodies
         plus one last step (front matter and assembly).
+    xml_first
+        The documents come from our own templates, which write well-formed XML:
+        read them with the standard library's XML parser, falling back to
+        WeasyPrint's HTML parser for any that is not (see
+        :func:`reportgen.pdf_layout.parse_xml`).
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1 (got {workers})")
@@ -223,21 +336,24 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
 
     report(0)
     started_s = time.perf_counter()
-    with ThreadPoolExecutor(max_workers=1) as thread:
-        estimate: Future[RenderedPart] = thread.submit(_probe_front, front, root)
-        body_parts = _render_bodies(bodies, root, workers, report) if bodies else []
-        first_front = estimate.result()
+    with _cycle_collector_paused(), ThreadPoolExecutor(max_workers=1) as thread:
+        estimate: Future[tuple[RenderedPart, bool]] = thread.submit(
+            _probe_front, front, root, xml_first)
+        copier = PageCopier()  # copies each body's pages while the later ones render
+        body_parts = (_render_bodies(bodies, root, workers, report, xml_first, copier.offer)
+                      if bodies else [])
+        first_front, asked_numbers = estimate.result()
         bodies_done_s = time.perf_counter()
-        # the front matter settles in a worker while this process copies the body pages
-        settled: Future[RenderedPart] = thread.submit(
-            _settle_front, front, body_parts, root, first_front, _render_isolated)
-        writer = start_writer(body_parts)
-        front_part = settled.result()
-    front_done_s = time.perf_counter()
-    pdf = finish_pdf(writer, front_part, body_parts, title=title, page_label=page_label,
-                     created=created)
-    LOGGER.info("PDF: bodies and first front estimate %.1f s, front matter and page copy "
-                "%.1f s, finishing %.1f s", bodies_done_s - started_s,
+        front_part = first_front
+        if asked_numbers:
+            front_part = _settle_front(front, body_parts, root, first_front,
+                                       partial(_render_isolated, xml_first=xml_first))
+        writer = copier.writer
+        front_done_s = time.perf_counter()
+        pdf = finish_pdf(writer, front_part, body_parts, title=title, page_label=page_label,
+                         created=created)
+    LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
+                "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)
     report(total_steps)
     return pdf

@@ -4,8 +4,8 @@ Every part was rendered on its own (see :mod:`reportgen.pdf_layout`), with its
 internal links, named destinations and outline left out. Here the pages are copied
 in order with pypdf, then the pieces that span parts are rebuilt from the recorded
 positions: a GoTo link annotation for every ``<a href="#id">`` whose target exists
-somewhere in the report, an outline entry for every bookmark element, and the
-"Page X of Y" stamp (:mod:`reportgen.pdf_stamp`).
+somewhere in the report, an outline entry for every bookmark element, the
+"Page X of Y" stamp and the numbers of the page slots (:mod:`reportgen.pdf_stamp`).
 """
 
 from __future__ import annotations
@@ -42,6 +42,8 @@ from .pdf_stamp import Stamper, make_stamp_font
 LOGGER = logging.getLogger(__name__)
 QPDF_ARGS: Final = ("--object-streams=generate", "--deterministic-id")
 QPDF_OK_STATUSES: Final = (0, 3)  # 3: succeeded with warnings
+MISSING_SLOT_TEXT: Final = "\u2013"
+SLOT_CHARS: Final = "0123456789" + MISSING_SLOT_TEXT
 CREATOR: Final = f"reportgen {__version__}"
 PRODUCER: Final = f"WeasyPrint {weasyprint.__version__}, pypdf {pypdf.__version__}"
 
@@ -55,6 +57,15 @@ def absolute_anchors(parts: Sequence[RenderedPart]) -> dict[str, tuple[int, Anch
             found.setdefault(name, (offset + anchor.page_index, anchor))
         offset += part.page_count
     return found
+
+
+def slot_text(target: str, anchors: dict[str, tuple[int, Anchor]]) -> str:
+    """The page number written into a page slot: the 1-based page of ``target``.
+
+    A target that is nowhere in the report gets a dash (the templates only make
+    slots for anchors they also render, so this marks a template error visibly).
+    """
+    return str(anchors[target][0] + 1) if target in anchors else MISSING_SLOT_TEXT
 
 
 def pdf_date(moment: datetime) -> str:
@@ -124,13 +135,33 @@ def add_outline(writer: PdfWriter, parts: Sequence[RenderedPart],
         writer.page_mode = "/UseOutlines"
 
 
+class PageCopier:
+    """Copies the pages of body parts into a new writer in report order.
+
+    Parts may be offered in any order (as the workers finish them); each is copied
+    as soon as every part before it has been, so most of the copying is done while
+    later parts are still rendering.
+    """
+
+    def __init__(self) -> None:
+        self.writer = PdfWriter()
+        self.copied = 0                    # parts copied so far: 0 .. copied-1
+        self._waiting: dict[int, RenderedPart] = {}
+
+    def offer(self, index: int, part: RenderedPart) -> None:
+        self._waiting[index] = part
+        while self.copied in self._waiting:
+            for page in PdfReader(io.BytesIO(self._waiting.pop(self.copied).pdf)).pages:
+                self.writer.add_page(page)
+            self.copied += 1
+
+
 def start_writer(bodies: Sequence[RenderedPart]) -> PdfWriter:
     """Copy the pages of the body parts, in order, into a new writer."""
-    writer = PdfWriter()
-    for part in bodies:
-        for page in PdfReader(io.BytesIO(part.pdf)).pages:
-            writer.add_page(page)
-    return writer
+    copier = PageCopier()
+    for index, part in enumerate(bodies):
+        copier.offer(index, part)
+    return copier.writer
 
 
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
@@ -146,10 +177,12 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     frames = [frame for part in parts for frame in part.pages]
     total = len(frames)
     texts = [page_label.format(page=number, pages=total) for number in range(1, total + 1)]
-    stamper = Stamper(writer, make_stamp_font(writer, texts))
-    for page, text, frame in zip(writer.pages, texts, frames):
-        stamper.stamp(page, text, frame)
     anchors = absolute_anchors(parts)
+    slot_texts = [[(slot, slot_text(slot.target, anchors)) for slot in frame.slots]
+                  for frame in frames]
+    stamper = Stamper(writer, make_stamp_font(writer, [*texts, SLOT_CHARS]))
+    for page, text, frame, slots in zip(writer.pages, texts, frames, slot_texts):
+        stamper.stamp(page, text, frame, slots)
     add_links(writer, frames, anchors)
     add_outline(writer, parts, anchors)
     date = pdf_date(created)

@@ -1,8 +1,9 @@
-"""Stamp "Page X of Y" on every page of the merged report.
+"""Stamp "Page X of Y" on every page of the merged report, and fill the page slots.
 
 The parts are rendered separately, so no part knows its absolute page numbers or
 the total; the numbers are written afterwards, as one small content stream per page
-appended by pypdf. The text is set in DejaVu Sans, subset to the characters used and
+appended by pypdf. The same stream writes the page number of each page slot left
+by the front matter (:class:`reportgen.pdf_layout.PageSlot`). The text is set in DejaVu Sans, subset to the characters used and
 embedded once (a simple TrueType font, WinAnsi encoding). If no DejaVu Sans font file
 is found, the stamp falls back to the non-embedded base-14 Helvetica, which every PDF
 viewer provides but which is not archival.
@@ -17,7 +18,7 @@ import hashlib
 import io
 import shutil
 import subprocess
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Final
@@ -35,7 +36,7 @@ from pypdf.generic import (
     StreamObject,
 )
 
-from .pdf_layout import PageFrame
+from .pdf_layout import PageFrame, PageSlot
 
 STAMP_FONT_SIZE_PT: Final = 8.0
 STAMP_FONT_RESOURCE: Final = "/RgStampFont"
@@ -188,6 +189,16 @@ def stamp_operators(text: str, frame: PageFrame, font: StampFont) -> bytes:
         STAMP_FONT_RESOURCE.encode(), size_pt, x_pt, baseline_pt, _pdf_string(text))
 
 
+def slot_operators(slot: PageSlot, text: str, font: StampFont) -> bytes:
+    """Content-stream operators that write ``text`` on the baseline of ``slot``."""
+    width_pt = font.width_pt(text, slot.size_pt)
+    x_pt = slot.left_pt if slot.flush_left else slot.right_pt - width_pt
+    red, green, blue = slot.rgb
+    return b"BT %.3f %.3f %.3f rg %s %.2f Tf 1 0 0 1 %.2f %.2f Tm %s Tj ET" % (
+        red, green, blue, STAMP_FONT_RESOURCE.encode(), slot.size_pt, x_pt, slot.baseline_pt,
+        _pdf_string(text))
+
+
 class Stamper:
     """Appends page-number streams to pages of one writer, sharing the font and ``q``."""
 
@@ -198,10 +209,16 @@ class Stamper:
         save.set_data(b"q\n")
         self.save_reference = writer._add_object(save)
 
-    def stamp(self, page: DictionaryObject, text: str, frame: PageFrame) -> None:
-        """Wrap the page's content in ``q … Q`` and draw ``text`` after it."""
+    def stamp(self, page: DictionaryObject, text: str, frame: PageFrame,
+              slot_texts: Sequence[tuple[PageSlot, str]] = ()) -> None:
+        """Wrap the page's content in ``q … Q``; draw ``text`` and the slots' texts after it."""
+        operators = []
+        if slot_texts:  # first: text extraction then reads them before the page label
+            operators.append(b"Q q " + b" ".join(slot_operators(slot, slot_text, self.font)
+                                                 for slot, slot_text in slot_texts))
+        operators.append(stamp_operators(text, frame, self.font))
         stream = DecodedStreamObject()
-        stream.set_data(b"\n" + stamp_operators(text, frame, self.font) + b"\n")
+        stream.set_data(b"\n" + b"\n".join(operators) + b"\n")
         contents = page.get("/Contents")
         if contents is None:
             originals: list[IndirectObject] = []

@@ -9,6 +9,7 @@ from __future__ import annotations
 import logging
 import os
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -145,7 +146,11 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,
                                    version=version, extras=outcome.extras)
-    pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
-                               title=outcome.project.info.title, created=now,
-                               page_label=PAGE_LABEL, progress=progress)
-    return {"report.html": document.html.encode("utf-8"), "report.pdf": pdf_bytes}
+    # report.html is rendered by a thread while the PDF workers are busy
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
+        html = thread.submit(lambda: document.html.encode("utf-8"))
+        pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
+                                   title=outcome.project.info.title, created=now,
+                                   page_label=PAGE_LABEL, progress=progress,
+                                   xml_first=document.own_templates)
+        return {"report.html": html.result(), "report.pdf": pdf_bytes}

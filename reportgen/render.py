@@ -13,7 +13,8 @@ Contract with reportgen.pdf:
   entries; headings carry ``bookmark-level: none``;
 - the bottom-right page margin box is left empty for the page stamp
   (:data:`reportgen.messages.PAGE_LABEL`);
-- ``front(page_of, total_pages)`` prints the page numbers pdf.py found.
+- page numbers in PDF parts are empty ``page-slot`` links pdf.py fills in after the
+  merge (``front(page_of, total_pages)`` may also print numbers ``page_of`` gives).
 
 Applications and power budgets (``extras["applications"]``, a
 :class:`reportgen.applications.ProjectApplications`) add a block to each link sheet and
@@ -25,11 +26,11 @@ from __future__ import annotations
 
 import functools
 import re
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
-from typing import Any, Final
+from typing import Any, Final, overload
 
 import jinja2
 from jinja2.sandbox import ImmutableSandboxedEnvironment
@@ -53,13 +54,45 @@ def templates_dir() -> Path:
     return packaged if packaged.is_dir() else Path(__file__).parent.parent / "templates"
 
 
+class LazyDocuments(Sequence[str]):
+    """Documents rendered when first read, then kept: the PDF engine sends the first
+    parts to its workers while the later ones are still to be rendered."""
+
+    def __init__(self, makers: Sequence[Callable[[], str]]) -> None:
+        self._makers = tuple(makers)
+        self._done: dict[int, str] = {}
+
+    def __len__(self) -> int:
+        return len(self._makers)
+
+    @overload
+    def __getitem__(self, index: int) -> str: ...
+    @overload
+    def __getitem__(self, index: slice) -> list[str]: ...
+
+    def __getitem__(self, index: int | slice) -> str | list[str]:
+        if isinstance(index, slice):
+            return [self[position] for position in range(len(self))[index]]
+        position = range(len(self))[index]  # IndexError and negative indices as for a tuple
+        if position not in self._done:
+            self._done[position] = self._makers[position]()
+        return self._done[position]
+
+
 @dataclass(frozen=True)
 class ReportDocument:
-    """The rendered report: one HTML file, and the parts of the PDF."""
+    """The rendered report: one HTML file, and the parts of the PDF, each made when read."""
 
-    html: str  # complete self-contained report.html
-    bodies: tuple[str, ...]  # runs of link sheets, then the appendix as the last part
+    _html: Callable[[], str] = field(repr=False, compare=False)
+    bodies: Sequence[str]  # runs of link sheets, then the appendix as the last part
     _front: Callable[[Mapping[str, int] | None, int | None], str] = field(repr=False, compare=False)
+    # only our own templates are known to write well-formed XML (see pdf_layout.parse_xml)
+    own_templates: bool = True
+
+    @functools.cached_property
+    def html(self) -> str:
+        """The complete self-contained report.html."""
+        return self._html()
 
     def front(self, page_of: Mapping[str, int], total_pages: int) -> str:
         """The front matter as a complete HTML document, with absolute page numbers."""
@@ -233,12 +266,18 @@ def build_report(
     view = build_view(project, judgement, now=now, version=version, assessed=assessed)
     env = make_environment(project.report.templates, view.length_unit)
     renderer = _Renderer(env, view, extras, power_diagrams(project, view, assessed))
-    html = renderer.render("all", links=view.links, first_part=True)
-    chunks = chunk_links(view.links)
-    bodies = tuple(renderer.render("body", links=chunk, first_part=index == 0)
-                   for index, chunk in enumerate(chunks))
+    makers: list[Callable[[], str]] = [
+        functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
+        for index, chunk in enumerate(chunk_links(view.links))]
     if view.apps is not None and not view.apps.in_front:
-        bodies += tuple(renderer.render("applications", first_part=index == 0, matrix_groups=groups)
-                        for index, groups in enumerate(split_groups(view.apps.groups)))
-    bodies += (renderer.render("appendix"),)
-    return ReportDocument(html=html, bodies=bodies, _front=renderer.front)
+        makers += [functools.partial(renderer.render, "applications", first_part=index == 0,
+                                     matrix_groups=groups)
+                   for index, groups in enumerate(split_groups(view.apps.groups))]
+    makers.append(functools.partial(renderer.render, "appendix"))
+    bodies = LazyDocuments(makers)
+    # one part of each kind now, so that a template error fails before the long work
+    for index in {0, len(makers) - 2, len(makers) - 1}:
+        bodies[index]
+    return ReportDocument(
+        _html=functools.partial(renderer.render, "all", links=view.links, first_part=True),
+        bodies=bodies, _front=renderer.front, own_templates=project.report.templates is None)

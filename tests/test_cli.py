@@ -13,6 +13,7 @@ import pypdf
 import pytest
 
 from reportgen import __version__, cli
+from test_pdf import printed_page_refs
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "demo_project"
@@ -76,6 +77,21 @@ def test_demo_pdf_and_html_name_every_link_and_verdict(demo_build):
     for verdict in ("pass", "fail", "incomplete"):
         assert verdict in html and verdict in text
     assert f"Page 1 of {len(reader.pages)}" in (reader.pages[0].extract_text() or "")
+
+
+def test_demo_front_page_numbers_are_the_pages_their_links_lead_to(demo_build):
+    reader = pypdf.PdfReader(demo_build / "report.pdf")
+    summary = json.loads((demo_build / "summary.json").read_text(encoding="utf-8"))
+    texts = [page.extract_text() or "" for page in reader.pages]
+    first_sheet = next(index for index, text in enumerate(texts) if "LINK SHEET" in text)
+    refs = [ref for index in range(first_sheet) for ref in printed_page_refs(reader, index)]
+    assert len(refs) >= len(summary["links"])  # the register has one per link
+    for printed, target in refs:
+        assert printed == str(target)
+    sheet_pages = {link["link_id"]: next(number for number, text in enumerate(texts, 1)
+                                         if f"LINK SHEET\n{link['link_id']}\n" in text)
+                   for link in summary["links"]}
+    assert set(sheet_pages.values()) <= {target for _, target in refs}
 
 
 def test_check_exit_status_reflects_link_verdicts(make_project, capsys):

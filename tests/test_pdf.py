@@ -122,6 +122,67 @@ def test_links_across_parts_become_goto_annotations_to_the_right_page(
     assert link_targets(reader, 2) == [4]     # alpha part → beta-2 in the next part
 
 
+def printed_page_refs(reader: pypdf.PdfReader, page_index: int) -> list[tuple[str, int]]:
+    """(number printed inside a link's rectangle, 1-based page the link leads to) per link.
+
+    Text positions come from pypdf's content-stream visitor; a number counts as inside
+    a link when its start point lies in the link rectangle (1 pt of slack).
+    """
+    runs: list[tuple[str, float, float]] = []
+
+    def visit(text, cm, tm, font, size):
+        if text.strip():
+            x = tm[4] * cm[0] + tm[5] * cm[2] + cm[4]
+            y = tm[4] * cm[1] + tm[5] * cm[3] + cm[5]
+            runs.append((text.strip(), x, y))
+
+    page = reader.pages[page_index]
+    page.extract_text(visitor_text=visit)
+    found = []
+    for annotation in page.get("/Annots", []):
+        annotation = annotation.get_object()
+        if annotation["/Subtype"] != "/Link" or "/Dest" not in annotation:
+            continue
+        x1, y1, x2, y2 = (float(value) for value in annotation["/Rect"])
+        inside = [text for text, x, y in runs
+                  if x1 - 1 <= x <= x2 + 1 and y1 - 1 <= y <= y2 + 1 and text.isdigit()]
+        if inside:
+            target = reader.get_page_number(annotation["/Dest"][0].get_object()) + 1
+            found.append(("".join(inside), target))
+    return found
+
+
+SLOT_CSS = "<style>a.page-slot { display: inline-block; width: 2.6em; height: 0.7em }</style>"
+
+
+def test_page_slots_get_the_page_of_their_target_and_the_front_is_laid_out_once(
+        tmp_path: Path) -> None:
+    calls = []
+
+    def slot_front(page_of: Mapping[str, int], total_pages: int) -> str:
+        calls.append(total_pages)
+        rows = "".join(f'<p style="text-align: right">{anchor} '
+                       f'<a class="page-slot" href="#{anchor}"></a></p>'
+                       for anchor in ("alpha-1", "beta-2", "cover"))
+        return document(SLOT_CSS + '<h1 id="cover" data-bookmark="Cover" '
+                        f'data-bookmark-level="1">Cover</h1>{rows}'
+                        '<p>left <a class="page-slot slot-start" href="#beta-1"></a></p>')
+
+    pdf = render_pdf(slot_front, BODIES, root=tmp_path, title="t", created=CREATED)
+    reader = read(pdf)
+    assert len(calls) == 1  # no page number was looked up: nothing to lay out again
+    # front 1 page, alpha 2 pages, beta 2 pages: alpha-1 on 2, beta-1 on 4, beta-2 on 5
+    assert printed_page_refs(reader, 0) == [("2", 2), ("5", 5), ("1", 1), ("4", 4)]
+
+
+def test_a_slot_whose_target_is_missing_shows_a_dash(tmp_path: Path) -> None:
+    def front(page_of: Mapping[str, int], total_pages: int) -> str:
+        return document(SLOT_CSS + '<p>gone <a class="page-slot" href="#nowhere"></a></p>')
+
+    reader = read(render_pdf(front, BODIES, root=tmp_path, title="t", created=CREATED))
+    assert texts(reader)[0].split() == ["gone", "\u2013", "Page", "1", "of", "5"]
+
+
 def test_metadata_comes_from_the_inputs(report_pdf: bytes) -> None:
     metadata = read(report_pdf).metadata
     assert metadata.title == "Test report"
@@ -213,3 +274,16 @@ def test_a_worker_that_dies_without_a_result_fails_the_build_with_a_message() ->
     sender.close()
     with pytest.raises(ReportgenError, match="body part 3 ended without a result"):
         _receive_part(receiver, 2, process)
+
+
+@pytest.mark.parametrize("enabled", [True, False])
+def test_render_pdf_leaves_the_cycle_collector_as_it_found_it(
+        tmp_path: Path, enabled: bool) -> None:
+    import gc
+    was = gc.isenabled()
+    (gc.enable if enabled else gc.disable)()
+    try:
+        render_pdf(cover_only, BODIES[:1], root=tmp_path, title="t", created=CREATED)
+        assert gc.isenabled() is enabled
+    finally:
+        (gc.enable if was else gc.disable)()

@@ -15,7 +15,7 @@ from builders import make_link, make_project
 from reportgen import messages
 from reportgen.judge import judge_project
 from reportgen.model import Paper, ReportOptions
-from reportgen.render import build_report, css_string
+from reportgen.render import LazyDocuments, build_report, css_string
 from reportgen.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
@@ -185,3 +185,18 @@ def test_one_small_pdf_renders_with_the_link_text():
     pdf = pypdf.PdfReader(io.BytesIO(weasyprint.HTML(string=doc.bodies[0]).write_pdf()))
     text = "".join(page.extract_text() or "" for page in pdf.pages)
     assert "PDF-1" in text and "fail" in text
+
+
+def test_lazy_documents_read_like_a_tuple_and_render_each_once():
+    calls = []
+
+    def maker(text):
+        return lambda: calls.append(text) or text
+
+    docs = LazyDocuments([maker("a"), maker("b"), maker("c")])
+    assert calls == []
+    assert (len(docs), docs[-1], docs[0], docs[1:], list(docs)) == (3, "c", "a", ["b", "c"],
+                                                                     ["a", "b", "c"])
+    assert calls == ["c", "a", "b"]  # each rendered once, when first read
+    with pytest.raises(IndexError):
+        docs[3]
