@@ -6,7 +6,7 @@ Usage (from the repository root)::
     python benchmarks/bench_report.py --sizes 100 500 --single
     python benchmarks/bench_report.py --sizes 100 500 --single-only   # the comparison alone
     python benchmarks/bench_report.py --synthetic-parts --links-per-part 20 40 100
-    python benchmarks/bench_report.py --sizes 2000 --single --single-2000   # ~6 min, ~6 GB
+    python benchmarks/bench_report.py --sizes 2000 --single --single-2000   # ~20 min, ~12 GB
 
 Modes:
 
@@ -259,7 +259,7 @@ def main() -> None:
     parser.add_argument("--single-only", action="store_true",
                         help="time only the single render (skip the parted build)")
     parser.add_argument("--single-2000", action="store_true",
-                        help=f"allow --single above {SINGLE_LIMIT_LINKS} links (slow, ~6 GB)")
+                        help=f"allow --single above {SINGLE_LIMIT_LINKS} links (slow: ~20 min and ~12 GB at 2,000)")
     parser.add_argument("--work-dir", type=Path, default=Path("/tmp/reportgen-bench"))
     parser.add_argument("--child", nargs=3, metavar=("MODE", "LINKS", "PER_PART"),
                         help=argparse.SUPPRESS)

@@ -4,8 +4,9 @@ Every part was rendered on its own (see :mod:`reportgen.pdf_layout`), with its
 internal links, named destinations and outline left out. Here the pages are copied
 in order with pypdf, then the pieces that span parts are rebuilt from the recorded
 positions: a GoTo link annotation for every ``<a href="#id">`` whose target exists
-somewhere in the report, an outline entry for every bookmark element, the
-"Page X of Y" stamp and the numbers of the page slots (:mod:`reportgen.pdf_stamp`).
+somewhere in the report, an outline entry and a named destination for every bookmark
+element, the "Page X of Y" stamp and the numbers of the page slots
+(:mod:`reportgen.pdf_stamp`).
 """
 
 from __future__ import annotations
@@ -116,6 +117,28 @@ def add_links(writer: PdfWriter, frames: Sequence[PageFrame],
     return added
 
 
+def add_named_destinations(writer: PdfWriter, parts: Sequence[RenderedPart],
+                           anchors: dict[str, tuple[int, Anchor]]) -> int:
+    """Name the place of every bookmarked anchor (sections, each link sheet); return the count.
+
+    A viewer then opens ``report.pdf#link-a-bb-07`` at that link's sheet, so other
+    documents (an asset register, a ticket) can point into the archived report.
+    """
+    names = sorted({bookmark.anchor_id for part in parts for bookmark in part.bookmarks
+                    if bookmark.anchor_id in anchors})
+    if not names:
+        return 0
+    tree = writer.get_named_dest_root()  # the name tree's array: keys in sorted order
+    pages = writer.pages
+    for name in names:
+        page_index, anchor = anchors[name]
+        tree.extend([TextStringObject(name), ArrayObject([
+            pages[page_index].indirect_reference, NameObject("/XYZ"),
+            FloatObject(round(anchor.x_pt, 2)), FloatObject(round(anchor.y_pt, 2)),
+            NullObject()])])
+    return len(names)
+
+
 def add_outline(writer: PdfWriter, parts: Sequence[RenderedPart],
                 anchors: dict[str, tuple[int, Anchor]]) -> None:
     """Add the bookmarks of all parts, in order, as a two-level outline."""
@@ -185,6 +208,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
         stamper.stamp(page, text, frame, slots)
     add_links(writer, frames, anchors)
     add_outline(writer, parts, anchors)
+    add_named_destinations(writer, parts, anchors)
     date = pdf_date(created)
     writer.add_metadata({
         "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,

@@ -112,12 +112,18 @@ def build(
     project = validate_only(project_dir)
     outcome = compute(project)
     now = build_now(now)
-    outputs = {
-        "results.csv": export.results_csv_bytes(outcome.judgement.results),
-        "summary.json": export.json_bytes(summary_document(outcome, now, version)),
-    }
+
+    def data_outputs() -> dict[str, bytes]:
+        return {
+            "results.csv": export.results_csv_bytes(outcome.judgement.results),
+            "summary.json": export.json_bytes(summary_document(outcome, now, version)),
+        }
+
     if report:
-        outputs.update(render_report(outcome, now=now, version=version, progress=progress))
+        outputs = render_report(outcome, now=now, version=version, progress=progress,
+                                alongside=data_outputs)
+    else:
+        outputs = data_outputs()
     log.info("Step 5: writing %s", ", ".join(outputs))
     export.write_outputs(out_dir, outputs)
     return BuildResult(out_dir, outcome, tuple(outputs))
@@ -139,18 +145,27 @@ def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str,
 
 
 def render_report(outcome: Outcome, *, now: datetime, version: str,
-                  progress: Progress | None = None) -> dict[str, bytes]:
-    """Step 4: the HTML report and the PDF rendered from the same templates."""
+                  progress: Progress | None = None,
+                  alongside: Callable[[], dict[str, bytes]] | None = None) -> dict[str, bytes]:
+    """Step 4: the HTML report and the PDF rendered from the same templates.
+
+    Returns the outputs of ``alongside()`` (made by a thread while the PDF workers
+    are busy, like report.html), then report.html and report.pdf.
+    """
     from . import pdf, render
 
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,
                                    version=version, extras=outcome.extras)
-    # report.html is rendered by a thread while the PDF workers are busy
+
+    def meanwhile() -> dict[str, bytes]:
+        made = alongside() if alongside is not None else {}
+        return {**made, "report.html": document.html.encode("utf-8")}
+
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
-        html = thread.submit(lambda: document.html.encode("utf-8"))
+        others = thread.submit(meanwhile)
         pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
                                    title=outcome.project.info.title, created=now,
                                    page_label=PAGE_LABEL, progress=progress,
                                    xml_first=document.own_templates)
-        return {"report.html": html.result(), "report.pdf": pdf_bytes}
+        return {**others.result(), "report.pdf": pdf_bytes}

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import functools
 import re
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
@@ -42,7 +42,7 @@ from .budget import link_budget
 from .judge import Judgement
 from .level_diagram import level_steps, power_level_svg
 from .model import Project
-from .viewmodel import ReportView, build_view, chunk_links, split_groups
+from .viewmodel import LinkView, ReportView, build_view, chunk_links, split_groups
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -215,6 +215,31 @@ def power_diagrams(project: Project, view: ReportView,
     return out
 
 
+class _LossDiagrams(Mapping[str, Markup]):
+    """The loss diagram (inline SVG) of each link by anchor, drawn when first asked for.
+
+    report.html and the PDF parts are rendered by different threads, each while the
+    PDF workers are busy; whichever needs a diagram first draws it (drawing is a pure
+    function, so two threads drawing the same one at once get the same text).
+    """
+
+    def __init__(self, links: Sequence[LinkView]) -> None:
+        self._links = {link.anchor: link for link in links}
+        self._drawn: dict[str, Markup] = {}
+
+    def __getitem__(self, anchor: str) -> Markup:
+        drawn = self._drawn.get(anchor)
+        if drawn is None:
+            drawn = self._drawn[anchor] = Markup(diagrams.loss_diagram(self._links[anchor]))
+        return drawn
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._links)
+
+    def __len__(self) -> int:
+        return len(self._links)
+
+
 class _Renderer:
     """Renders the parts of one report from one view model."""
 
@@ -226,7 +251,7 @@ class _Renderer:
         self.common = {
             "report": view,
             "css": stylesheet(env),
-            "diagrams": {link.anchor: Markup(diagrams.loss_diagram(link)) for link in view.links},
+            "diagrams": _LossDiagrams(view.links),
             "charts": {"margins": charts.svg_data_uri(charts.margin_chart(view.links)),
                        "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
             "toc": toc_entries(view),

@@ -183,6 +183,14 @@ def test_a_slot_whose_target_is_missing_shows_a_dash(tmp_path: Path) -> None:
     assert texts(reader)[0].split() == ["gone", "\u2013", "Page", "1", "of", "5"]
 
 
+def test_bookmarked_anchors_are_named_destinations(report_pdf: bytes) -> None:
+    reader = read(report_pdf)
+    named = {name: reader.get_destination_page_number(destination)
+             for name, destination in reader.named_destinations.items()}
+    # the bookmarks of toc_front and BODIES: cover, alpha-1, links, beta-1 (0-based pages)
+    assert named == {"cover": 0, "alpha-1": 1, "links": 3, "beta-1": 3}
+
+
 def test_metadata_comes_from_the_inputs(report_pdf: bytes) -> None:
     metadata = read(report_pdf).metadata
     assert metadata.title == "Test report"
