@@ -87,6 +87,16 @@ class PowerBudget:
     attenuator_db: float | None  # smallest fitting attenuator when too strong
     verdict: PowerVerdict
 
+    @property
+    def fitted_rx_min_dbm(self) -> float | None:
+        """Weakest received power with the recommended attenuator fitted. [dBm]"""
+        return None if self.attenuator_db is None else self.rx_min_dbm - self.attenuator_db
+
+    @property
+    def fitted_rx_max_dbm(self) -> float | None:
+        """Strongest received power with the recommended attenuator fitted. [dBm]"""
+        return None if self.attenuator_db is None else self.rx_max_dbm - self.attenuator_db
+
     def to_json(self) -> dict[str, Any]:
         """The ``power`` object of a link in summary.json."""
         return {

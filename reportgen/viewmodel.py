@@ -175,35 +175,10 @@ class ApplicationView:
 
 @dataclass(frozen=True)
 class PowerView:
-    """The received power window of a link with its transceiver (see power.PowerBudget)."""
+    """The received power window of a link with its transceiver, and the transceiver's words."""
 
-    transceiver: str
-    description: str
-    basis: str  # "measured" or "budget"
-    wavelength_nm: int  # wavelength whose losses were used
-    transceiver_wavelength_nm: int
-    worst_loss_db: float
-    least_loss_db: float
-    tx_min_dbm: float
-    tx_max_dbm: float
-    rx_sensitivity_dbm: float
-    rx_overload_dbm: float
-    rx_min_dbm: float
-    rx_max_dbm: float
-    low_margin_db: float  # rx_min − sensitivity
-    high_margin_db: float  # overload − rx_max
-    attenuator_db: float | None
-    verdict: str  # PowerVerdict value
-
-    @property
-    def fitted_rx_min_dbm(self) -> float | None:
-        """Weakest received power with the recommended attenuator fitted. [dBm]"""
-        return None if self.attenuator_db is None else self.rx_min_dbm - self.attenuator_db
-
-    @property
-    def fitted_rx_max_dbm(self) -> float | None:
-        """Strongest received power with the recommended attenuator fitted. [dBm]"""
-        return None if self.attenuator_db is None else self.rx_max_dbm - self.attenuator_db
+    budget: PowerBudget
+    description: str  # the transceiver's description in project.yaml ("" when none)
 
 
 @dataclass(frozen=True)
@@ -453,18 +428,7 @@ def _technician_views(listed: Iterable[str], frame: pd.DataFrame) -> tuple[Techn
 
 def _power_view(project: Project, budget: PowerBudget) -> PowerView:
     transceiver = project.transceivers.get(budget.transceiver)
-    return PowerView(
-        transceiver=budget.transceiver,
-        description=(transceiver.description or "") if transceiver else "",
-        basis=budget.basis.value, wavelength_nm=budget.wavelength_nm,
-        transceiver_wavelength_nm=budget.transceiver_wavelength_nm,
-        worst_loss_db=budget.worst_loss_db, least_loss_db=budget.least_loss_db,
-        tx_min_dbm=budget.tx_min_dbm, tx_max_dbm=budget.tx_max_dbm,
-        rx_sensitivity_dbm=budget.rx_sensitivity_dbm, rx_overload_dbm=budget.rx_overload_dbm,
-        rx_min_dbm=budget.rx_min_dbm, rx_max_dbm=budget.rx_max_dbm,
-        low_margin_db=budget.low_margin_db, high_margin_db=budget.high_margin_db,
-        attenuator_db=budget.attenuator_db, verdict=budget.verdict.value,
-    )
+    return PowerView(budget, (transceiver.description or "") if transceiver else "")
 
 
 def _matrix_groups(project: Project, assessed: ProjectApplications,
@@ -515,10 +479,10 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
             capable=found.capable, power=power)
         if power is not None:
             power_rows.append(PowerRow(link.link_id, anchors[link.link_id], power))
-    power_rows.sort(key=lambda row: POWER_ORDER.get(row.power.verdict, len(POWER_ORDER)))
+    power_rows.sort(key=lambda row: POWER_ORDER.get(row.power.budget.verdict, len(POWER_ORDER)))
     power_ok_unlisted = 0
     if len(power_rows) > POWER_LIST_ALL_MAX:
-        listed = [row for row in power_rows if row.power.verdict != "ok"]
+        listed = [row for row in power_rows if row.power.budget.verdict != "ok"]
         power_ok_unlisted = len(power_rows) - len(listed)
         power_rows = listed
     groups = _matrix_groups(project, assessed, anchors)
