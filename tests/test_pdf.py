@@ -175,6 +175,17 @@ def test_page_slots_get_the_page_of_their_target_and_the_front_is_laid_out_once(
     assert printed_page_refs(reader, 0) == [("2", 2), ("5", 5), ("1", 1), ("4", 4)]
 
 
+def test_page_slots_in_body_parts_point_across_parts(tmp_path: Path) -> None:
+    bodies = [document(SLOT_CSS + pages("alpha", 2)
+                       + '<p>see <a class="page-slot" href="#beta-2"></a></p>'),
+              document(SLOT_CSS + pages("beta", 2)
+                       + '<p>back <a class="page-slot" href="#alpha-1"></a></p>')]
+    reader = read(render_pdf(cover_only, bodies, root=tmp_path, title="t", created=CREATED))
+    # cover 1 page, alpha 2, beta 2: the slots on pages 3 and 5 name pages 5 and 2
+    assert printed_page_refs(reader, 2) == [("5", 5)]
+    assert printed_page_refs(reader, 4) == [("2", 2)]
+
+
 def test_a_slot_whose_target_is_missing_shows_a_dash(tmp_path: Path) -> None:
     def front(page_of: Mapping[str, int], total_pages: int) -> str:
         return document(SLOT_CSS + '<p>gone <a class="page-slot" href="#nowhere"></a></p>')
