@@ -3,8 +3,9 @@
 The parts are rendered separately, so no part knows its absolute page numbers or
 the total; the numbers are written afterwards, as one small content stream per page
 appended by pypdf. The same stream writes the page number of each page slot left
-by the front matter (:class:`reportgen.pdf_layout.PageSlot`). The text is set in DejaVu Sans, subset to the characters used and
-embedded once (a simple TrueType font, WinAnsi encoding). If no DejaVu Sans font file
+by the front matter (:class:`reportgen.pdf_layout.PageSlot`). The text is set in
+DejaVu Sans, subset to the characters used and embedded once (a simple TrueType
+font, WinAnsi encoding). If no DejaVu Sans font file
 is found, the stamp falls back to the non-embedded base-14 Helvetica, which every PDF
 viewer provides but which is not archival.
 
