@@ -13,7 +13,6 @@ from pathlib import Path
 
 import click
 from rich.console import Console
-from rich.table import Table
 
 from . import __version__
 from .errors import InputError, ReportgenError

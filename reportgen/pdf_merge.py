@@ -179,14 +179,6 @@ class PageCopier:
             self.copied += 1
 
 
-def start_writer(bodies: Sequence[RenderedPart]) -> PdfWriter:
-    """Copy the pages of the body parts, in order, into a new writer."""
-    copier = PageCopier()
-    for index, part in enumerate(bodies):
-        copier.offer(index, part)
-    return copier.writer
-
-
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
                title: str, page_label: str, created: datetime, compact: bool = True) -> bytes:
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
@@ -219,13 +211,6 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     buffer = io.BytesIO()
     writer.write(buffer)
     return repack_with_qpdf(buffer.getvalue()) if compact else buffer.getvalue()
-
-
-def assemble_pdf(parts: Sequence[RenderedPart], *, title: str, page_label: str,
-                 created: datetime, compact: bool = True) -> bytes:
-    """Merge ``parts`` (front matter first) in order and return the finished PDF's bytes."""
-    return finish_pdf(start_writer(parts[1:]), parts[0], parts[1:], title=title,
-                      page_label=page_label, created=created, compact=compact)
 
 
 def repack_with_qpdf(pdf: bytes) -> bytes:
