@@ -20,9 +20,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 from make_synthetic import make_project  # noqa: E402
 
-from reportgen.applications import assess_project  # noqa: E402
-from reportgen.judge import judge_project  # noqa: E402
-from reportgen.validate import load_project  # noqa: E402
+from reportgen.engine.applications import assess_project  # noqa: E402
+from reportgen.engine.judge import judge_project  # noqa: E402
+from reportgen.inputs.project import load_project  # noqa: E402
 
 LOAD_TARGET_S = 3.0
 JUDGE_TARGET_S = 1.0

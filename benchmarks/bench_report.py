@@ -180,7 +180,9 @@ def real_parts(links: int, work_dir: Path) -> tuple[Any, list[str], Path, str]:
     sys.path.insert(0, str(BENCH_DIR))
     from make_synthetic import make_project  # noqa: PLC0415 (benchmarks/ is on the path)
 
-    from reportgen import pipeline, render  # noqa: PLC0415
+    from reportgen import pipeline
+
+    from reportgen import render  # noqa: PLC0415
     project_dir = make_project(work_dir / f"project-{links}", links=links, seed=1)
     project = pipeline.validate_only(project_dir)
     outcome = pipeline.compute(project)
@@ -227,8 +229,8 @@ def measure(mode: str, links: int, links_per_part: int, work_dir: Path) -> dict[
 def _single(front: Any, bodies: list[str], root: Path, title: str) -> dict[str, Any]:
     from weasyprint import HTML  # noqa: PLC0415
 
-    from reportgen.fetcher import make_url_fetcher, root_url  # noqa: PLC0415
-    from reportgen.pdf import PageMap  # noqa: PLC0415
+    from reportgen.pdf.fetcher import make_url_fetcher, root_url  # noqa: PLC0415
+    from reportgen.pdf.engine import PageMap  # noqa: PLC0415
     # page numbers in the front matter do not change the work: placeholders will do
     html = join_documents([front(PageMap({}, 999), 999), *bodies])
     started_s = time.perf_counter()

@@ -14,8 +14,8 @@ from pathlib import Path
 import click
 from rich.console import Console
 
-from . import __version__
-from .errors import InputError, ReportgenError
+from reportgen import __version__
+from reportgen.errors import InputError, ReportgenError
 
 MAX_PROBLEMS_SHOWN = 50
 
@@ -71,8 +71,8 @@ PROJECT = click.argument("project", type=click.Path(path_type=Path))
                    "the links that fail or are incomplete).")
 def check(project: Path, show_all: bool) -> None:
     """Validate and judge PROJECT, print a table of links; write nothing."""
-    from . import pipeline
-    from .terminal import print_check_table
+    from reportgen import pipeline
+    from reportgen.report.terminal import print_check_table
 
     outcome = pipeline.compute(pipeline.validate_only(project))
     print_check_table(_stdout(), outcome, show_all=show_all)
@@ -90,8 +90,8 @@ def check(project: Path, show_all: bool) -> None:
               help="Write only results.csv and summary.json (no HTML/PDF report).")
 def build(project: Path, output: Path | None, data_only: bool) -> None:
     """Validate, judge and write the report of PROJECT."""
-    from . import pipeline
-    from .terminal import progress_bar
+    from reportgen import pipeline
+    from reportgen.report.terminal import progress_bar
 
     with progress_bar(_stderr(), enabled=not data_only) as progress:
         result = pipeline.build(project, output, report=not data_only, progress=progress)
@@ -106,7 +106,7 @@ def build(project: Path, output: Path | None, data_only: bool) -> None:
 @click.argument("set_id", required=False)
 def limits(set_id: str | None) -> None:
     """List the built-in limit sets, or show SET_ID as a table with its sources."""
-    from .terminal import print_limit_set, print_limit_sets
+    from reportgen.report.terminal import print_limit_set, print_limit_sets
 
     if set_id is None:
         print_limit_sets(_stdout())
@@ -117,7 +117,7 @@ def limits(set_id: str | None) -> None:
 @cli.command()
 def applications() -> None:
     """List the application table (channel loss and length limits) with sources."""
-    from .terminal import print_applications
+    from reportgen.report.terminal import print_applications
 
     print_applications(_stdout())
 

@@ -235,6 +235,7 @@ class Project:
     technicians: tuple[str, ...] = ()
     report: ReportOptions = field(default_factory=ReportOptions)
     result_files: tuple[str, ...] = ()  # results/*.csv read, in order (header-only files too)
+    applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
 
     def link(self, link_id: str) -> Link:
         for link in self.links:
@@ -285,3 +286,70 @@ class LimitSet:
                 return self.sources[key]
             key = key.rpartition(".")[0]
         return self.source
+
+
+# ------------------------------------------------------------ the application table
+
+
+class ApplicationVerdict(StrEnum):
+    SUPPORTED = "supported"
+    NOT_SUPPORTED = "not-supported"
+    UNTESTED = "untested"
+
+
+class ReasonKind(StrEnum):
+    FIBER_TYPE = "fiber-type-not-specified"
+    TOO_LONG = "too-long"
+    TOO_MUCH_LOSS = "too-much-loss"
+    TOO_LITTLE_LOSS = "too-little-loss"
+    UNTESTED = "untested"
+
+
+@dataclass(frozen=True)
+class FiberLimits:
+    """One row of an application entry: the limits on some fiber types."""
+
+    fiber_types: tuple[FiberType, ...]
+    max_length_m: float
+    max_loss_db: float
+    min_loss_db: float | None
+    status: str  # "verified, secondary" / "derived" / "from memory", per value where mixed
+
+
+@dataclass(frozen=True)
+class Application:
+    """One application: where it runs and what it needs from a link."""
+
+    id: str
+    family: str
+    source: str
+    operating_nm: tuple[int, ...]
+    test_wavelengths_nm: tuple[int, ...]
+    strands: int
+    fibers: tuple[FiberLimits, ...]
+
+    def limits_for(self, fiber_type: FiberType) -> FiberLimits | None:
+        for row in self.fibers:
+            if fiber_type in row.fiber_types:
+                return row
+        return None
+
+
+@dataclass(frozen=True)
+class ApplicationTable:
+    title: str
+    sources: Mapping[str, str]
+    entries: tuple[Application, ...]
+
+    @property
+    def ids(self) -> tuple[str, ...]:
+        return tuple(entry.id for entry in self.entries)
+
+    def get(self, application_id: str) -> Application:
+        for entry in self.entries:
+            if entry.id == application_id:
+                return entry
+        raise KeyError(application_id)
+
+    def __contains__(self, application_id: object) -> bool:
+        return application_id in self.ids

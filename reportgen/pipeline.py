@@ -15,13 +15,17 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
-from . import __version__, export
-from .errors import InputError, InputProblem, ReportgenError
-from .applications import assess_project
-from .judge import Judgement, judge_project
-from .messages import PAGE_LABEL
-from .model import Project
-from .validate import load_project
+from reportgen import __version__
+
+from reportgen.export.atomic import write_outputs
+from reportgen.export.results_csv import results_csv_bytes
+from reportgen.export.summary import json_bytes, summary_dict
+from reportgen.errors import InputError, InputProblem, ReportgenError
+from reportgen.engine.applications import assess_project
+from reportgen.engine.judge import Judgement, judge_project
+from reportgen.report.messages import PAGE_LABEL
+from reportgen.model import Project
+from reportgen.inputs.project import load_project
 
 log = logging.getLogger("reportgen")
 
@@ -115,8 +119,8 @@ def build(
 
     def data_outputs() -> dict[str, bytes]:
         return {
-            "results.csv": export.results_csv_bytes(outcome.judgement.results),
-            "summary.json": export.json_bytes(summary_document(outcome, now, version)),
+            "results.csv": results_csv_bytes(outcome.judgement.results),
+            "summary.json": json_bytes(summary_document(outcome, now, version)),
         }
 
     if report:
@@ -125,7 +129,7 @@ def build(
     else:
         outputs = data_outputs()
     log.info("Step 5: writing %s", ", ".join(outputs))
-    export.write_outputs(out_dir, outputs)
+    write_outputs(out_dir, outputs)
     return BuildResult(out_dir, outcome, tuple(outputs))
 
 
@@ -141,7 +145,7 @@ def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str,
         "generated_at": now.isoformat(),
         "generator": f"reportgen {version}",
     }
-    return export.summary_dict(project, outcome.judgement, link_extras, meta)
+    return summary_dict(project, outcome.judgement, link_extras, meta)
 
 
 def render_report(outcome: Outcome, *, now: datetime, version: str,
@@ -152,7 +156,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
     Returns the outputs of ``alongside()`` (made by a thread while the PDF workers
     are busy, like report.html), then report.html and report.pdf.
     """
-    from . import pdf, render
+    from reportgen.pdf import engine as pdf
+    from reportgen.report import render
 
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,

@@ -5,6 +5,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from reportgen.inputs.apptable import load_applications
 from reportgen.model import (
     RESULT_COLUMNS,
     Contractor,
@@ -83,6 +84,7 @@ def make_project(links, results, *, limits=TEST_LIMITS, method=ReferenceMethod.O
         components=components or {},
         transceivers=transceivers or {},
         instruments=tuple(instruments),
+        applications=load_applications(),
     )
 
 

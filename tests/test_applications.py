@@ -15,23 +15,24 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from reportgen.applications import (
-    DESCRIBE_COLUMNS,
-    ApplicationVerdict,
-    ReasonKind,
+from reportgen.engine.applications import (
     assess_application,
     assess_link_applications,
     assess_project,
     capable_by_link,
+)
+from reportgen.inputs.apptable import (
+    DESCRIBE_COLUMNS,
     describe_rows,
     load_applications,
     parse_applications,
     validate_application_ids,
 )
+from reportgen.model import ApplicationVerdict, ReasonKind
 from reportgen.errors import ReportgenError
-from reportgen.judge import judge_project
+from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
-from reportgen.power import LossRange, judged_loss_ranges
+from reportgen.engine.power import LossRange, judged_loss_ranges
 from tests.builders import make_link, make_project
 
 TABLE = load_applications()
@@ -233,7 +234,7 @@ def test_worst_loss_over_strands_and_directions_counts():
                dict(wavelength_nm=850, strand=2, direction="ab", loss_db=1.95),
                dict(wavelength_nm=850, strand=2, direction="ba", loss_db=1.70)]
     judged = judge_project(make_project([link], results)).results
-    assessed = assess_link_applications(link, judged_loss_ranges(judged))
+    assessed = assess_link_applications(link, judged_loss_ranges(judged), TABLE)
     sr, sr25 = assessed.assessments
     assert sr.to_json() == {"id": "10GBASE-SR", "verdict": "supported", "max_loss_db": 2.9,
                             "worst_loss_db": 2.1, "max_length_m": 400.0, "reasons": []}
@@ -397,9 +398,9 @@ _measured = st.dictionaries(
        listed=st.lists(st.sampled_from(REQUIRED_IDS), max_size=3, unique=True))
 def test_link_shortcuts_agree_with_assess_application(fiber_type, length_m, measured, listed):
     link = make_link(fiber_type=fiber_type, length_m=length_m, applications=tuple(listed))
-    got = assess_link_applications(link, {"L1": measured})
+    got = assess_link_applications(link, {"L1": measured}, TABLE)
     _check_agrees(got, link, measured)
-    [vectorised] = capable_by_link([link], _loss_table(link.link_id, measured))
+    [vectorised] = capable_by_link([link], _loss_table(link.link_id, measured), TABLE)
     assert vectorised == got.capable
 
 
@@ -463,5 +464,5 @@ def test_project_with_repeated_link_ids_keeps_the_per_link_meaning():
     a = make_link("L1", fiber_type=FiberType.OM4, length_m=50)
     b = make_link("L1", fiber_type=FiberType.OS2, length_m=50)
     table = _loss_table("L1", _ranges((850, 1.0, 1.0)))
-    assert capable_by_link([a, b], table) == [
-        assess_link_applications(a, {"L1": _ranges((850, 1.0, 1.0))}).capable, ()]
+    assert capable_by_link([a, b], table, TABLE) == [
+        assess_link_applications(a, {"L1": _ranges((850, 1.0, 1.0))}, TABLE).capable, ()]

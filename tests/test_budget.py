@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from reportgen.budget import (
+from reportgen.engine.budget import (
     END_CONNECTIONS,
     TermKind,
     allowed_loss_db,

@@ -12,7 +12,9 @@ from pathlib import Path
 import pypdf
 import pytest
 
-from reportgen import __version__, cli
+from reportgen import __version__
+
+from reportgen import cli
 from test_pdf import printed_page_refs
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -8,11 +8,11 @@ from datetime import datetime
 import pytest
 
 from builders import make_link, make_project
-from reportgen import charts
-from reportgen.diagrams import build_steps, loss_diagram
-from reportgen.judge import judge_project
+from reportgen.report import charts
+from reportgen.report.diagrams import build_steps, loss_diagram
+from reportgen.engine.judge import judge_project
 from reportgen.model import Component, FiberType, LimitSet, ReferenceMethod
-from reportgen.viewmodel import build_view
+from reportgen.report.viewmodel import build_view
 
 SVG = "{http://www.w3.org/2000/svg}"
 NOW = datetime(2030, 2, 1, 12, 0)

@@ -8,8 +8,8 @@ import os
 
 import pytest
 
-from reportgen import export
-from reportgen.judge import judge_project
+from reportgen.export import atomic, results_csv, summary
+from reportgen.engine.judge import judge_project
 from tests.builders import make_link, make_project
 
 
@@ -27,7 +27,7 @@ def _judged():
 
 def test_results_csv_has_contract_columns_and_every_row():
     _, judgement = _judged()
-    rows = list(csv.DictReader(io.StringIO(export.results_csv_bytes(judgement.results).decode())))
+    rows = list(csv.DictReader(io.StringIO(results_csv.results_csv_bytes(judgement.results).decode())))
     assert len(rows) == 4  # superseded and invalid rows included
     for column in ("link_id", "strand", "wavelength_nm", "direction", "loss_db", "tested_at",
                    "limit_db", "margin_db", "verdict", "flags"):
@@ -41,7 +41,7 @@ def test_results_csv_has_contract_columns_and_every_row():
 
 def test_results_csv_neutralises_formula_text_but_keeps_numbers():
     _, judgement = _judged()
-    rows = list(csv.DictReader(io.StringIO(export.results_csv_bytes(judgement.results).decode())))
+    rows = list(csv.DictReader(io.StringIO(results_csv.results_csv_bytes(judgement.results).decode())))
     assert rows[0]["note"].startswith("'=")
     assert rows[0]["link_id"] == "'-L1"
     assert rows[2]["technician"] == "'@someone"
@@ -50,7 +50,7 @@ def test_results_csv_neutralises_formula_text_but_keeps_numbers():
 
 def test_summary_shape_follows_the_contract():
     project, judgement = _judged()
-    document = json.loads(export.json_bytes(export.summary_dict(project, judgement)))
+    document = json.loads(summary.json_bytes(summary.summary_dict(project, judgement)))
     assert document["format"] == 1
     assert document["totals"] == {"links": 1, "pass": 0, "fail": 0, "incomplete": 1}
     link = document["links"][0]
@@ -64,9 +64,9 @@ def test_summary_shape_follows_the_contract():
 
 def test_write_outputs_replaces_and_removes_stale_and_partial_files(tmp_path):
     out = tmp_path / "out"
-    export.write_outputs(out, {"results.csv": b"old", "report.pdf": b"old pdf"})
-    (out / f"{export.TEMP_PREFIX}report.pdf.abc").write_bytes(b"half")  # an interrupted build
+    atomic.write_outputs(out, {"results.csv": b"old", "report.pdf": b"old pdf"})
+    (out / f"{atomic.TEMP_PREFIX}report.pdf.abc").write_bytes(b"half")  # an interrupted build
     (out / "keep-me.txt").write_text("not ours")
-    export.write_outputs(out, {"results.csv": b"new", "summary.json": b"{}"})
+    atomic.write_outputs(out, {"results.csv": b"new", "summary.json": b"{}"})
     assert sorted(os.listdir(out)) == ["keep-me.txt", "results.csv", "summary.json"]
     assert (out / "results.csv").read_bytes() == b"new"

@@ -18,9 +18,9 @@ from pathlib import Path
 import pypdf
 import pytest
 
-from reportgen.fetcher import RefusedURL, make_url_fetcher, resolve_file_url
-from reportgen.pdf import render_pdf
-from reportgen.pdf_layout import render_part
+from reportgen.pdf.fetcher import RefusedURL, make_url_fetcher, resolve_file_url
+from reportgen.pdf.engine import render_pdf
+from reportgen.pdf.weasy import render_part
 
 CREATED = datetime(2030, 1, 15, tzinfo=timezone.utc)
 

@@ -17,7 +17,7 @@ import pytest
 from reportgen import pipeline
 from reportgen.cli import MAX_PROBLEMS_SHOWN, main
 from reportgen.errors import InputError, ReportgenError
-from reportgen.validate import load_project
+from reportgen.inputs.project import load_project
 from tests.conftest import MINIMAL_PROJECT
 
 Y = MINIMAL_PROJECT["project.yaml"]
@@ -619,7 +619,7 @@ def test_templates_folder_with_a_symlink_leading_outside_is_refused(make_project
 def test_project_templates_cannot_reach_python_internals(make_project):
     import jinja2
 
-    from reportgen import render
+    from reportgen.report import render
 
     project_dir = make_project({"tpl/probe.html.j2": "{{ cycler.__init__.__globals__['os'].getcwd() }}"})
     env = render.make_environment((project_dir / "tpl").resolve())

@@ -27,7 +27,7 @@ from pathlib import Path
 import pytest
 
 from benchmarks.make_synthetic import make_project as make_synthetic
-from reportgen.export import OUTPUT_NAMES, TEMP_PREFIX
+from reportgen.export.atomic import OUTPUT_NAMES, TEMP_PREFIX
 from tests.test_hardening import tree_digest
 
 REPO = Path(__file__).resolve().parent.parent

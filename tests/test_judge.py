@@ -14,7 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from reportgen.judge import judge_project
+from reportgen.engine.judge import judge_project
 from reportgen.model import Directions, Instrument, InstrumentKind, LinkVerdict
 from tests.builders import make_link, make_project
 
@@ -178,7 +178,7 @@ def test_properties_margin_and_link_verdict(losses, length_m, connections, splic
        connections=st.integers(0, 20), splices=st.integers(0, 50), more=st.integers(1, 5))
 def test_property_limit_grows_with_length_connections_splices(length_m, extra_m, connections,
                                                               splices, more):
-    from reportgen.budget import allowed_loss_db
+    from reportgen.engine.budget import allowed_loss_db
     from reportgen.model import ReferenceMethod
     from tests.builders import TEST_LIMITS
 

@@ -1,10 +1,10 @@
-"""reportgen.load and reportgen.csvread: file reading helpers."""
+"""reportgen.inputs.files and reportgen.inputs.csvread: file reading helpers."""
 from __future__ import annotations
 
 from pathlib import Path
 
-from reportgen.csvread import read_csv
-from reportgen.load import (
+from reportgen.inputs.csvread import read_csv
+from reportgen.inputs.files import (
     as_written,
     decode_text,
     parse_yaml,

@@ -16,9 +16,9 @@ import pypdf
 import pytest
 
 from reportgen.errors import ReportgenError
-from reportgen.pdf import PageMap, _receive_part, _settle_front, render_pdf
-from reportgen.pdf_layout import render_part
-from reportgen.pdf_merge import pdf_date
+from reportgen.pdf.engine import PageMap, _receive_part, _settle_front, render_pdf
+from reportgen.pdf.weasy import render_part
+from reportgen.pdf.merge import pdf_date
 
 CREATED = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
 CSS = """<style>
@@ -275,7 +275,7 @@ def test_pdf_date_format(moment: datetime, expected: str) -> None:
 
 def test_without_qpdf_the_merged_file_is_still_complete(
         tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr("reportgen.pdf_merge.shutil.which", lambda name: None)
+    monkeypatch.setattr("reportgen.pdf.merge.shutil.which", lambda name: None)
     first = render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED)
     again = render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED)
     assert first == again

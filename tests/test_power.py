@@ -17,12 +17,12 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from reportgen.applications import load_applications
-from reportgen.budget import link_budget
-from reportgen.judge import judge_project
-from reportgen.level_diagram import LABELS, level_steps, power_level_svg
+from reportgen.inputs.apptable import load_applications
+from reportgen.engine.budget import link_budget
+from reportgen.engine.judge import judge_project
+from reportgen.report.level_diagram import LABELS, level_steps, power_level_svg
 from reportgen.model import DEFAULT_ATTENUATORS_DB, FiberType, ReferenceMethod, Transceiver
-from reportgen.power import (
+from reportgen.engine.power import (
     LossRange,
     PowerBasis,
     PowerVerdict,

@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import pytest
 
-from reportgen.budget import allowed_loss_db
-from reportgen.limits import builtin_ids, load_builtin_limit_set
+from reportgen.engine.budget import allowed_loss_db
+from reportgen.inputs.limits import builtin_ids, load_builtin_limit_set
 from reportgen.model import FiberType, Plant, ReferenceMethod
 from tests.builders import make_link
 

@@ -12,11 +12,11 @@ import jinja2
 import pytest
 
 from builders import make_link, make_project
-from reportgen import messages
-from reportgen.judge import judge_project
+from reportgen.report import messages
+from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, ReportOptions
-from reportgen.render import LazyDocuments, build_report, css_string
-from reportgen.viewmodel import link_anchors
+from reportgen.report.render import LazyDocuments, build_report, css_string
+from reportgen.report.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",

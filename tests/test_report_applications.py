@@ -9,13 +9,14 @@ from pathlib import Path
 import pytest
 
 from builders import make_link, make_project
-from reportgen import messages, viewmodel
-from reportgen.applications import assess_project
-from reportgen.judge import judge_project
+from reportgen.report import messages
+from reportgen.report import viewmodel
+from reportgen.engine.applications import assess_project
+from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
-from reportgen.render import build_report
-from reportgen.validate import load_project
-from reportgen.viewmodel import MatrixGroup, MatrixRow, link_anchors, split_groups
+from reportgen.report.render import build_report
+from reportgen.inputs.project import load_project
+from reportgen.report.viewmodel import MatrixGroup, MatrixRow, link_anchors, split_groups
 from test_render import well_formed
 
 NOW = datetime(2030, 2, 1, 12, 0)

@@ -23,7 +23,7 @@ from reportgen.model import (
     Plant,
     ReferenceMethod,
 )
-from reportgen.validate import load_project
+from reportgen.inputs.project import load_project
 from tests.conftest import MINIMAL_PROJECT
 
 Y = MINIMAL_PROJECT["project.yaml"]

@@ -2,7 +2,7 @@
 
 WeasyPrint parses with tinyhtml5 (an HTML5 parser following the WHATWG parsing
 algorithm). The PDF engine reads our own templates' output with the standard
-library's XML parser instead (reportgen.pdf_layout.parse_xml). That is only right if
+library's XML parser instead (reportgen.pdf.weasy.parse_xml). That is only right if
 both parsers build the same tree, which these tests check on every document of the
 demo report and of a report full of hostile text, and if the pages come out the same,
 which they check byte for byte.
@@ -20,10 +20,10 @@ import tinyhtml5
 
 from builders import make_link, make_project
 from reportgen import pipeline
-from reportgen.judge import judge_project
-from reportgen.pdf import PageMap
-from reportgen.pdf_layout import parse_xml, render_part
-from reportgen.render import ReportDocument, build_report
+from reportgen.engine.judge import judge_project
+from reportgen.pdf.engine import PageMap
+from reportgen.pdf.weasy import parse_xml, render_part
+from reportgen.report.render import ReportDocument, build_report
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_project"
 NOW = datetime(2030, 2, 1, 12, 0)

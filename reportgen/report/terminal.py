@@ -9,8 +9,8 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 from rich.text import Text
 
-from .limits import builtin_ids, describe_rows, load_builtin_limit_set
-from .errors import ReportgenError
+from reportgen.inputs.limits import builtin_ids, describe_rows, load_builtin_limit_set
+from reportgen.errors import ReportgenError
 
 _CONTROL = {code: f"\\x{code:02x}" for code in [*range(0x20), 0x7F]}
 
@@ -107,7 +107,7 @@ def print_limit_set(console: Console, set_id: str) -> None:
 
 def print_applications(console: Console) -> None:
     """The application table: limits per fiber type, then each entry's source and status."""
-    from .applications import describe_rows as application_rows
+    from reportgen.inputs.apptable import describe_rows as application_rows
 
     rows = application_rows()
     table = Table(header_style="bold", title="Applications (maximum channel insertion loss "

@@ -4,10 +4,10 @@ One WeasyPrint render of our 2,000-link report takes about 18 minutes and 12 GB 
 a 2-core machine (benchmarks/README.md), and its memory grows with the document. So the body parts
 are rendered separately in worker processes (a fresh process per part keeps memory
 flat) and merged with pypdf; what spans parts is rebuilt after the merge
-(:mod:`reportgen.pdf_merge`): page numbers, links between parts, the outline.
+(:mod:`reportgen.pdf.merge`): page numbers, links between parts, the outline.
 
 The front matter (cover, contents, summary) shows page numbers. Ours leaves a slot of
-fixed width for each (see :class:`reportgen.pdf_layout.PageSlot`), so its layout does
+fixed width for each (see :class:`reportgen.pdf.weasy.PageSlot`), so its layout does
 not depend on them: it is rendered once, while the workers are busy, and the numbers
 are written into the slots after the merge. A front matter that prints the numbers
 as text (a project's own templates may) is rendered again after the bodies, until
@@ -33,10 +33,10 @@ from multiprocessing.process import BaseProcess
 from pathlib import Path
 from typing import Final
 
-from .errors import ReportgenError
-from .pdf_layout import RenderedPart, render_part
-from .pdf_merge import PageCopier, finish_pdf
-from .pdf_stamp import check_label_text
+from reportgen.errors import ReportgenError
+from reportgen.pdf.weasy import RenderedPart, render_part
+from reportgen.pdf.merge import PageCopier, finish_pdf
+from reportgen.pdf.stamp import check_label_text
 
 LOGGER = logging.getLogger(__name__)
 
@@ -131,7 +131,7 @@ class _Workers:
 
     def __init__(self) -> None:
         self.context = multiprocessing.get_context("forkserver")
-        self.context.set_forkserver_preload(["reportgen.pdf"])
+        self.context.set_forkserver_preload(["reportgen.pdf.engine"])
         self.spare: _Worker | None = None
         self.serial = 0
 
@@ -323,7 +323,7 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         The documents come from our own templates, which write well-formed XML:
         read them with the standard library's XML parser, falling back to
         WeasyPrint's HTML parser for any that is not (see
-        :func:`reportgen.pdf_layout.parse_xml`).
+        :func:`reportgen.pdf.weasy.parse_xml`).
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1 (got {workers})")

@@ -20,7 +20,7 @@ from typing import Final
 
 import pandas as pd
 
-from .model import Component, LimitSet, Link, Plant, ReferenceMethod
+from reportgen.model import Component, LimitSet, Link, Plant, ReferenceMethod
 
 END_CONNECTIONS: Final[Mapping[ReferenceMethod, int]] = {
     # [2]: end connections the reference method leaves inside the measurement

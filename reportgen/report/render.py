@@ -12,12 +12,12 @@ Contract with reportgen.pdf:
 - elements with ``data-bookmark`` / ``data-bookmark-level`` and an ``id`` are outline
   entries; headings carry ``bookmark-level: none``;
 - the bottom-right page margin box is left empty for the page stamp
-  (:data:`reportgen.messages.PAGE_LABEL`);
+  (:data:`reportgen.report.messages.PAGE_LABEL`);
 - page numbers in PDF parts are empty ``page-slot`` links pdf.py fills in after the
   merge (``front(page_of, total_pages)`` may also print numbers ``page_of`` gives).
 
 Applications and power budgets (``extras["applications"]``, a
-:class:`reportgen.applications.ProjectApplications`) add a block to each link sheet and
+:class:`reportgen.engine.applications.ProjectApplications`) add a block to each link sheet and
 a project section ``id="applications"`` (matrix and power list): in the front matter
 after the link register for small projects, else as parts of their own between the
 link sheets and the appendix (:data:`viewmodel.FRONT_MATRIX_MAX_LINKS`).
@@ -36,13 +36,17 @@ import jinja2
 from jinja2.sandbox import ImmutableSandboxedEnvironment
 from markupsafe import Markup
 
-from . import charts, diagrams, messages
-from .applications import ProjectApplications
-from .budget import link_budget
-from .judge import Judgement
-from .level_diagram import level_steps, power_level_svg
-from .model import Project
-from .viewmodel import LinkView, ReportView, build_view, chunk_links, split_groups
+from reportgen.report import charts
+
+from reportgen.report import diagrams
+
+from reportgen.report import messages
+from reportgen.engine.applications import ProjectApplications
+from reportgen.engine.budget import link_budget
+from reportgen.engine.judge import Judgement
+from reportgen.report.level_diagram import level_steps, power_level_svg
+from reportgen.model import Project
+from reportgen.report.viewmodel import LinkView, ReportView, build_view, chunk_links, split_groups
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -50,8 +54,9 @@ STYLESHEETS: Final = ("report.css", "print.css")
 
 def templates_dir() -> Path:
     """Our templates: inside the installed package, else the source checkout's top level."""
-    packaged = Path(__file__).parent / "templates"
-    return packaged if packaged.is_dir() else Path(__file__).parent.parent / "templates"
+    package = Path(__file__).resolve().parent.parent
+    packaged = package / "templates"
+    return packaged if packaged.is_dir() else package.parent / "templates"
 
 
 class LazyDocuments(Sequence[str]):

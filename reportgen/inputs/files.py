@@ -1,7 +1,7 @@
 """Reading the files of a project folder: size guard, text decoding, YAML, paths.
 
 Only I/O lives here; what the contents must look like is checked in
-``reportgen.validate`` (CSV tables are read by ``reportgen.csvread``). Nothing
+``reportgen.inputs.project`` (CSV tables are read by ``reportgen.inputs.csvread``). Nothing
 in this module writes to the project folder.
 """
 from __future__ import annotations
@@ -14,7 +14,7 @@ from typing import Any, Final
 
 import yaml
 
-from .errors import InputProblem
+from reportgen.errors import InputProblem
 
 MAX_FILE_BYTES: Final = 256 * 2**20  # largest input file read (256 MB)
 _BYTES_PER_MB: Final = 2**20

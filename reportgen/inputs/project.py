@@ -15,11 +15,11 @@ from typing import Final
 
 import pandas as pd
 
-from .applications import validate_application_ids
-from .csvread import CsvTable, read_csv
-from .errors import InputError, InputProblem
-from .load import clip, is_inside, outside_problem, printable, read_yaml
-from .model import (
+from reportgen.inputs.apptable import load_applications, validate_application_ids
+from reportgen.inputs.csvread import CsvTable, read_csv
+from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_yaml
+from reportgen.model import (
     Component,
     FiberType,
     LengthUnit,
@@ -29,11 +29,12 @@ from .model import (
     Project,
     Transceiver,
 )
-from .projectfile import Settings, check_project_yaml, enum_choices, match_enum
-from .units import ft_to_m
-from .validate_results import DECIMAL_HINT, EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
-from .validate_results import OPTIONAL as RESULT_OPTIONAL
-from .validate_results import REQUIRED as RESULT_REQUIRED
+from reportgen.inputs.checker import NUMBER_TEXT, enum_choices, match_enum
+from reportgen.inputs.project_yaml import Settings, check_project_yaml
+from reportgen.units import ft_to_m
+from reportgen.inputs.results import DECIMAL_HINT, EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
+from reportgen.inputs.results import OPTIONAL as RESULT_OPTIONAL
+from reportgen.inputs.results import REQUIRED as RESULT_REQUIRED
 
 LINKS_FILE: Final = "links.csv"
 RESULTS_DIR: Final = "results"
@@ -42,7 +43,6 @@ LINK_OPTIONAL: Final = ("plant", "strands", "connections", "splices", "component
                         "transceiver", "notes")
 MAX_STRANDS: Final = 1000
 MAX_COUNT: Final = 1000  # connections or splices on one link
-_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
 _DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+", re.ASCII)
 
 
@@ -77,7 +77,8 @@ def load_project(project_dir: Path) -> Project:
     links, all_link_ids, link_problems = _load_links(root, settings)
     problems += _wavelength_coverage(settings, links)
     problems += link_problems
-    problems += validate_application_ids(links)
+    applications = load_applications()
+    problems += validate_application_ids(links, applications)
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
@@ -116,6 +117,7 @@ def load_project(project_dir: Path) -> Project:
         technicians=settings.technicians,
         report=settings.report,
         result_files=tuple(files),
+        applications=applications,
     )
 
 
@@ -177,7 +179,7 @@ def _by_line(problems: list[InputProblem]) -> list[InputProblem]:
 
 def _number(text: str, column: str, expected: str, line: int, file: str,
             problems: list[InputProblem]) -> float | None:
-    if _NUMBER.fullmatch(text):
+    if NUMBER_TEXT.fullmatch(text):
         return float(text)
     hint = DECIMAL_HINT if _DECIMAL_COMMA.fullmatch(text) else ""
     problems.append(InputProblem(file, line, column, expected + hint, clip(text)))
@@ -188,7 +190,7 @@ def _count(text: str, column: str, low: int, high: int, default: int, line: int,
            problems: list[InputProblem]) -> int | None:
     if not text:
         return default
-    value = float(text) if _NUMBER.fullmatch(text) else None
+    value = float(text) if NUMBER_TEXT.fullmatch(text) else None
     if value is None or not low <= value <= high or value != int(value):  # range first: int(inf) fails
         problems.append(InputProblem(file, line, column, f"a whole number from {low} to {high}", clip(text)))
         return None

@@ -7,13 +7,12 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from datetime import date, datetime
-from typing import TYPE_CHECKING, Any, Final
+from typing import Any, Final
 
-from .load import as_written
-from .model import Component, Instrument, InstrumentKind, Transceiver
+from reportgen.inputs.files import as_written
+from reportgen.model import Component, Instrument, InstrumentKind, Transceiver
 
-if TYPE_CHECKING:
-    from .projectfile import Checker
+from reportgen.inputs.checker import Checker
 
 MAX_COMPONENT_LOSS_DB: Final = 60.0
 POWER_RANGE_DBM: Final = (-60.0, 30.0)  # sanity bounds for transceiver powers

@@ -1,12 +1,12 @@
 """Merge rendered parts into one PDF: pages, page numbers, links, outline, metadata.
 
-Every part was rendered on its own (see :mod:`reportgen.pdf_layout`), with its
+Every part was rendered on its own (see :mod:`reportgen.pdf.weasy`), with its
 internal links, named destinations and outline left out. Here the pages are copied
 in order with pypdf, then the pieces that span parts are rebuilt from the recorded
 positions: a GoTo link annotation for every ``<a href="#id">`` whose target exists
 somewhere in the report, an outline entry and a named destination for every bookmark
 element, the "Page X of Y" stamp and the numbers of the page slots
-(:mod:`reportgen.pdf_stamp`).
+(:mod:`reportgen.pdf.stamp`).
 """
 
 from __future__ import annotations
@@ -36,9 +36,9 @@ from pypdf.generic import (
     TextStringObject,
 )
 
-from . import __version__
-from .pdf_layout import Anchor, PageFrame, RenderedPart
-from .pdf_stamp import Stamper, make_stamp_font
+from reportgen import __version__
+from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
+from reportgen.pdf.stamp import Stamper, make_stamp_font
 
 LOGGER = logging.getLogger(__name__)
 QPDF_ARGS: Final = ("--object-streams=generate", "--deterministic-id")

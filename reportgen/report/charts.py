@@ -15,8 +15,8 @@ from typing import Final
 import matplotlib
 from matplotlib.figure import Figure
 
-from .messages import TEXT, msg
-from .viewmodel import LinkView
+from reportgen.report.messages import TEXT, msg
+from reportgen.report.viewmodel import LinkView
 
 _RC: Final = {
     "svg.fonttype": "none",

@@ -13,8 +13,8 @@ from typing import Any
 
 import yaml
 
-from .errors import InputError, InputProblem
-from .model import FiberType, LimitSet
+from reportgen.errors import InputError, InputProblem
+from reportgen.model import FiberType, LimitSet
 
 _MAX_DB = 100.0  # sanity bound for any allowance [dB] or coefficient [dB/km]
 

@@ -2,9 +2,9 @@
 
 Templates see only these objects (no pandas). Nothing here formats numbers or
 chooses words: numbers stay floats in their units (``_db``, ``_m``, ``_nm``) and
-are formatted by the template filters of :mod:`reportgen.render`; vocabulary
+are formatted by the template filters of :mod:`reportgen.report.render`; vocabulary
 values stay the contract's spellings (``"pass"``, ``"ab"``) and are worded by the
-catalogue :mod:`reportgen.messages`.
+catalogue :mod:`reportgen.report.messages`.
 """
 from __future__ import annotations
 
@@ -20,13 +20,13 @@ from typing import Any, Final
 
 import pandas as pd
 
-from .applications import ProjectApplications
-from .applications import describe_rows as describe_application_rows
-from .budget import Budget, link_budget
-from .judge import Judgement, LinkOutcome, calibration_state
-from .limits import describe_rows
-from .model import Instrument, Link, LinkVerdict, Project, ResultVerdict
-from .power import PowerBudget
+from reportgen.engine.applications import ProjectApplications
+from reportgen.inputs.apptable import describe_rows as describe_application_rows
+from reportgen.engine.budget import Budget, link_budget
+from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
+from reportgen.inputs.limits import describe_rows
+from reportgen.model import Instrument, Link, LinkVerdict, Project, ResultVerdict
+from reportgen.engine.power import PowerBudget
 
 LINKS_PER_PART: Final = 40  # most link sheets per PDF body part (see ReportDocument.bodies)
 MIN_LINKS_PER_PART: Final = 10

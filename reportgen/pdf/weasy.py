@@ -3,7 +3,7 @@
 This is the work done in each worker process of :mod:`reportgen.pdf`. A part is
 rendered on its own, so WeasyPrint cannot resolve links into other parts; they are
 taken out of the part's PDF here and rebuilt over the merged file by
-:mod:`reportgen.pdf_merge`, with every anchor's page and position recorded below.
+:mod:`reportgen.pdf.merge`, with every anchor's page and position recorded below.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from typing import Any, Final
 import cssselect2
 from weasyprint import HTML
 
-from .fetcher import make_url_fetcher, root_url
+from reportgen.pdf.fetcher import make_url_fetcher, root_url
 
 LOGGER = logging.getLogger(__name__)
 
@@ -52,7 +52,7 @@ class PageSlot:
     A front matter that prints page numbers as text must be laid out again whenever
     they change. One that leaves a fixed-width slot for each number (an empty
     inline-block link of class ``page-slot``) is final after its first layout: the
-    number is drawn into the slot once every page is known (:mod:`reportgen.pdf_stamp`).
+    number is drawn into the slot once every page is known (:mod:`reportgen.pdf.stamp`).
     """
 
     target: str
@@ -180,9 +180,9 @@ class _ParsedHTML(HTML):
 def render_part(html: str, root: Path, *, xml_first: bool = False) -> RenderedPart:
     """Render one complete HTML document to PDF bytes plus its anchors and links.
 
-    Resources are read only through :func:`reportgen.fetcher.make_url_fetcher`.
+    Resources are read only through :func:`reportgen.pdf.fetcher.make_url_fetcher`.
     Internal links, named destinations and WeasyPrint's own outline are left out of
-    the part's PDF: the merged report gets them from :mod:`reportgen.pdf_merge`.
+    the part's PDF: the merged report gets them from :mod:`reportgen.pdf.merge`.
     With ``xml_first`` (our own templates), the document is read by :func:`parse_xml`
     when it is well-formed XML; otherwise WeasyPrint parses it as HTML. The pages
     are the same either way.

@@ -12,7 +12,7 @@ The diagram has two panels sharing one dB scale:
   it reads in grayscale and without colour vision; colour only repeats it.
 
 The limit value is printed beside each column. All labels come from
-:mod:`reportgen.messages`; all input text is escaped.
+:mod:`reportgen.report.messages`; all input text is escaped.
 
 References
 ----------
@@ -26,8 +26,8 @@ from typing import Final
 
 from markupsafe import escape
 
-from .messages import TEXT, format_db, msg
-from .viewmodel import BudgetView, LinkView, ResultView
+from reportgen.report.messages import TEXT, format_db, msg
+from reportgen.report.viewmodel import BudgetView, LinkView, ResultView
 
 WIDTH: Final = 640
 HEIGHT: Final = 156

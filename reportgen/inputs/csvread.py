@@ -3,7 +3,7 @@
 Contract (project format v1, "All CSV files"): UTF-8 with or without a byte-order
 mark, comma separated, a header row, column names case-insensitive, surrounding
 blanks ignored, unknown columns kept and ignored, an empty cell means "not given".
-Values are left as text here; ``reportgen.validate`` checks and converts them.
+Values are left as text here; ``reportgen.inputs.project`` checks and converts them.
 """
 from __future__ import annotations
 
@@ -16,8 +16,8 @@ from dataclasses import dataclass
 from operator import itemgetter
 from pathlib import Path
 
-from .errors import InputProblem
-from .load import clip, read_text
+from reportgen.errors import InputProblem
+from reportgen.inputs.files import clip, read_text
 
 _DECIMAL_COMMA = re.compile(r"\d,\d")
 _SEPARATORS = {";": "semicolon", "\t": "tab"}

@@ -3,7 +3,7 @@
 The parts are rendered separately, so no part knows its absolute page numbers or
 the total; the numbers are written afterwards, as one small content stream per page
 appended by pypdf. The same stream writes the page number of each page slot left
-by the front matter (:class:`reportgen.pdf_layout.PageSlot`). The text is set in
+by the front matter (:class:`reportgen.pdf.weasy.PageSlot`). The text is set in
 DejaVu Sans, subset to the characters used and embedded once (a simple TrueType
 font, WinAnsi encoding). If no DejaVu Sans font file
 is found, the stamp falls back to the non-embedded base-14 Helvetica, which every PDF
@@ -37,7 +37,7 @@ from pypdf.generic import (
     StreamObject,
 )
 
-from .pdf_layout import PageFrame, PageSlot
+from reportgen.pdf.weasy import PageFrame, PageSlot
 
 STAMP_FONT_SIZE_PT: Final = 8.0
 STAMP_FONT_RESOURCE: Final = "/RgStampFont"

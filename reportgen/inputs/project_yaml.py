@@ -7,21 +7,19 @@ like a misspelling of a known key of the same mapping, which is reported.
 from __future__ import annotations
 
 import difflib
-import functools
 import math
 import os
-import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from enum import StrEnum
 from pathlib import Path
-from typing import Any, Final, TypeVar
+from typing import Any, Final
 
-from . import catalogs
-from . import limits as limit_sets
-from .errors import InputError, InputProblem
-from .load import MAX_FILE_BYTES, as_written, clip, is_inside, resolve_inside, shown_path, shown_value, size_in_mb
-from .model import (
+from reportgen.inputs import catalogs
+from reportgen.inputs.checker import Checker as _BaseChecker, enum_choices, match_enum
+from reportgen.inputs import limits as limit_sets
+from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.files import MAX_FILE_BYTES, is_inside, resolve_inside, shown_path, size_in_mb
+from reportgen.model import (
     DEFAULT_ATTENUATORS_DB,
     DEFAULT_WAVELENGTHS_NM,
     Component,
@@ -42,18 +40,22 @@ from .model import (
 FILE: Final = "project.yaml"
 MAX_LOGO_BYTES: Final = 2 * 2**20
 LOGO_KINDS: Final = (".svg", ".png", ".jpg", ".jpeg")
-WAVELENGTH_RANGE_NM: Final = (600, 1700)
-_NUMBER_TEXT = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
-_MISSING = object()
-E = TypeVar("E", bound=StrEnum)
 
-_KEYS: Final[Mapping[str, tuple[str, ...]]] = {
+KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "project": ("title", "site", "customer", "job_number", "contractor"),
     "project.contractor": ("name", "address", "phone", "email", "logo"),
     "testing": ("limits", "reference_method", "directions", "uncertainty_db", "units",
                 "wavelengths", "attenuators_db"),
     "report": ("paper", "templates"),
 }
+REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
+                                  ("project.contractor", "name"), ("testing", "limits"),
+                                  ("testing", "reference_method")})
+
+
+def Checker(root: Path) -> _BaseChecker:
+    """A checker for project.yaml: its known keys and required keys."""
+    return _BaseChecker(root, FILE, KEYS, REQUIRED_KEYS)
 
 
 @dataclass
@@ -70,140 +72,6 @@ class Settings:
     technicians: tuple[str, ...] = ()
     report: ReportOptions | None = None
     units: LengthUnit | None = None
-
-
-def enum_choices(enum: type[StrEnum]) -> str:
-    return ", ".join(member.value for member in enum)
-
-
-@functools.cache
-def _members_by_text(enum: type[StrEnum]) -> dict[str, StrEnum]:
-    return {member.value.lower(): member for member in enum}
-
-
-def match_enum(enum: type[E], text: str) -> E | None:
-    """The member whose value equals ``text`` ignoring case and surrounding blanks."""
-    return _members_by_text(enum).get(text.strip().lower())
-
-
-def _shown(value: Any) -> str:
-    """A value quoted back in a problem: numbers as written, structures never expanded in full."""
-    written = getattr(value, "yaml_text", None)
-    return clip(written) if written else shown_value(value)
-
-
-class Checker:
-    """Collects problems of project.yaml while reading its values."""
-
-    def __init__(self, root: Path) -> None:
-        self.root = root
-        self.problems: list[InputProblem] = []
-
-    def problem(self, path: str, expected: str, found: Any = _MISSING) -> None:
-        self.problems.append(InputProblem(FILE, None, path, expected,
-                                          None if found is _MISSING else _shown(found)))
-
-    def section(self, data: Mapping[str, Any], key: str, path: str, expected: str,
-                *, required: bool) -> Mapping[str, Any] | None:
-        value = self.get(data, key, path, expected, required=required)
-        if value is None:
-            return None
-        if not isinstance(value, Mapping):
-            self.problem(path, expected, value)
-            return None
-        self.misspelt_keys(value, path)
-        return value
-
-    def get(self, data: Mapping[str, Any], key: str, path: str, expected: str,
-            *, required: bool) -> Any:
-        """The value of ``key``; a required key that is missing or empty is a problem."""
-        if key in data and data[key] is not None:
-            return data[key]
-        if required:
-            if key in data:
-                self.problem(path, f"{expected} (the key has no value)")
-            else:
-                hint = ""
-                others = [str(k) for k in data if k not in _KEYS.get(path.rpartition(".")[0], ())]
-                close = difflib.get_close_matches(key, others, n=1, cutoff=0.8)
-                if close:
-                    hint = f"; did you mean {key} instead of {close[0]!r}?"
-                self.problem(path, f"{expected} (required key is missing{hint})")
-        return None
-
-    def misspelt_keys(self, data: Mapping[str, Any], path: str) -> None:
-        """Report keys that look like misspellings of known optional keys not given."""
-        known = _KEYS.get(path)
-        if not known:
-            return
-        for key in data:
-            if key in known or not isinstance(key, str):
-                continue
-            close = difflib.get_close_matches(key.lower(), known, n=1, cutoff=0.8)
-            if close and close[0] not in data and not self._required(path, close[0]):
-                self.problem(f"{path}.{clip(key)}", f"a key the format knows (did you mean {close[0]}?)")
-
-    @staticmethod
-    def _required(path: str, key: str) -> bool:
-        return (path, key) in {("project", "title"), ("project", "contractor"),
-                               ("project.contractor", "name"), ("testing", "limits"),
-                               ("testing", "reference_method")}
-
-    def text(self, data: Mapping[str, Any], key: str, path: str, *, required: bool = False) -> str | None:
-        value = self.get(data, key, path, "a non-empty text", required=required)
-        if value is None:
-            return None
-        if isinstance(value, (Mapping, list, bool)) or not as_written(value).strip():
-            self.problem(path, "a non-empty text", value)
-            return None
-        return as_written(value).strip()
-
-    def choice(self, data: Mapping[str, Any], key: str, path: str, enum: type[E],
-               default: E | None) -> E | None:
-        value = self.get(data, key, path, f"one of {enum_choices(enum)}", required=default is None)
-        if value is None:
-            return default
-        member = match_enum(enum, as_written(value)) if isinstance(value, (str, int, float)) else None
-        if member is None:
-            self.problem(path, f"one of {enum_choices(enum)}", value)
-        return member
-
-    def number(self, value: Any, path: str, expected: str, low: float, high: float,
-               *, low_open: bool = False) -> float | None:
-        written = value
-        if isinstance(value, str) and _NUMBER_TEXT.fullmatch(value.strip()):
-            value = float(value)
-        if isinstance(value, int) and not isinstance(value, bool):
-            try:
-                value = float(value)
-            except OverflowError:  # an integer of hundreds of digits
-                value = math.inf
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            hint = " (write numbers with a decimal point, not a comma)" if isinstance(value, str) \
-                and "," in value else ""
-            self.problem(path, f"a number {expected}{hint}", written)
-            return None
-        if value < low or value > high or (low_open and value == low):
-            self.problem(path, f"a number {expected}", written)
-            return None
-        return float(value)
-
-    def wavelength(self, value: Any, path: str) -> int | None:
-        low, high = WAVELENGTH_RANGE_NM
-        if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
-            self.problem(path, f"a wavelength in whole nm from {low} to {high}", value)
-            return None
-        return int(value)
-
-    def inside_path(self, value: Any, path: str, what: str) -> Path | None:
-        if not isinstance(value, str) or not value.strip():
-            self.problem(path, f"a path to {what} inside the project folder", value)
-            return None
-        resolved = resolve_inside(self.root, value)
-        if resolved is None:
-            self.problem(path, f"a path to {what} inside the project folder "
-                               "(symbolic links are followed)", value)
-        return resolved
 
 
 def check_project_yaml(data: Any, root: Path) -> tuple[Settings, list[InputProblem]]:

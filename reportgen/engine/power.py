@@ -35,8 +35,8 @@ from typing import Any, Final
 
 import pandas as pd
 
-from .model import Link, Transceiver
-from .units import received_power_dbm
+from reportgen.model import Link, Transceiver
+from reportgen.units import received_power_dbm
 
 # Comparisons allow for binary floating point (same tolerance as the judge).
 TOLERANCE_DB: Final = 1e-9

@@ -13,11 +13,12 @@ from typing import Final
 import numpy as np
 import pandas as pd
 
-from .csvread import CsvTable
-from .errors import InputProblem
-from .load import clip
-from .model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
-from .units import M_PER_FT
+from reportgen.inputs.csvread import CsvTable
+from reportgen.errors import InputProblem
+from reportgen.inputs.checker import WAVELENGTH_RANGE_NM
+from reportgen.inputs.files import clip
+from reportgen.model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
+from reportgen.units import M_PER_FT
 
 REQUIRED: Final = (("link_id",), ("wavelength_nm",), ("loss_db",), ("tested_at",))
 LENGTH_COLUMNS: Final = ("length", "length_m", "length_ft")
@@ -25,7 +26,6 @@ REQUIRED_NAMES: Final = tuple(group[0] for group in REQUIRED)
 OPTIONAL: Final = ("strand", "direction", "instrument", "technician", "note", *LENGTH_COLUMNS)
 MAX_LOSS_DB: Final = 100.0
 MAX_STRAND: Final = 1000  # as links.csv strands
-WAVELENGTH_RANGE_NM: Final = (600, 1700)  # as project.yaml testing.wavelengths
 MAX_LENGTH_M: Final = 200_000.0  # 200 km
 YEAR_RANGE: Final = (1900, 2199)
 EMPTY: Final = " (the cell is empty)"

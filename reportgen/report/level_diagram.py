@@ -8,7 +8,7 @@ Readable in grayscale: lines differ by dash pattern and marker shape, not colour
 
 How the loss is split over the parts: each part (end connections, fiber, connections
 between the ends, splices, catalog components) drops in proportion to its share of the
-loss budget (:func:`reportgen.budget.link_budget`); the drops add up to the worst or
+loss budget (:func:`reportgen.engine.budget.link_budget`); the drops add up to the worst or
 least loss of the power budget, so the end points are exact and the steps schematic.
 A recommended attenuator is drawn as a last step before the receiver.
 
@@ -23,8 +23,8 @@ from dataclasses import dataclass
 from typing import Final
 from xml.sax.saxutils import escape
 
-from .budget import Budget, TermKind
-from .power import PowerBudget
+from reportgen.engine.budget import Budget, TermKind
+from reportgen.engine.power import PowerBudget
 
 LABELS: Final[dict[str, str]] = {
     "title": "Optical power level, {wavelength} nm ({basis})",

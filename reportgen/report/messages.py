@@ -445,7 +445,7 @@ def format_dbm(value: float | None) -> str:
 
 def format_length(length_m: float, unit: str = "m") -> str:
     """A length given in metres, shown in ``unit`` ("m" or "ft"), whole or one decimal."""
-    from .units import m_to_ft
+    from reportgen.units import m_to_ft
 
     value = m_to_ft(length_m) if unit == "ft" else length_m
     text = f"{value:.0f}" if abs(value - round(value)) < 0.05 else f"{value:.1f}"

@@ -2,102 +2,23 @@
 
 The table ships as ``reportgen/data/applications.yaml``, every value with its source and
 status. This module reads and checks it, lists it, and checks the application ids a
-project names; :mod:`reportgen.applications` assesses links against it.
+project names; :mod:`reportgen.engine.applications` assesses links against it.
 """
 from __future__ import annotations
 
 import difflib
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
-from enum import StrEnum
 from functools import lru_cache
 from importlib import resources
 from typing import Any, Final
 
 import yaml
 
-from .errors import InputProblem, ReportgenError
-from .model import FiberType, Link
+from reportgen.errors import InputProblem, ReportgenError
+from reportgen.model import Application, ApplicationTable, FiberLimits, FiberType, Link
 
 TABLE_FILE: Final = "applications.yaml"
 EXAMPLE_ID: Final = "10GBASE-SR"
-
-
-class ApplicationVerdict(StrEnum):
-    SUPPORTED = "supported"
-    NOT_SUPPORTED = "not-supported"
-    UNTESTED = "untested"
-
-
-class ReasonKind(StrEnum):
-    FIBER_TYPE = "fiber-type-not-specified"
-    TOO_LONG = "too-long"
-    TOO_MUCH_LOSS = "too-much-loss"
-    TOO_LITTLE_LOSS = "too-little-loss"
-    UNTESTED = "untested"
-
-
-# Reason texts, one place to translate. Fields: application, fiber_type, wavelength_nm,
-# value, limit (numbers pre-formatted).
-REASON_TEXTS: dict[ReasonKind, str] = {
-    ReasonKind.FIBER_TYPE: "fiber type {fiber_type} not specified for {application}",
-    ReasonKind.TOO_LONG: "too long: {value} m documented, {limit} m allowed on {fiber_type}",
-    ReasonKind.TOO_MUCH_LOSS: "too much loss at {wavelength_nm} nm: {value} dB measured, "
-                              "{limit} dB allowed",
-    ReasonKind.TOO_LITTLE_LOSS: "too little loss at {wavelength_nm} nm: {value} dB measured, "
-                                "class minimum {limit} dB",
-    ReasonKind.UNTESTED: "untested at {wavelength_nm} nm: no judged result",
-}
-
-
-@dataclass(frozen=True)
-class FiberLimits:
-    """One row of an application entry: the limits on some fiber types."""
-
-    fiber_types: tuple[FiberType, ...]
-    max_length_m: float
-    max_loss_db: float
-    min_loss_db: float | None
-    status: str  # "verified, secondary" / "derived" / "from memory", per value where mixed
-
-
-@dataclass(frozen=True)
-class Application:
-    """One application: where it runs and what it needs from a link."""
-
-    id: str
-    family: str
-    source: str
-    operating_nm: tuple[int, ...]
-    test_wavelengths_nm: tuple[int, ...]
-    strands: int
-    fibers: tuple[FiberLimits, ...]
-
-    def limits_for(self, fiber_type: FiberType) -> FiberLimits | None:
-        for row in self.fibers:
-            if fiber_type in row.fiber_types:
-                return row
-        return None
-
-
-@dataclass(frozen=True)
-class ApplicationTable:
-    title: str
-    sources: Mapping[str, str]
-    entries: tuple[Application, ...]
-
-    @property
-    def ids(self) -> tuple[str, ...]:
-        return tuple(entry.id for entry in self.entries)
-
-    def get(self, application_id: str) -> Application:
-        for entry in self.entries:
-            if entry.id == application_id:
-                return entry
-        raise KeyError(application_id)
-
-    def __contains__(self, application_id: object) -> bool:
-        return application_id in self.ids
 
 
 # ------------------------------------------------------------------ the table
@@ -238,6 +159,3 @@ def validate_application_ids(
                 f"an application id such as {example} (see 'reportgen applications')",
                 application_id))
     return problems
-
-
-# --------------------------------------------------------------- assessment

@@ -30,23 +30,16 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from .apptable import (  # noqa: F401  (re-exported: the public API of applications)
-    TABLE_FILE,
-    EXAMPLE_ID,
-    ApplicationVerdict,
-    ReasonKind,
-    REASON_TEXTS,
-    FiberLimits,
+from reportgen.model import (
     Application,
     ApplicationTable,
-    load_applications,
-    parse_applications,
-    DESCRIBE_COLUMNS,
-    describe_rows,
-    validate_application_ids,
+    ApplicationVerdict,
+    FiberType,
+    Link,
+    Project,
+    ReasonKind,
 )
-from .model import FiberType, Link, Project
-from .power import (
+from reportgen.engine.power import (
     TOLERANCE_DB,
     LossRange,
     PowerBudget,
@@ -57,8 +50,21 @@ from .power import (
     round_for_json,
 )
 
+# Reason texts, one place to translate. Fields: application, fiber_type, wavelength_nm,
+# value, limit (numbers pre-formatted).
+REASON_TEXTS: dict[ReasonKind, str] = {
+    ReasonKind.FIBER_TYPE: "fiber type {fiber_type} not specified for {application}",
+    ReasonKind.TOO_LONG: "too long: {value} m documented, {limit} m allowed on {fiber_type}",
+    ReasonKind.TOO_MUCH_LOSS: "too much loss at {wavelength_nm} nm: {value} dB measured, "
+                              "{limit} dB allowed",
+    ReasonKind.TOO_LITTLE_LOSS: "too little loss at {wavelength_nm} nm: {value} dB measured, "
+                                "class minimum {limit} dB",
+    ReasonKind.UNTESTED: "untested at {wavelength_nm} nm: no judged result",
+}
+
+
 if TYPE_CHECKING:
-    from .judge import Judgement
+    from reportgen.engine.judge import Judgement
 
 
 @dataclass(frozen=True)
@@ -182,11 +188,11 @@ def assess_application(
 def assess_link_applications(
     link: Link,
     loss_ranges: Mapping[str, Mapping[int, LossRange]],
-    table: ApplicationTable | None = None,
+    table: ApplicationTable,
 ) -> LinkApplications:
     """Listed applications of one link, and the ids of all it would support as measured.
 
-    ``loss_ranges`` is :func:`reportgen.power.judged_loss_ranges` of the judged results.
+    ``loss_ranges`` is :func:`reportgen.engine.power.judged_loss_ranges` of the judged results.
     Raises KeyError for a listed id the table lacks (see :func:`validate_application_ids`).
 
     Only the listed applications are assessed in full (with their reasons). ``capable``
@@ -195,7 +201,6 @@ def assess_link_applications(
     finds no reason. ``every`` holds the full assessment of each table entry, each worked
     out when first read.
     """
-    table = table or load_applications()
     plan = _table_plan(table)
     measured = loss_ranges.get(link.link_id) or {}
     listed = tuple(assess_application(link, table.entries[plan.index[application_id]], measured)
@@ -402,11 +407,11 @@ class ProjectApplications:
 def assess_project(project: Project, judgement: Judgement) -> ProjectApplications:
     """Applications and transceiver power budgets of every link of a judged project.
 
-    ``judgement`` is :class:`reportgen.judge.Judgement` (its ``results`` and ``budgets``).
+    ``judgement`` is :class:`reportgen.engine.judge.Judgement` (its ``results`` and ``budgets``).
     Gives the same as :func:`assess_link_applications` on every link; ``capable`` is
     worked out for all links at once (:func:`capable_by_link`).
     """
-    table = load_applications()
+    table = project.applications
     plan = _table_plan(table)
     losses = judged_loss_table(judgement.results)
     ranges = loss_ranges_from_table(losses)
@@ -437,7 +442,7 @@ def assess_project(project: Project, judgement: Judgement) -> ProjectApplication
 
 
 def capable_by_link(
-    links: Sequence[Link], losses: pd.DataFrame, table: ApplicationTable | None = None
+    links: Sequence[Link], losses: pd.DataFrame, table: ApplicationTable
 ) -> list[tuple[str, ...]]:
     """``capable`` of every link (see :func:`assess_link_applications`), in links order.
 
@@ -451,16 +456,15 @@ def capable_by_link(
     links : sequence of Link
         Fiber type and documented length ``length_m``. [m]
     losses : pandas.DataFrame
-        :func:`reportgen.power.judged_loss_table` of the judged results.
-    table : ApplicationTable, optional
-        The application table (default: the built-in one).
+        :func:`reportgen.engine.power.judged_loss_table` of the judged results.
+    table : ApplicationTable
+        The application table (``Project.applications``).
 
     References
     ----------
     .. [1] IEEE 802.3, INCITS FC-PI, ITU-T G.984.2 / G.987.2 / G.9807.1: maximum channel
        insertion loss and reach; PON classes also a minimum loss.
     """
-    table = table or load_applications()
     plan = _table_plan(table)
     link_ids = pd.Index([link.link_id for link in links])
     if not link_ids.is_unique:  # not after validation; keep the per-link meaning anyway

@@ -25,8 +25,8 @@ from typing import Final
 import numpy as np
 import pandas as pd
 
-from .budget import budget_frame
-from .model import (
+from reportgen.engine.budget import budget_frame
+from reportgen.model import (
     Directions,
     FiberType,
     Instrument,

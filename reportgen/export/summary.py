@@ -1,0 +1,42 @@
+"""summary.json: the contract's per-link verdicts plus applications and power."""
+from __future__ import annotations
+
+import json
+from collections.abc import Mapping
+from typing import Any, Final
+
+from reportgen.engine.judge import Judgement
+from reportgen.export.results_csv import _number
+from reportgen.model import Project
+
+SUMMARY_FORMAT: Final = 1
+
+
+def summary_dict(project: Project, judgement: Judgement,
+                 link_extras: Mapping[str, Mapping[str, Any]] | None = None,
+                 meta: Mapping[str, Any] | None = None) -> dict[str, Any]:
+    """The summary.json document: format 1 of the contract plus added keys."""
+    links = []
+    for outcome in judgement.links:
+        entry: dict[str, Any] = {
+            "link_id": outcome.link_id,
+            "verdict": outcome.verdict.value,
+            "worst_margin_db": _number(outcome.worst_margin_db),
+            "missing": [
+                {"strand": m.strand, "wavelength_nm": m.wavelength_nm,
+                 "direction": m.direction, "reason": m.reason}
+                for m in outcome.missing
+            ],
+        }
+        entry.update((link_extras or {}).get(outcome.link_id, {}))
+        links.append(entry)
+    document: dict[str, Any] = {"format": SUMMARY_FORMAT, "links": links,
+                                "totals": judgement.totals}
+    document.update(meta or {})
+    return document
+
+
+def json_bytes(document: Mapping[str, Any]) -> bytes:
+    return (json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode()
+
+

@@ -1,0 +1,9 @@
+"""Stage 4, pdf: HTML parts to one PDF. Worker processes, merge, page stamps, links.
+
+Takes finished HTML documents (it knows nothing of links or verdicts) and returns the
+bytes of report.pdf. :mod:`reportgen.pdf.weasy` is the only module that touches
+WeasyPrint's internals and :mod:`reportgen.pdf.merge` the only one that touches
+pypdf's; each lists what it uses.
+
+May import: ``reportgen.errors``, ``reportgen.__version__`` and modules of this package.
+"""
