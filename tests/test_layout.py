@@ -41,6 +41,15 @@ def test_every_stage_imports_only_what_it_may():
     assert wrong == []
 
 
+def test_package_imports_are_absolute():
+    # Relative imports would hide a module's stage from the checks above.
+    relative = [f"{path.relative_to(PACKAGE.parent)}:{node.lineno}"
+                for path in PACKAGE.rglob("*.py")
+                for node in ast.walk(ast.parse(path.read_text(encoding="utf-8")))
+                if isinstance(node, ast.ImportFrom) and node.level]
+    assert relative == []
+
+
 def test_shared_modules_import_no_stage():
     for name in ("model", "errors", "units"):
         for module in _imports(PACKAGE / f"{name}.py"):
