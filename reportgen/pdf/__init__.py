@@ -2,8 +2,8 @@
 
 Takes finished HTML documents (it knows nothing of links or verdicts) and returns the
 bytes of report.pdf. :mod:`reportgen.pdf.weasy` is the only module that touches
-WeasyPrint's internals and :mod:`reportgen.pdf.merge` the only one that touches
-pypdf's; each lists what it uses.
+WeasyPrint's internals and :mod:`reportgen.pdf.pypdf_access` the only one that touches
+pypdf's; each lists what it uses (tests/test_pdf_internals.py checks every item).
 
 May import: ``reportgen.errors``, ``reportgen.__version__`` and modules of this package.
 """

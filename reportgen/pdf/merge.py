@@ -7,6 +7,9 @@ positions: a GoTo link annotation for every ``<a href="#id">`` whose target exis
 somewhere in the report, an outline entry and a named destination for every bookmark
 element, the "Page X of Y" stamp and the numbers of the page slots
 (:mod:`reportgen.pdf.stamp`).
+
+The objects pypdf has no documented method for (link annotations, named destinations
+in one sorted pass) are added through :mod:`reportgen.pdf.pypdf_access`.
 """
 
 from __future__ import annotations
@@ -37,8 +40,9 @@ from pypdf.generic import (
 )
 
 from reportgen import __version__
-from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
+from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
 from reportgen.pdf.stamp import Stamper, make_stamp_font
+from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
 
 LOGGER = logging.getLogger(__name__)
 QPDF_ARGS: Final = ("--object-streams=generate", "--deterministic-id")
@@ -108,7 +112,7 @@ def add_links(writer: PdfWriter, frames: Sequence[PageFrame],
             target_index, anchor = anchors[link.target]
             annotation = _link_annotation(link.rect_pt, references[target_index], anchor)
             annotation[NameObject("/P")] = page.indirect_reference
-            annotations.append(writer._add_object(annotation))
+            annotations.append(add_indirect(writer, annotation))
         if annotations:
             existing = page.get("/Annots")
             existing = list(existing.get_object()) if existing is not None else []
@@ -128,7 +132,7 @@ def add_named_destinations(writer: PdfWriter, parts: Sequence[RenderedPart],
                     if bookmark.anchor_id in anchors})
     if not names:
         return 0
-    tree = writer.get_named_dest_root()  # the name tree's array: keys in sorted order
+    tree = named_destination_array(writer)  # the name tree's array: keys in sorted order
     pages = writer.pages
     for name in names:
         page_index, anchor = anchors[name]

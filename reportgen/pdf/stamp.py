@@ -11,6 +11,9 @@ viewer provides but which is not archival.
 
 Each page's original content is wrapped in ``q … Q`` so that the graphics state a
 part leaves behind (WeasyPrint flips the y axis) cannot move the stamp.
+
+The font and the streams are added to the writer through
+:func:`reportgen.pdf.pypdf_access.add_indirect` (pypdf has no documented method for it).
 """
 
 from __future__ import annotations
@@ -37,6 +40,7 @@ from pypdf.generic import (
     StreamObject,
 )
 
+from reportgen.pdf.pypdf_access import add_indirect
 from reportgen.pdf.weasy import PageFrame, PageSlot
 
 STAMP_FONT_SIZE_PT: Final = 8.0
@@ -136,7 +140,7 @@ def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
         NameObject("/Descent"): NumberObject(round(font["hhea"].descent * scale)),
         NameObject("/CapHeight"): NumberObject(round(CAP_HEIGHT_EM * 1000)),
         NameObject("/StemV"): NumberObject(80),
-        NameObject("/FontFile2"): writer._add_object(file_stream),
+        NameObject("/FontFile2"): add_indirect(writer, file_stream),
     })
     codes = [char.encode(STAMP_ENCODING)[0] for char in chars]
     first, last = min(codes), max(codes)
@@ -151,9 +155,9 @@ def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
         NameObject("/LastChar"): NumberObject(last),
         NameObject("/Widths"): ArrayObject([NumberObject(width) for width in widths]),
         NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
-        NameObject("/FontDescriptor"): writer._add_object(descriptor),
+        NameObject("/FontDescriptor"): add_indirect(writer, descriptor),
     })
-    return StampFont(writer._add_object(font_dict), advance_em, embedded=True)
+    return StampFont(add_indirect(writer, font_dict), advance_em, embedded=True)
 
 
 def _base14_font(writer: PdfWriter) -> StampFont:
@@ -163,7 +167,7 @@ def _base14_font(writer: PdfWriter) -> StampFont:
         NameObject("/BaseFont"): NameObject("/Helvetica"),
         NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
     })
-    return StampFont(writer._add_object(font_dict), {}, embedded=False)
+    return StampFont(add_indirect(writer, font_dict), {}, embedded=False)
 
 
 def make_stamp_font(writer: PdfWriter, texts: Iterable[str]) -> StampFont:
@@ -208,7 +212,7 @@ class Stamper:
         self.font = font
         save = DecodedStreamObject()
         save.set_data(b"q\n")
-        self.save_reference = writer._add_object(save)
+        self.save_reference = add_indirect(writer, save)
 
     def stamp(self, page: DictionaryObject, text: str, frame: PageFrame,
               slot_texts: Sequence[tuple[PageSlot, str]] = ()) -> None:
@@ -228,7 +232,7 @@ class Stamper:
         else:
             originals = [contents]
         page[NameObject("/Contents")] = ArrayObject(
-            [self.save_reference, *originals, self.writer._add_object(stream)])
+            [self.save_reference, *originals, add_indirect(self.writer, stream)])
         resources = page.get("/Resources")
         resources = resources.get_object() if resources is not None else None
         if resources is None:

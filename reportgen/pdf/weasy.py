@@ -4,6 +4,50 @@ This is the work done in each worker process of :mod:`reportgen.pdf`. A part is
 rendered on its own, so WeasyPrint cannot resolve links into other parts; they are
 taken out of the part's PDF here and rebuilt over the merged file by
 :mod:`reportgen.pdf.merge`, with every anchor's page and position recorded below.
+
+This is also the only module that relies on WeasyPrint beyond its documented API,
+and only in the small functions of the section "WeasyPrint internals" below. Every
+such use, why we need it, and where it was checked (tests/test_pdf_internals.py has
+one test per item; run it before raising the WeasyPrint bound in pyproject.toml):
+
+1. ``Page._page_box`` (private attribute), in :func:`used_margins_px`: the page's
+   layout box, read for its used right and bottom margins. The page-number stamp is
+   set in the bottom margin, flush with the right one; ``Page`` itself exposes only
+   its width, height and bleed. Checked on WeasyPrint 70.0.
+2. The items of ``Page.links``, in :func:`internal_links`: tuples
+   ``(link_type, target, rectangle, box)`` whose rectangle is ``(x1, y1, x2, y2)``
+   in CSS px from the page's top-left corner (``Page``'s own docstring says
+   ``(x, y, width, height)``, which is not what is stored). Read to rebuild each
+   internal link over the merged file. Checked on WeasyPrint 70.0.
+3. The values of ``Page.anchors``, in :func:`anchor_corners`: tuples
+   ``(x1, y1, x2, y2)`` in CSS px from the top-left corner (the docstring says an
+   ``(x, y)`` point). Read for the page and place of every ``id``. Checked on
+   WeasyPrint 70.0.
+4. The layout box of a link (the fourth item of 2), in :func:`box_tag_and_classes`
+   and :func:`box_color_and_size`: ``box.element`` (the source element, with
+   ``.get``), ``box.element_tag``, ``box.style["color"]`` (a colour with
+   ``.to("srgb").coordinates``) and ``box.style["font_size"]`` (CSS px). A page
+   slot is found by its tag and class, and its number is drawn after the merge in
+   the slot's colour and size. Checked on WeasyPrint 70.0.
+5. Editing ``Page.links``, ``Page.anchors`` and ``Page.bookmarks`` before
+   ``Document.write_pdf`` changes what is written (undocumented: ``write_pdf`` reads
+   these lists, not the layout), in :func:`drop_cross_part_marks`. A part's own
+   internal links, named destinations and outline would point at wrong pages once
+   the parts are merged; :mod:`reportgen.pdf.merge` rebuilds them. Checked on
+   WeasyPrint 70.0.
+6. What ``HTML.__init__`` sets and ``HTML.render`` reads: ``base_url``,
+   ``url_fetcher``, ``media_type``, ``wrapper_element``
+   (``cssselect2.ElementWrapper.from_html_root(tree, content_language=None)``) and
+   ``etree_element``, in :func:`html_from_tree`. A document already parsed by
+   :func:`parse_xml` is handed to WeasyPrint by setting these, so that it is not
+   parsed again. Unlike ``HTML.__init__``, the base URL is not taken from a
+   ``<base>`` element (our templates write none). Checked on WeasyPrint 70.0.
+7. ``HTML.etree_element`` (undocumented attribute), in :func:`parsed_tree`: the
+   tree WeasyPrint parsed (or the one set by 6), searched for bookmark elements
+   (``data-bookmark``). Checked on WeasyPrint 70.0.
+
+:mod:`reportgen.pdf.fetcher` uses only WeasyPrint's documented URL fetcher API (a
+subclass of ``weasyprint.urls.URLFetcher`` overriding ``fetch``).
 """
 
 from __future__ import annotations
@@ -109,37 +153,111 @@ def iter_bookmarks(root_element: Any) -> Iterator[Bookmark]:
             yield Bookmark(anchor_id, " ".join(label.split()), int(level))
 
 
-def _page_slot(target: str, rect_pt: tuple[float, float, float, float],
-               box: Any) -> PageSlot | None:
+# WeasyPrint internals: each use is listed, with its number, in the module docstring.
+
+def used_margins_px(page: Any) -> tuple[float, float]:
+    """The used right and bottom margins of a laid-out page, in CSS px (use 1)."""
+    box = page._page_box  # Page exposes no public accessor for used margins
+    return box.margin_right, box.margin_bottom
+
+
+def internal_links(page: Any) -> Iterator[tuple[str, tuple[float, float, float, float], Any]]:
+    """Yield ``(target, (x1, y1, x2, y2), box)`` for each internal link of a page (use 2).
+
+    The rectangle is in CSS px from the page's top-left corner; ``box`` is the link's
+    layout box (read only through :func:`box_tag_and_classes` and
+    :func:`box_color_and_size`).
+    """
+    for link_type, target, (x1, y1, x2, y2), box in page.links:
+        if link_type == "internal":
+            yield target, (x1, y1, x2, y2), box
+
+
+def anchor_corners(page: Any) -> Iterator[tuple[str, float, float]]:
+    """Yield ``(name, x, y)``, the top-left corner of each anchor of a page in CSS px (use 3)."""
+    for name, (x1, y1, _x2, _y2) in page.anchors.items():
+        yield name, x1, y1
+
+
+def box_tag_and_classes(box: Any) -> tuple[str | None, list[str]]:
+    """The tag of a layout box's source element and its classes (use 4)."""
     element = getattr(box, "element", None)
     classes = (element.get("class") or "").split() if element is not None else []
-    if PAGE_SLOT_CLASS not in classes or getattr(box, "element_tag", None) != "a":
-        return None
+    return getattr(box, "element_tag", None), classes
+
+
+def box_color_and_size(box: Any) -> tuple[tuple[float, float, float], float]:
+    """A box's text colour as sRGB components in 0..1 and its font size in CSS px (use 4)."""
     red, green, blue = (min(max(float(value or 0), 0.0), 1.0)
                         for value in box.style["color"].to("srgb").coordinates)
+    return (red, green, blue), box.style["font_size"]
+
+
+def drop_cross_part_marks(page: Any) -> None:
+    """Leave a page's internal links, anchors and bookmarks out of its PDF (use 5).
+
+    External links and attachments stay.
+    """
+    page.links = [link for link in page.links if link[0] != "internal"]
+    page.anchors = {}
+    page.bookmarks = []
+
+
+class _ParsedHTML(HTML):
+    """A WeasyPrint document from an element tree already parsed (use 6)."""
+
+    def __init__(self, root_element: Any, *, base_url: str, url_fetcher: Any) -> None:
+        self.base_url = base_url
+        self.url_fetcher = url_fetcher
+        self.media_type = "print"
+        self.wrapper_element = cssselect2.ElementWrapper.from_html_root(
+            root_element, content_language=None)
+        self.etree_element = self.wrapper_element.etree_element
+
+
+def html_from_tree(root_element: Any, *, base_url: str, url_fetcher: Any) -> HTML:
+    """A WeasyPrint document from a tree parsed by :func:`parse_xml` (use 6).
+
+    Sets what ``HTML.__init__`` sets after its own parsing; the tests compare its
+    pages with those of ``HTML(string=...)``.
+    """
+    return _ParsedHTML(root_element, base_url=base_url, url_fetcher=url_fetcher)
+
+
+def parsed_tree(source: HTML) -> Any:
+    """The element tree of a WeasyPrint document (use 7)."""
+    return source.etree_element
+
+
+# What this module makes of them.
+
+def _page_slot(target: str, rect_pt: tuple[float, float, float, float],
+               box: Any) -> PageSlot | None:
+    tag, classes = box_tag_and_classes(box)
+    if PAGE_SLOT_CLASS not in classes or tag != "a":
+        return None
+    rgb, font_size_px = box_color_and_size(box)
     return PageSlot(target, rect_pt[0], rect_pt[2], rect_pt[1],
-                    box.style["font_size"] * PT_PER_CSS_PX, (red, green, blue),
-                    PAGE_SLOT_START_CLASS in classes)
+                    font_size_px * PT_PER_CSS_PX, rgb, PAGE_SLOT_START_CLASS in classes)
 
 
 def _page_frame(page: Any) -> PageFrame:
     height_pt = page.height * PT_PER_CSS_PX
     links = []
     slots = []
-    for link_type, target, (x1, y1, x2, y2), link_box in page.links:
-        if link_type == "internal":
-            rect_pt = (x1 * PT_PER_CSS_PX, height_pt - y2 * PT_PER_CSS_PX,
-                       x2 * PT_PER_CSS_PX, height_pt - y1 * PT_PER_CSS_PX)
-            links.append(InternalLink(target, rect_pt))
-            slot = _page_slot(target, rect_pt, link_box)
-            if slot is not None:
-                slots.append(slot)
-    box = page._page_box  # WeasyPrint 70 exposes no public accessor for used margins
+    for target, (x1, y1, x2, y2), link_box in internal_links(page):
+        rect_pt = (x1 * PT_PER_CSS_PX, height_pt - y2 * PT_PER_CSS_PX,
+                   x2 * PT_PER_CSS_PX, height_pt - y1 * PT_PER_CSS_PX)
+        links.append(InternalLink(target, rect_pt))
+        slot = _page_slot(target, rect_pt, link_box)
+        if slot is not None:
+            slots.append(slot)
+    right_margin_px, bottom_margin_px = used_margins_px(page)
     return PageFrame(
         width_pt=page.width * PT_PER_CSS_PX,
         height_pt=height_pt,
-        right_margin_pt=box.margin_right * PT_PER_CSS_PX,
-        bottom_margin_pt=box.margin_bottom * PT_PER_CSS_PX,
+        right_margin_pt=right_margin_px * PT_PER_CSS_PX,
+        bottom_margin_pt=bottom_margin_px * PT_PER_CSS_PX,
         links=tuple(links),
         slots=tuple(slots),
     )
@@ -161,22 +279,6 @@ def parse_xml(html: str) -> Any | None:
         return None
 
 
-class _ParsedHTML(HTML):
-    """A WeasyPrint document from an element tree already parsed (see :func:`parse_xml`).
-
-    Sets what ``HTML.__init__`` sets after its own parsing (WeasyPrint 70; the tests
-    compare its pages with those of the plain route).
-    """
-
-    def __init__(self, root_element: Any, *, base_url: str, url_fetcher: Any) -> None:
-        self.base_url = base_url
-        self.url_fetcher = url_fetcher
-        self.media_type = "print"
-        self.wrapper_element = cssselect2.ElementWrapper.from_html_root(
-            root_element, content_language=None)
-        self.etree_element = self.wrapper_element.etree_element
-
-
 def render_part(html: str, root: Path, *, xml_first: bool = False) -> RenderedPart:
     """Render one complete HTML document to PDF bytes plus its anchors and links.
 
@@ -190,21 +292,19 @@ def render_part(html: str, root: Path, *, xml_first: bool = False) -> RenderedPa
     base_url, url_fetcher = root_url(root), make_url_fetcher(root)
     tree = parse_xml(html) if xml_first else None
     source = (HTML(string=html, base_url=base_url, url_fetcher=url_fetcher) if tree is None
-              else _ParsedHTML(tree, base_url=base_url, url_fetcher=url_fetcher))
+              else html_from_tree(tree, base_url=base_url, url_fetcher=url_fetcher))
     document = source.render()
     frames = []
     anchors: dict[str, Anchor] = {}
     for page_index, page in enumerate(document.pages):
         frames.append(_page_frame(page))
         height_pt = page.height * PT_PER_CSS_PX
-        for name, (x1, y1, _x2, _y2) in page.anchors.items():
+        for name, x1, y1 in anchor_corners(page):
             if name not in anchors:
                 anchors[name] = Anchor(page_index, x1 * PT_PER_CSS_PX,
                                        height_pt - y1 * PT_PER_CSS_PX)
-        page.links = [link for link in page.links if link[0] != "internal"]
-        page.anchors = {}
-        page.bookmarks = []
+        drop_cross_part_marks(page)
     pdf = document.write_pdf()
     return RenderedPart(pdf, tuple(frames), anchors,
-                        tuple(iter_bookmarks(source.etree_element)))
+                        tuple(iter_bookmarks(parsed_tree(source))))
 

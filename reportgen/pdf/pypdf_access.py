@@ -1,0 +1,51 @@
+"""The only place that relies on pypdf beyond its documented API.
+
+:mod:`reportgen.pdf.merge` and :mod:`reportgen.pdf.stamp` build PDF objects that
+pypdf's documented methods do not make for us (link annotations with our own
+rectangles, a subset font, page-number content streams, named destinations in sorted
+order). They reach the writer's object table through the functions below, never
+directly, so that a pypdf release that changes one of these can be fixed here.
+
+Every use, why we need it, and where it was checked (tests/test_pdf_internals.py has
+one test per use; run it before raising the pypdf bound in pyproject.toml):
+
+1. ``PdfWriter._add_object(obj)`` (private), in :func:`add_indirect`. Appends ``obj``
+   to the writer's object table and returns an :class:`~pypdf.generic.IndirectObject`
+   that resolves to it in this writer (an object already in this writer gets its
+   existing reference). pypdf has no public way to add a free-standing object: its
+   public methods add pages, outline items and annotations of its own design only.
+   Used for the link annotations (merge.add_links), the stamp font's file stream,
+   descriptor and font dictionary, the Helvetica fallback (stamp), the shared ``q``
+   stream and each page's stamp stream (stamp.Stamper). Checked on pypdf 7.1.1.
+2. ``PdfWriter.get_named_dest_root()`` (public name, undocumented behaviour), in
+   :func:`named_destination_array`. Returns the live ``/Names`` array of the
+   catalog's ``/Dests`` name tree, creating the tree if missing, so that extending
+   the array adds named destinations. merge.add_named_destinations appends all names
+   in sorted order in one pass (the public ``add_named_destination`` inserts one name
+   at a time by a linear search, and makes a GoTo action per name that we do not
+   want). Checked on pypdf 7.1.1.
+
+Everything else the pdf package does with pypdf uses documented API: ``PdfReader``,
+``PdfWriter.add_page``/``insert_page``/``add_outline_item``/``add_metadata``/
+``compress_identical_objects``/``write``, ``page_mode``, ``indirect_reference`` and
+the objects of :mod:`pypdf.generic`.
+"""
+
+from __future__ import annotations
+
+from pypdf import PdfWriter
+from pypdf.generic import ArrayObject, IndirectObject, PdfObject
+
+
+def add_indirect(writer: PdfWriter, obj: PdfObject) -> IndirectObject:
+    """Add ``obj`` to ``writer`` as an indirect object and return its reference (use 1)."""
+    return writer._add_object(obj)
+
+
+def named_destination_array(writer: PdfWriter) -> ArrayObject:
+    """The writer's array of named destinations (name, destination, ...), live (use 2).
+
+    Items appended to it are written as named destinations; the names must be kept
+    in sorted order (ISO 32000-1, 7.9.6: the keys of a name tree are sorted).
+    """
+    return writer.get_named_dest_root()
