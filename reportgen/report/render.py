@@ -91,7 +91,7 @@ class ReportDocument:
     _html: Callable[[], str] = field(repr=False, compare=False)
     bodies: Sequence[str]  # runs of link sheets, then the appendix as the last part
     _front: Callable[[Mapping[str, int] | None, int | None], str] = field(repr=False, compare=False)
-    # only our own templates are known to write well-formed XML (see pdf_layout.parse_xml)
+    # only our own templates are known to write well-formed XML (see reportgen.pdf.weasy.parse_xml)
     own_templates: bool = True
 
     @functools.cached_property
