@@ -6,8 +6,6 @@ import io
 import json
 import os
 
-import pytest
-
 from reportgen.export import atomic, results_csv, summary
 from reportgen.engine.judge import judge_project
 from tests.builders import make_link, make_project
