@@ -187,7 +187,7 @@ def real_parts(links: int, work_dir: Path) -> tuple[Any, list[str], Path, str]:
     project = pipeline.validate_only(project_dir)
     outcome = pipeline.compute(project)
     document = render.build_report(project, outcome.judgement, now=CREATED, version="bench",
-                                   extras=outcome.extras)
+                                   applications=outcome.applications)
     return document.front, list(document.bodies), project.root, project.info.title
 
 

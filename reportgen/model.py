@@ -109,12 +109,21 @@ DEFAULT_ATTENUATORS_DB: Final[tuple[float, ...]] = (1, 2, 3, 5, 7, 10, 15, 20)
 
 
 @dataclass(frozen=True)
+class Logo:
+    """The contractor's logo, read and checked by the inputs stage (kind, size, content)."""
+
+    path: Path  # resolved absolute path inside the project folder
+    mime: str  # "image/svg+xml", "image/png" or "image/jpeg"
+    data: bytes = field(repr=False)
+
+
+@dataclass(frozen=True)
 class Contractor:
     name: str
     address: str | None = None
     phone: str | None = None
     email: str | None = None
-    logo: Path | None = None  # resolved absolute path inside the project folder
+    logo: Logo | None = None
 
 
 @dataclass(frozen=True)
@@ -200,7 +209,7 @@ class Link:
 #   source_file (str, relative path), source_line (int), link_id (str), strand (int),
 #   wavelength_nm (int), direction (str: "ab"/"ba"), loss_db (float),
 #   tested_at (pandas Timestamp, naive; tz-aware inputs converted to UTC),
-#   tested_at_text (str, as written), instrument (str, ";"-joined ids or ""),
+#   tested_at_text (str, as written), instrument (tuple of instrument ids, () when none),
 #   technician (str or ""), measured_length_m (float or NaN), note (str or "")
 RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "source_file",

@@ -21,7 +21,7 @@ from reportgen.export.atomic import write_outputs
 from reportgen.export.results_csv import results_csv_bytes
 from reportgen.export.summary import json_bytes, summary_dict
 from reportgen.errors import InputError, InputProblem, ReportgenError
-from reportgen.engine.applications import assess_project
+from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
 from reportgen.report.messages import PAGE_LABEL
 from reportgen.model import Project
@@ -41,7 +41,7 @@ class Outcome:
 
     project: Project
     judgement: Judgement
-    extras: dict[str, Any]  # per-issue additions: "applications", "power"
+    applications: ProjectApplications  # applications and transceiver power budgets per link
 
 
 @dataclass(frozen=True)
@@ -67,8 +67,7 @@ def compute(project: Project) -> Outcome:
     log.info("Step 3: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
     log.info("Step 3: assessing applications and transceiver power budgets")
-    extras: dict[str, Any] = {"applications": assess_project(project, judgement)}
-    return Outcome(project, judgement, extras)
+    return Outcome(project, judgement, assess_project(project, judgement))
 
 
 def default_out_dir(project_dir: Path) -> Path:
@@ -135,9 +134,9 @@ def build(
 
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
     """summary.json: the contract's keys plus applications and power per link."""
-    assessed = outcome.extras["applications"]
     project = outcome.project
-    link_extras = {link.link_id: assessed.link_json(link.link_id) for link in project.links}
+    link_extras = {link.link_id: outcome.applications.link_json(link.link_id)
+                   for link in project.links}
     meta = {
         "project": {"title": project.info.title, "job_number": project.info.job_number},
         "limits": project.limits.id,
@@ -161,7 +160,7 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
 
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,
-                                   version=version, extras=outcome.extras)
+                                   version=version, applications=outcome.applications)
 
     def meanwhile() -> dict[str, bytes]:
         made = alongside() if alongside is not None else {}

@@ -60,3 +60,40 @@ def m_to_ft(length_m: float) -> float:
 def m_to_km(length_m: float) -> float:
     """Length from metres to kilometres."""
     return length_m / M_PER_KM
+
+
+# ------------------------------------------------------------ rounding of what we write
+# One policy for every output (report, results.csv, summary.json):
+# - dB and dBm values (losses, limits, margins, powers) to 0.01 dB, the resolution of the
+#   meters' results: in the report and in results.csv as text with exactly two decimals
+#   (``1.30``), in summary.json as numbers rounded to the same two decimals;
+# - lengths in metres in results.csv and summary.json to 0.01 m, as numbers (the report
+#   prints lengths in the project's unit, m or ft, whole or with one decimal).
+# Rounding is correct rounding of the binary value (Python's format), and a value that
+# rounds to zero is written without a minus sign.
+DB_DECIMALS: Final = 2
+LENGTH_DECIMALS: Final = 2
+
+
+def format_db(value: float) -> str:
+    """A dB or dBm value as text with exactly two decimals: ``1.30``, ``-0.50``, never ``-0.00``."""
+    if not math.isfinite(value):
+        raise ValueError(f"a dB value to write must be a finite number, got {value}")
+    text = f"{value:.{DB_DECIMALS}f}"
+    return text[1:] if text.startswith("-") and float(text) == 0 else text
+
+
+def round_db(value: float | None) -> float | None:
+    """The number :func:`format_db` writes, for summary.json; None for None or NaN."""
+    if value is None or math.isnan(value):
+        return None
+    return float(format_db(value))
+
+
+def round_length_m(value: float | None) -> float | None:
+    """A length in metres rounded to 0.01 m, for results.csv and summary.json; NaN stays NaN."""
+    if value is None:
+        return None
+    if math.isnan(value):
+        return value
+    return float(f"{value:.{LENGTH_DECIMALS}f}") + 0.0

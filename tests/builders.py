@@ -56,7 +56,7 @@ def make_results(rows: list[dict]) -> pd.DataFrame:
             "loss_db": float(row["loss_db"]),
             "tested_at": pd.Timestamp(tested),
             "tested_at_text": tested,
-            "instrument": row.get("instrument", ""),
+            "instrument": tuple(row.get("instrument", ())),  # instrument ids
             "technician": row.get("technician", ""),
             "measured_length_m": row.get("measured_length_m", float("nan")),
             "note": row.get("note", ""),

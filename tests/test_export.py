@@ -6,8 +6,6 @@ import io
 import json
 import os
 
-import pytest
-
 from reportgen.export import atomic, results_csv, summary
 from reportgen.engine.judge import judge_project
 from tests.builders import make_link, make_project
@@ -34,9 +32,29 @@ def test_results_csv_has_contract_columns_and_every_row():
         assert column in rows[0]
     assert [r["verdict"] for r in rows] == ["pass", "superseded", "pass", "invalid"]
     # hand-worked: 500 m OM4 at 850 nm, test set α = 2.0, a_conn = 0.5, one-cord: 2.0 dB
-    assert float(rows[0]["limit_db"]) == pytest.approx(2.0)
-    assert float(rows[0]["margin_db"]) == pytest.approx(1.0)
+    # dB values as the report prints them: exactly two decimals
+    assert (rows[0]["loss_db"], rows[0]["limit_db"], rows[0]["margin_db"]) == ("1.00", "2.00", "1.00")
     assert rows[3]["margin_db"] == ""  # an invalid result has no margin
+
+
+def test_results_csv_joins_flags_and_instruments_in_the_cell():
+    rows = [dict(wavelength_nm=850, direction="ab", loss_db=1.0, instrument=["SRC-1", "PM-1"]),
+            dict(wavelength_nm=850, direction="ab", loss_db=1.25, tested_at="2030-01-16")]
+    judgement = judge_project(make_project([make_link()], rows))
+    written = list(csv.DictReader(io.StringIO(
+        results_csv.results_csv_bytes(judgement.results).decode())))
+    assert [(r["instrument"], r["flags"]) for r in written] == [("SRC-1;PM-1", ""), ("", "retest")]
+    assert written[1]["margin_db"] == "0.75"  # hand-worked: 2.00 − 1.25
+
+
+def test_results_csv_rounds_lengths_to_centimetres():
+    # 100 ft = 30.48 m exactly (international foot, 0.3048 m; 1959 agreement)
+    rows = [dict(wavelength_nm=850, direction="ab", loss_db=1.0, measured_length_m=100 * 0.3048),
+            dict(wavelength_nm=850, direction="ba", loss_db=1.0, measured_length_m=12.3456)]
+    judgement = judge_project(make_project([make_link()], rows))
+    written = list(csv.DictReader(io.StringIO(
+        results_csv.results_csv_bytes(judgement.results).decode())))
+    assert [r["measured_length_m"] for r in written] == ["30.48", "12.35"]
 
 
 def test_results_csv_neutralises_formula_text_but_keeps_numbers():
@@ -45,7 +63,7 @@ def test_results_csv_neutralises_formula_text_but_keeps_numbers():
     assert rows[0]["note"].startswith("'=")
     assert rows[0]["link_id"] == "'-L1"
     assert rows[2]["technician"] == "'@someone"
-    assert rows[3]["loss_db"] == "-0.5"  # numbers stay numbers
+    assert rows[3]["loss_db"] == "-0.50"  # numbers get no apostrophe
 
 
 def test_summary_shape_follows_the_contract():

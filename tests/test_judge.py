@@ -15,7 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from reportgen.engine.judge import judge_project
-from reportgen.model import Directions, Instrument, InstrumentKind, LinkVerdict
+from reportgen.model import Directions, Instrument, InstrumentKind, LinkVerdict, ResultFlag
 from tests.builders import make_link, make_project
 
 FULL = [dict(wavelength_nm=w, direction=d, loss_db=1.0) for w in (850, 1300) for d in ("ab", "ba")]
@@ -51,8 +51,7 @@ def test_within_uncertainty_flag_on_both_sides_of_the_limit():
             dict(wavelength_nm=1300, direction="ba", loss_db=1.0)]
     judgement = judge_project(make_project([make_link()], rows, uncertainty_db=0.2))
     flags = list(judgement.results["flags"])
-    assert "within-uncertainty" in flags[0] and "within-uncertainty" in flags[1]
-    assert "within-uncertainty" not in flags[2]
+    assert flags == [(ResultFlag.WITHIN_UNCERTAINTY,), (ResultFlag.WITHIN_UNCERTAINTY,), (), ()]
     assert list(judgement.results["verdict"]) == ["pass", "fail", "pass", "pass"]
 
 
@@ -60,7 +59,7 @@ def test_negative_loss_beyond_uncertainty_is_invalid_and_counts_as_missing():
     rows = FULL[1:] + [dict(wavelength_nm=850, direction="ab", loss_db=-0.35)]
     judgement = judge_project(make_project([make_link()], rows, uncertainty_db=0.2))
     assert judgement.results["verdict"].iloc[-1] == "invalid"
-    assert "negative-loss" in judgement.results["flags"].iloc[-1]
+    assert judgement.results["flags"].iloc[-1] == (ResultFlag.NEGATIVE_LOSS,)
     outcome = judgement.links[0]
     assert outcome.verdict is LinkVerdict.INCOMPLETE
     assert [(m.wavelength_nm, m.direction, m.reason) for m in outcome.missing] == [
@@ -80,8 +79,27 @@ def test_latest_retest_is_judged_and_earlier_is_superseded():
     ]
     judgement = judge_project(make_project([make_link()], rows))
     assert list(judgement.results["verdict"].iloc[-2:]) == ["superseded", "pass"]
-    assert "retest" in judgement.results["flags"].iloc[-1]
+    assert judgement.results["flags"].iloc[-1] == (ResultFlag.RETEST,)
     assert judgement.links[0].verdict is LinkVerdict.PASS
+
+
+def test_flags_are_a_tuple_per_row_in_rule_order():
+    # One row with three flags (docs/project-format.md §6.7): a retest (a second row of the
+    # same key), within the 0.2 dB uncertainty (hand-worked: limit 2.0 dB for 500 m OM4 at
+    # 850 nm with the test set, loss 1.9 dB, margin 0.1 dB) and measured with a power meter
+    # whose calibration was due the day before.
+    meter = Instrument("PM-1", InstrumentKind.POWER_METER, calibration_due=date(2030, 1, 15))
+    rows = FULL[1:] + [
+        dict(wavelength_nm=850, direction="ab", loss_db=1.2, tested_at="2030-01-15"),
+        dict(wavelength_nm=850, direction="ab", loss_db=1.9, tested_at="2030-01-16",
+             instrument=["PM-1"]),
+    ]
+    judgement = judge_project(make_project([make_link()], rows, uncertainty_db=0.2,
+                                           instruments=[meter]))
+    assert judgement.results["flags"].iloc[-1] == (
+        ResultFlag.WITHIN_UNCERTAINTY, ResultFlag.RETEST, ResultFlag.CALIBRATION_OVERDUE)
+    assert judgement.results["flags"].iloc[-2] == ()  # the superseded row
+    assert judgement.links[0].within_uncertainty == 1
 
 
 def test_retest_order_is_by_time_not_by_file_order():
@@ -135,12 +153,12 @@ def test_link_without_results_is_incomplete_with_no_worst_margin():
 
 def test_calibration_overdue_flag():
     meter = Instrument("PM-1", InstrumentKind.POWER_METER, calibration_due=date(2030, 1, 15))
-    rows = [dict(wavelength_nm=850, loss_db=1.0, tested_at="2030-01-15", instrument="PM-1"),
+    rows = [dict(wavelength_nm=850, loss_db=1.0, tested_at="2030-01-15", instrument=["PM-1"]),
             dict(wavelength_nm=850, direction="ba", loss_db=1.0, tested_at="2030-01-16T08:00",
-                 instrument="SRC;PM-1")]
+                 instrument=["SRC", "PM-1"])]
     judgement = judge_project(make_project([make_link()], rows, instruments=[meter]))
-    assert "calibration-overdue" not in judgement.results["flags"].iloc[0]
-    assert "calibration-overdue" in judgement.results["flags"].iloc[1]
+    assert judgement.results["flags"].iloc[0] == ()
+    assert judgement.results["flags"].iloc[1] == (ResultFlag.CALIBRATION_OVERDUE,)
 
 
 def test_totals_count_link_verdicts():
@@ -220,16 +238,16 @@ def test_calibration_overdue_when_any_named_instrument_is_late():
     early = Instrument("SRC-1", InstrumentKind.LIGHT_SOURCE, calibration_due=date(2030, 1, 10))
     late = Instrument("PM-1", InstrumentKind.POWER_METER, calibration_due=date(2030, 1, 20))
     undated = Instrument("PM-2", InstrumentKind.POWER_METER)
-    rows = [dict(wavelength_nm=850, loss_db=1.0, tested_at="2030-01-12", instrument="PM-1"),
+    rows = [dict(wavelength_nm=850, loss_db=1.0, tested_at="2030-01-12", instrument=["PM-1"]),
             dict(wavelength_nm=850, direction="ba", loss_db=1.0, tested_at="2030-01-12",
-                 instrument=" PM-1 ; SRC-1 "),
+                 instrument=["PM-1", "SRC-1"]),
             dict(wavelength_nm=1300, loss_db=1.0, tested_at="2030-01-25",
-                 instrument="PM-2;OTHER"),
+                 instrument=["PM-2", "OTHER"]),
             dict(wavelength_nm=1300, direction="ba", loss_db=1.0, tested_at="2030-01-10T23:00",
-                 instrument="SRC-1")]
+                 instrument=["SRC-1"])]
     judgement = judge_project(make_project([make_link()], rows,
                                            instruments=[early, late, undated]))
-    overdue = ["calibration-overdue" in flags for flags in judgement.results["flags"]]
+    overdue = [ResultFlag.CALIBRATION_OVERDUE in flags for flags in judgement.results["flags"]]
     assert overdue == [False, True, False, False]
 
 

@@ -14,9 +14,9 @@ from reportgen.report import viewmodel
 from reportgen.engine.applications import assess_project
 from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
-from reportgen.report.render import build_report
+from reportgen.report.render import build_report, split_groups
 from reportgen.inputs.project import load_project
-from reportgen.report.viewmodel import MatrixGroup, MatrixRow, link_anchors, split_groups
+from reportgen.report.viewmodel import MatrixGroup, MatrixRow, link_anchors
 from test_render import well_formed
 
 NOW = datetime(2030, 2, 1, 12, 0)
@@ -55,7 +55,7 @@ def hand_project():
 def render(project):
     judgement = judge_project(project)
     return build_report(project, judgement, now=NOW, version="9.9-test",
-                        extras={"applications": assess_project(project, judgement)})
+                        applications=assess_project(project, judgement))
 
 
 def sheet(html: str, link_id: str) -> str:

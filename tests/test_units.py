@@ -7,6 +7,7 @@ two dBm quantities must be converted ``.to("dB")`` (pint documentation).
 from __future__ import annotations
 
 import math
+from decimal import ROUND_HALF_EVEN, Decimal
 
 import pytest
 from hypothesis import given, settings
@@ -16,9 +17,12 @@ from pint import UnitRegistry
 from reportgen.units import (
     db_to_ratio,
     dbm_to_mw,
+    format_db,
     mw_to_dbm,
     ratio_to_db,
     received_power_dbm,
+    round_db,
+    round_length_m,
     sum_losses_db,
 )
 
@@ -101,3 +105,38 @@ def test_non_positive_power_is_refused():
         mw_to_dbm(0.0)
     with pytest.raises(ValueError, match="positive"):
         ratio_to_db(-1.0)
+
+
+# ------------------------------------------------------------ the rounding of outputs
+
+
+def _decimal_reference(value: float) -> str:
+    """Python's decimal module (an independent reference): the exact binary value rounded
+    to 0.01, ties to even, without a minus sign on zero."""
+    text = str(Decimal(value).quantize(Decimal("0.01"), rounding=ROUND_HALF_EVEN))
+    return "0.00" if text == "-0.00" else text
+
+
+@settings(max_examples=300)
+@given(st.floats(min_value=-200, max_value=200, allow_nan=False))
+def test_format_db_rounds_as_the_decimal_module(value):
+    assert format_db(value) == _decimal_reference(value)
+    assert round_db(value) == float(_decimal_reference(value))
+
+
+def test_format_db_writes_exactly_two_decimals():
+    # the examples of the rounding policy (docs/project-format.md §10.1)
+    assert format_db(1.3) == "1.30"
+    assert format_db(-0.5) == "-0.50"
+    assert format_db(-0.004) == "0.00"  # no negative zero
+    assert format_db(2.675) == "2.67"  # the binary value of 2.675 is below 2.675 (Python docs, round())
+    assert round_db(None) is None and round_db(float("nan")) is None
+    with pytest.raises(ValueError):
+        format_db(float("inf"))
+
+
+def test_round_length_m_keeps_centimetres():
+    # 100 ft = 30.48 m exactly (international foot, 0.3048 m; 1959 agreement)
+    assert round_length_m(100 * 0.3048) == 30.48
+    assert round_length_m(833.0) == 833.0
+    assert math.isnan(round_length_m(float("nan"))) and round_length_m(None) is None

@@ -418,14 +418,14 @@ def test_results_frame_has_the_model_columns_and_dtypes(make_project):
     assert {name: str(results[name].dtype) for name in results.columns} == {
         "source_file": "str", "source_line": "int64", "link_id": "str", "strand": "int64",
         "wavelength_nm": "int64", "direction": "str", "loss_db": "float64",
-        "tested_at": "datetime64[ns]", "tested_at_text": "str", "instrument": "str",
+        "tested_at": "datetime64[ns]", "tested_at_text": "str", "instrument": "object",
         "technician": "str", "measured_length_m": "float64", "note": "str",
     }
     row = results.iloc[0]
     assert (row.source_file, row.source_line, row.link_id, row.strand, row.wavelength_nm) == (
         "results/day1.csv", 2, "L1", 1, 850)
     assert (row.direction, row.loss_db, row.instrument, row.technician, row.note) == (
-        "ab", 1.2, "SRC-1;PM-1", "", "")
+        "ab", 1.2, ("SRC-1", "PM-1"), "", "")
     assert row.tested_at == datetime(2030, 1, 15, 9, 0) and row.tested_at_text == "2030-01-15T09:00"
     assert math.isnan(row.measured_length_m)
 

@@ -37,7 +37,7 @@ def demo_document() -> ReportDocument:
     project = pipeline.validate_only(DEMO)
     outcome = pipeline.compute(project)
     return build_report(project, outcome.judgement, now=NOW, version="9.9-test",
-                        extras=outcome.extras)
+                        applications=outcome.applications)
 
 
 def hostile_document() -> ReportDocument:

@@ -47,8 +47,8 @@ from reportgen.engine.power import (
     budget_limits_db,
     judged_loss_table,
     loss_ranges_from_table,
-    round_for_json,
 )
+from reportgen.units import round_db, round_length_m
 
 # Reason texts, one place to translate. Fields: application, fiber_type, wavelength_nm,
 # value, limit (numbers pre-formatted).
@@ -109,9 +109,9 @@ class ApplicationAssessment:
         return {
             "id": self.id,
             "verdict": self.verdict.value,
-            "max_loss_db": round_for_json(self.max_loss_db),
-            "worst_loss_db": round_for_json(self.worst_loss_db),
-            "max_length_m": round_for_json(self.max_length_m),
+            "max_loss_db": round_db(self.max_loss_db),
+            "worst_loss_db": round_db(self.worst_loss_db),
+            "max_length_m": round_length_m(self.max_length_m),
             "reasons": [str(reason) for reason in self.reasons],
         }
 

@@ -71,7 +71,8 @@ class LinkOutcome:
 class Judgement:
     """Everything the engine concluded about a project."""
 
-    results: pd.DataFrame  # project.results + limit_db, margin_db, verdict, flags, judged
+    # project.results + limit_db, margin_db, verdict, flags (tuple of ResultFlag), judged
+    results: pd.DataFrame
     budgets: pd.DataFrame  # budget.budget_frame(...)
     links: tuple[LinkOutcome, ...]
 
@@ -173,7 +174,7 @@ def judge_results(
             False if required is None else ~np.isin(frame_pairs, required_pairs),
             index=frame.index),
     }
-    frame["flags"] = _join_flags(frame.index, flags)
+    frame["flags"] = _flag_tuples(frame.index, flags)
     return frame
 
 
@@ -235,31 +236,39 @@ def _latest_of_groups(groups: np.ndarray, tested_at: pd.Series) -> tuple[np.ndar
     return latest, np.where(has_group, sizes[np.maximum(groups, 0)], 0)
 
 
-def _join_flags(index: pd.Index, flags: Mapping[ResultFlag, pd.Series]) -> pd.Series:
-    joined = np.full(len(index), "", dtype=object)
-    for flag, mask in flags.items():
+def _flag_tuples(index: pd.Index, flags: Mapping[ResultFlag, pd.Series]) -> pd.Series:
+    """Each row's flags as a tuple of :class:`ResultFlag`, in the order of ``flags``.
+
+    The masks are packed into one bit code per row; the tuple is built once per
+    distinct code (a project has few), not per row.
+    """
+    order = tuple(flags)
+    codes = np.zeros(len(index), dtype=np.int64)
+    for bit, mask in enumerate(flags.values()):
         chosen = mask.fillna(False).astype(bool).to_numpy()
-        if chosen.any():
-            before = joined[chosen]
-            joined[chosen] = np.where(before == "", flag.value, before + f";{flag.value}")
-    return pd.Series(joined, index=index, dtype=object)
+        codes |= chosen.astype(np.int64) << bit
+    positions, distinct = pd.factorize(codes)
+    tuples = np.empty(len(distinct), dtype=object)
+    for at, code in enumerate(distinct.tolist()):
+        tuples[at] = tuple(flag for bit, flag in enumerate(order) if code >> bit & 1)
+    return pd.Series(tuples[positions], index=index, dtype=object)
 
 
 def _calibration_overdue(frame: pd.DataFrame, instruments: Sequence[Instrument]) -> pd.Series:
     """True where an instrument named on the row was used after its calibration due date.
 
     A row is late when its test day is after the earliest due date among the instruments
-    it names, worked out once per distinct ``instrument`` text (a project has few).
+    it names, worked out once per distinct ``instrument`` tuple (a project has few).
     """
     due = {i.id: pd.Timestamp(i.calibration_due) for i in instruments
            if i.calibration_due is not None}
     overdue = pd.Series(False, index=frame.index)
     if not due or frame.empty:
         return overdue
-    codes, texts = pd.factorize(frame["instrument"].fillna("").astype(str))
+    codes, named = pd.factorize(frame["instrument"])
     earliest = []
-    for text in texts:
-        dates = [due[name.strip()] for name in str(text).split(";") if name.strip() in due]
+    for ids in named:
+        dates = [due[name] for name in ids if name in due]
         earliest.append(min(dates) if dates else pd.NaT)
     earliest_due = pd.Series(pd.to_datetime(pd.Series(earliest, dtype=object)).to_numpy()[codes],
                              index=frame.index)
@@ -323,10 +332,10 @@ def _link_stats(
     count = len(link_ids)
     margins = judged["margin_db"].to_numpy(dtype=float)[known]
     failed = (judged["verdict"] == ResultVerdict.FAIL.value).to_numpy(dtype=bool)[known]
-    flag_codes, flag_texts = pd.factorize(judged["flags"])  # few distinct texts
-    within_text = np.array([ResultFlag.WITHIN_UNCERTAINTY.value in str(text)
-                            for text in flag_texts] + [False])
-    within = within_text[flag_codes][known]  # code -1 (no flags) takes the last: False
+    flag_codes, flag_tuples = pd.factorize(judged["flags"])  # few distinct tuples
+    within_tuple = np.array([ResultFlag.WITHIN_UNCERTAINTY in flags
+                             for flags in flag_tuples] + [False], dtype=bool)
+    within = within_tuple[flag_codes][known]
     worst = np.full(count, np.nan)
     np.fmin.at(worst, links, margins)
     return (dict(zip(link_ids.tolist(), range(count))), worst.tolist(),

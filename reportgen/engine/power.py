@@ -36,12 +36,10 @@ from typing import Any, Final
 import pandas as pd
 
 from reportgen.model import Link, Transceiver
-from reportgen.units import received_power_dbm
+from reportgen.units import received_power_dbm, round_db
 
 # Comparisons allow for binary floating point (same tolerance as the judge).
 TOLERANCE_DB: Final = 1e-9
-# Decimals kept in summary.json values (dB and dBm): removes float noise, keeps 0.001 dB.
-JSON_DECIMALS: Final = 3
 
 
 class PowerVerdict(StrEnum):
@@ -103,17 +101,13 @@ class PowerBudget:
             "transceiver": self.transceiver,
             "basis": self.basis.value,
             "wavelength_nm": self.wavelength_nm,
-            "rx_min_dbm": round_for_json(self.rx_min_dbm),
-            "rx_max_dbm": round_for_json(self.rx_max_dbm),
-            "low_margin_db": round_for_json(self.low_margin_db),
-            "high_margin_db": round_for_json(self.high_margin_db),
-            "attenuator_db": round_for_json(self.attenuator_db),
+            "rx_min_dbm": round_db(self.rx_min_dbm),
+            "rx_max_dbm": round_db(self.rx_max_dbm),
+            "low_margin_db": round_db(self.low_margin_db),
+            "high_margin_db": round_db(self.high_margin_db),
+            "attenuator_db": round_db(self.attenuator_db),
             "verdict": self.verdict.value,
         }
-
-
-def round_for_json(value: float | None) -> float | None:
-    return None if value is None else round(float(value), JSON_DECIMALS) + 0.0  # no -0.0
 
 
 def judged_loss_table(results: pd.DataFrame) -> pd.DataFrame:

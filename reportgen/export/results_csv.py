@@ -7,10 +7,13 @@ from typing import Final
 
 import pandas as pd
 
-# Computed dB values are written with the report's resolution (0.01 dB, the resolution
-# of the meters' results), rounded the same way, so every number in the report
-# appears identically here.
-DECIMALS: Final = 2
+from reportgen.units import format_db, round_length_m
+
+# dB values (loss, limit, margin) are written as the report prints them: text with
+# exactly two decimals (reportgen.units.format_db); the measured length in metres is
+# a number rounded to 0.01 m (units.round_length_m). Flags and instrument ids, lists
+# in the judged frame, are joined with ";" only here, in the cell.
+LIST_SEPARATOR: Final = ";"
 
 RESULTS_COLUMNS: Final = (
     "link_id", "strand", "wavelength_nm", "direction", "loss_db", "tested_at", "limit_db",
@@ -35,15 +38,15 @@ def results_csv_bytes(results: pd.DataFrame) -> bytes:
         "strand": results["strand"],
         "wavelength_nm": results["wavelength_nm"],
         "direction": results["direction"],
-        "loss_db": results["loss_db"],
+        "loss_db": results["loss_db"].map(_db_text),
         "tested_at": results["tested_at_text"],
-        "limit_db": results["limit_db"].map(_rounded),
-        "margin_db": results["margin_db"].map(_rounded),
+        "limit_db": results["limit_db"].map(_db_text),
+        "margin_db": results["margin_db"].map(_db_text),
         "verdict": results["verdict"],
-        "flags": results["flags"],
+        "flags": results["flags"].map(LIST_SEPARATOR.join),
         "technician": results["technician"],
-        "instrument": results["instrument"],
-        "measured_length_m": results["measured_length_m"].round(3),
+        "instrument": results["instrument"].map(LIST_SEPARATOR.join),
+        "measured_length_m": results["measured_length_m"].map(round_length_m),
         "note": results["note"],
         "source_file": results["source_file"],
         "source_line": results["source_line"],
@@ -55,17 +58,6 @@ def results_csv_bytes(results: pd.DataFrame) -> bytes:
     return buffer.getvalue().encode("utf-8")
 
 
-def _rounded(value: float) -> float:
-    """Round like the report's number format (correctly rounded, no negative zero)."""
-    if math.isnan(value):
-        return value
-    rounded = float(f"{value:.{DECIMALS}f}")
-    return rounded + 0.0 if rounded == 0 else rounded
-
-
-def _number(value: float | None) -> float | None:
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return None
-    return _rounded(float(value))
-
-
+def _db_text(value: float) -> str:
+    """A dB value as the report prints it; empty where there is none (NaN)."""
+    return "" if math.isnan(value) else format_db(value)

@@ -6,8 +6,8 @@ from collections.abc import Mapping
 from typing import Any, Final
 
 from reportgen.engine.judge import Judgement
-from reportgen.export.results_csv import _number
 from reportgen.model import Project
+from reportgen.units import round_db
 
 SUMMARY_FORMAT: Final = 1
 
@@ -21,7 +21,7 @@ def summary_dict(project: Project, judgement: Judgement,
         entry: dict[str, Any] = {
             "link_id": outcome.link_id,
             "verdict": outcome.verdict.value,
-            "worst_margin_db": _number(outcome.worst_margin_db),
+            "worst_margin_db": round_db(outcome.worst_margin_db),
             "missing": [
                 {"strand": m.strand, "wavelength_nm": m.wavelength_nm,
                  "direction": m.direction, "reason": m.reason}

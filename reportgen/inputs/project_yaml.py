@@ -29,6 +29,7 @@ from reportgen.model import (
     Instrument,
     LengthUnit,
     LimitSet,
+    Logo,
     Paper,
     ProjectInfo,
     ReferenceMethod,
@@ -39,7 +40,8 @@ from reportgen.model import (
 
 FILE: Final = "project.yaml"
 MAX_LOGO_BYTES: Final = 2 * 2**20
-LOGO_KINDS: Final = (".svg", ".png", ".jpg", ".jpeg")
+LOGO_KINDS: Final = {".svg": "image/svg+xml", ".png": "image/png", ".jpg": "image/jpeg",
+                     ".jpeg": "image/jpeg"}  # accepted file endings and their media types
 
 KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "project": ("title", "site", "customer", "job_number", "contractor"),
@@ -112,7 +114,8 @@ def _info(check: Checker, data: Mapping[str, Any]) -> ProjectInfo | None:
     return ProjectInfo(title=title, contractor=Contractor(name=name, logo=logo, **details), **texts)
 
 
-def _logo(check: Checker, value: Any) -> Path | None:
+def _logo(check: Checker, value: Any) -> Logo | None:
+    """The logo file, checked and read whole (the report embeds it; it reads no file)."""
     if value is None:
         return None
     path = "project.contractor.logo"
@@ -130,8 +133,8 @@ def _logo(check: Checker, value: Any) -> Path | None:
         check.problem(path, f"an image of at most {size_in_mb(MAX_LOGO_BYTES)} MB; "
                             f"this one is {size_in_mb(size)} MB", value)
         return None
-    with resolved.open("rb") as handle:
-        head = handle.read(4096)
+    data = resolved.read_bytes()
+    head = data[:4096]
     suffix = resolved.suffix.lower()
     looks_right = (head.startswith(b"\x89PNG\r\n\x1a\n") if suffix == ".png"
                    else head.startswith(b"\xff\xd8\xff") if suffix in (".jpg", ".jpeg")
@@ -139,7 +142,7 @@ def _logo(check: Checker, value: Any) -> Path | None:
     if not looks_right:
         check.problem(path, f"a file whose content is a {suffix[1:].upper()} image", value)
         return None
-    return resolved
+    return Logo(path=resolved, mime=LOGO_KINDS[suffix], data=data)
 
 
 def _testing(check: Checker, data: Mapping[str, Any]):

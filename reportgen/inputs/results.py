@@ -181,7 +181,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
             "e.g. 2030-01-15 or 2030-01-15T14:05", tested_text)
 
     # instrument
-    instrument_text, instrument_bad, unknown_ids = _instrument_ids(column["instrument"], context.instruments)
+    instrument_ids, instrument_bad, unknown_ids = _instrument_ids(column["instrument"], context.instruments)
     known = ", ".join(instrument.id for instrument in context.instruments or ()) or "none are listed"
     out.add(instrument_bad, "instrument",
             f"ids of instruments listed in project.yaml ({known}), separated by ';'", unknown_ids)
@@ -202,7 +202,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         "loss_db": losses.astype(np.float64),
         "tested_at": tested_at,
         "tested_at_text": pd.Series(tested_text, dtype="str"),
-        "instrument": pd.Series(instrument_text, dtype="str"),
+        "instrument": pd.Series(instrument_ids, dtype=object),
         "technician": pd.Series(column["technician"], dtype="str"),
         "measured_length_m": measured_m,
         "note": pd.Series(column["note"], dtype="str"),
@@ -217,7 +217,7 @@ def empty_results() -> pd.DataFrame:
         "source_file": text, "source_line": np.zeros(0, np.int64), "link_id": text,
         "strand": np.zeros(0, np.int64), "wavelength_nm": np.zeros(0, np.int64), "direction": text,
         "loss_db": np.zeros(0, np.float64), "tested_at": np.zeros(0, "datetime64[ns]"),
-        "tested_at_text": text, "instrument": text, "technician": text,
+        "tested_at_text": text, "instrument": pd.Series([], dtype=object), "technician": text,
         "measured_length_m": np.zeros(0, np.float64), "note": text,
     }, columns=list(RESULT_COLUMNS))
 
@@ -254,21 +254,21 @@ def _timestamps(texts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def _instrument_ids(texts: np.ndarray, instruments: tuple[Instrument, ...] | None
                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The cells normalised (ids ';'-joined), the mask of cells naming unknown ids, and those ids."""
+    """Each cell's instrument ids as a tuple (split at ';', blanks dropped), the mask of
+    cells naming unknown ids, and those ids as written for the message."""
     codes, uniques = pd.factorize(texts)
     known = None if instruments is None else {instrument.id for instrument in instruments}
-    joined, unknown = [], []
-    for text in uniques:
-        parts = [part.strip() for part in text.split(";") if part.strip()]
-        joined.append(";".join(parts))
-        missing = [part for part in parts if known is not None and part not in known]
-        unknown.append(";".join(missing))
+    ids = np.empty(len(uniques), dtype=object)
+    unknown = np.empty(len(uniques), dtype=object)
+    for at, text in enumerate(uniques):
+        parts = tuple(part.strip() for part in text.split(";") if part.strip())
+        ids[at] = parts
+        unknown[at] = ";".join(part for part in parts if known is not None and part not in known)
     if len(texts) == 0:
         empty = np.zeros(0, dtype=object)
         return empty, np.zeros(0, bool), empty
-    joined_array = np.array(joined, dtype=object)[codes]
-    unknown_array = np.array(unknown, dtype=object)[codes]
-    return joined_array, unknown_array != "", unknown_array
+    unknown_array = unknown[codes]
+    return ids[codes], unknown_array != "", unknown_array
 
 
 def _measured_length(column: Mapping[str, np.ndarray], table: CsvTable, units: LengthUnit | None,

@@ -11,6 +11,8 @@ from collections.abc import Mapping
 from types import MappingProxyType
 from typing import Final
 
+from reportgen import units
+
 # Stamped by reportgen.pdf at the bottom right of every page after merging.
 PAGE_LABEL: Final = "Page {page} of {pages}"
 
@@ -426,16 +428,15 @@ def msg(key: str, /, **values: object) -> str:
 
 
 # Number formats: every number the report prints goes through one of these (the
-# templates use them as filters |db, |dbm, |length, |km, |date), so rounding lives here.
-DB_DECIMALS: Final = 2
+# templates use them as filters |db, |dbm, |length, |km, |date). dB values are rounded
+# by reportgen.units.format_db, the rule results.csv and summary.json follow too.
 
 
 def format_db(value: float | None) -> str:
-    """A loss, limit or margin in dB with two decimals; ASCII minus; no "-0.00"."""
+    """A loss, limit or margin in dB with two decimals (units.format_db); a dash when none."""
     if value is None or value != value:
         return TEXT["no_margin"]
-    text = f"{value:.{DB_DECIMALS}f}"
-    return text[1:] if text.startswith("-") and float(text) == 0 else text
+    return units.format_db(value)
 
 
 def format_dbm(value: float | None) -> str:

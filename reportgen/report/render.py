@@ -16,7 +16,7 @@ Contract with reportgen.pdf:
 - page numbers in PDF parts are empty ``page-slot`` links pdf.py fills in after the
   merge (``front(page_of, total_pages)`` may also print numbers ``page_of`` gives).
 
-Applications and power budgets (``extras["applications"]``, a
+Applications and power budgets (``applications``, a
 :class:`reportgen.engine.applications.ProjectApplications`) add a block to each link sheet and
 a project section ``id="applications"`` (matrix and power list): in the front matter
 after the link register for small projects, else as parts of their own between the
@@ -30,7 +30,7 @@ from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
-from typing import Any, Final, overload
+from typing import Final, overload
 
 import jinja2
 from jinja2.sandbox import ImmutableSandboxedEnvironment
@@ -46,10 +46,17 @@ from reportgen.engine.budget import link_budget
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
 from reportgen.model import Project
-from reportgen.report.viewmodel import LinkView, ReportView, build_view, chunk_links, split_groups
+from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
+
+# How the PDF is cut into parts (ReportDocument.bodies), each rendered by a worker.
+LINKS_PER_PART: Final = 40  # most link sheets per PDF body part
+MIN_LINKS_PER_PART: Final = 10
+# Small reports are cut finer so that both render workers stay busy to the end.
+TARGET_PARTS: Final = 8
+MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
 
 
 def templates_dir() -> Path:
@@ -102,6 +109,38 @@ class ReportDocument:
     def front(self, page_of: Mapping[str, int], total_pages: int) -> str:
         """The front matter as a complete HTML document, with absolute page numbers."""
         return self._front(page_of, total_pages)
+
+
+def chunk_links(links: tuple[LinkView, ...], size: int | None = None) -> list[tuple[LinkView, ...]]:
+    """Link sheets split into runs for the PDF body parts.
+
+    By default runs of up to LINKS_PER_PART sheets; a small report is cut into about
+    TARGET_PARTS runs (at least MIN_LINKS_PER_PART sheets each) to balance the workers.
+    """
+    if size is None:
+        size = min(LINKS_PER_PART, max(MIN_LINKS_PER_PART, -(-len(links) // TARGET_PARTS)))
+    return [links[i:i + size] for i in range(0, len(links), size)]
+
+
+def split_groups(groups: tuple[MatrixGroup, ...],
+                 size: int = MATRIX_ROWS_PER_PART) -> list[tuple[MatrixGroup, ...]]:
+    """Matrix groups cut into runs of at most ``size`` rows (for PDF parts of their own)."""
+    parts: list[tuple[MatrixGroup, ...]] = []
+    current: list[MatrixGroup] = []
+    room = size
+    for group in groups:
+        start = 0
+        while start < len(group.rows):
+            take = group.rows[start:start + room]
+            current.append(MatrixGroup(group.fiber_type, group.columns, take, continued=start > 0))
+            start += len(take)
+            room -= len(take)
+            if room == 0:
+                parts.append(tuple(current))
+                current, room = [], size
+    if current or not parts:
+        parts.append(tuple(current))
+    return parts
 
 
 def css_string(text: object) -> Markup:
@@ -248,7 +287,7 @@ class _LossDiagrams(Mapping[str, Markup]):
 class _Renderer:
     """Renders the parts of one report from one view model."""
 
-    def __init__(self, env: jinja2.Environment, view: ReportView, extras: Mapping[str, Any],
+    def __init__(self, env: jinja2.Environment, view: ReportView,
                  power_svgs: Mapping[str, Markup] | None = None) -> None:
         self.env = env
         self.view = view
@@ -260,7 +299,6 @@ class _Renderer:
             "charts": {"margins": charts.svg_data_uri(charts.margin_chart(view.links)),
                        "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
             "toc": toc_entries(view),
-            "extras": extras,
             "power_diagrams": dict(power_svgs or {}),
         }
 
@@ -283,19 +321,17 @@ def build_report(
     *,
     now: datetime,
     version: str,
-    extras: Mapping[str, Any] | None = None,
+    applications: ProjectApplications | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
 
     ``now`` and ``version`` are printed as given (determinism: same input, same HTML).
-    ``extras["applications"]`` (a ProjectApplications) adds the applications and power
-    budget sections; other keys are ignored.
+    ``applications`` (applications.assess_project) adds the applications and power
+    budget sections.
     """
-    extras = dict(extras or {})
-    assessed = extras.get("applications")
-    view = build_view(project, judgement, now=now, version=version, assessed=assessed)
+    view = build_view(project, judgement, now=now, version=version, assessed=applications)
     env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, extras, power_diagrams(project, view, assessed))
+    renderer = _Renderer(env, view, power_diagrams(project, view, applications))
     makers: list[Callable[[], str]] = [
         functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
         for index, chunk in enumerate(chunk_links(view.links))]

@@ -11,6 +11,7 @@ from rich.text import Text
 
 from reportgen.inputs.limits import builtin_ids, describe_rows, load_builtin_limit_set
 from reportgen.errors import ReportgenError
+from reportgen.units import format_db, m_to_ft
 
 _CONTROL = {code: f"\\x{code:02x}" for code in [*range(0x20), 0x7F]}
 
@@ -60,8 +61,8 @@ def print_check_table(console: Console, outcome, show_all: bool = False) -> None
         table.caption_justify = "left"
     for item in listed:
         link = links[item.link_id]
-        length = link.length_m if unit == "m" else link.length_m / 0.3048
-        margin = "—" if item.worst_margin_db is None else f"{item.worst_margin_db:+.2f} dB"
+        length = link.length_m if unit == "m" else m_to_ft(link.length_m)
+        margin = "—" if item.worst_margin_db is None else f"{_signed_db(item.worst_margin_db)} dB"
         table.add_row(plain(item.link_id), link.fiber_type.value, f"{length:,.0f} {unit}",
                       item.verdict.value.upper(), margin, _missing_text(item),
                       style=_VERDICT_STYLE[item.verdict.value] or None)
@@ -90,16 +91,16 @@ def print_limit_set(console: Console, set_id: str) -> None:
                              f"{', '.join(builtin_ids())}") from None
     console.print(f"[bold]{limits.title}[/bold] ({limits.id})")
     console.print(f"Source: {limits.source}", markup=False)
-    console.print(f"Mated connection: {limits.connection_db:.2f} dB — "
+    console.print(f"Mated connection: {format_db(limits.connection_db)} dB — "
                   f"{limits.source_for('connection_db')}", markup=False)
-    console.print(f"Splice: {limits.splice_db:.2f} dB — {limits.source_for('splice_db')}",
+    console.print(f"Splice: {format_db(limits.splice_db)} dB — {limits.source_for('splice_db')}",
                   markup=False)
     table = Table(header_style="bold")
     for column in ("cable", "fiber", "λ nm", "dB/km", "source"):
         table.add_column(column, justify="right" if column in ("λ nm", "dB/km") else "left")
     for row in describe_rows(limits):
         table.add_row(row["table"], row["fiber_type"], str(row["wavelength_nm"]),
-                      f"{row['attenuation_db_per_km']:.2f}", row["source"])
+                      format_db(row["attenuation_db_per_km"]), row["source"])
     console.print(table)
     for note in limits.notes:
         console.print(f"Note: {note}", markup=False)
@@ -128,7 +129,13 @@ def print_applications(console: Console) -> None:
 
 
 def _optional_db(value: float | None) -> str:
-    return "" if value is None else f"{value:.2f}"
+    return "" if value is None else format_db(value)
+
+
+def _signed_db(value: float) -> str:
+    """A margin with its sign, rounded as in every output: +0.59, -0.58."""
+    text = format_db(value)
+    return text if text.startswith("-") else f"+{text}"
 
 
 @contextmanager

@@ -15,7 +15,6 @@ from collections import Counter
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from datetime import date, datetime
-from pathlib import Path
 from typing import Any, Final
 
 import pandas as pd
@@ -25,26 +24,16 @@ from reportgen.inputs.apptable import describe_rows as describe_application_rows
 from reportgen.engine.budget import Budget, link_budget
 from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
 from reportgen.inputs.limits import describe_rows
-from reportgen.model import Instrument, Link, LinkVerdict, Project, ResultVerdict
+from reportgen.model import Instrument, Link, LinkVerdict, Logo, Project, ResultVerdict
 from reportgen.engine.power import PowerBudget
 
-LINKS_PER_PART: Final = 40  # most link sheets per PDF body part (see ReportDocument.bodies)
-MIN_LINKS_PER_PART: Final = 10
-# Small reports are cut finer so that both render workers stay busy to the end.
-TARGET_PARTS: Final = 8
 # Up to this many links the applications matrix and power list sit in the front matter,
 # after the link register; above it they form their own part before the appendix (the
 # front matter is re-rendered until its page numbers settle, so it must stay short).
 FRONT_MATRIX_MAX_LINKS: Final = 60
-MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
 # Power verdicts in the order the project list shows them: what needs action first.
 POWER_ORDER: Final[Mapping[str, int]] = {"too-weak": 0, "no-fit": 1, "too-strong": 2, "ok": 3}
 POWER_LIST_ALL_MAX: Final = 60  # above this many links with a transceiver, list only problems
-
-_LOGO_TYPES: Final[Mapping[str, str]] = {
-    ".svg": "image/svg+xml", ".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg",
-    ".gif": "image/gif", ".webp": "image/webp",
-}
 
 
 @dataclass(frozen=True)
@@ -310,14 +299,11 @@ def link_anchors(link_ids: Iterable[str]) -> dict[str, str]:
     return anchors
 
 
-def logo_data_uri(path: Path | None) -> str:
-    """The contractor's logo as a ``data:`` URI (empty when none or unreadable type)."""
-    if path is None:
+def logo_data_uri(logo: Logo | None) -> str:
+    """The contractor's logo (read by the inputs stage) as a ``data:`` URI; "" without one."""
+    if logo is None:
         return ""
-    mime = _LOGO_TYPES.get(path.suffix.lower())
-    if mime is None or not path.is_file():
-        return ""
-    return f"data:{mime};base64,{base64.b64encode(path.read_bytes()).decode('ascii')}"
+    return f"data:{logo.mime};base64,{base64.b64encode(logo.data).decode('ascii')}"
 
 
 def _float_or_none(value: Any) -> float | None:
@@ -336,14 +322,12 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
                "margin_db", "verdict", "flags", "technician", "instrument", "tested_at",
                "source_file", "source_line", "note"]
     for row in frame[columns].itertuples(index=False):
-        flags = tuple(f for f in str(row.flags or "").split(";") if f)
-        instruments = tuple(i.strip() for i in str(row.instrument or "").split(";") if i.strip())
         by_link.setdefault(row.link_id, []).append(ResultView(
             strand=int(row.strand), wavelength_nm=int(row.wavelength_nm),
             direction=str(row.direction), loss_db=float(row.loss_db),
             limit_db=_float_or_none(row.limit_db), margin_db=_float_or_none(row.margin_db),
-            verdict=str(row.verdict), flags=flags, technician=_text(row.technician),
-            instruments=instruments, tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
+            verdict=str(row.verdict), flags=tuple(row.flags), technician=_text(row.technician),
+            instruments=tuple(row.instrument), tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
             source_file=str(row.source_file), source_line=int(row.source_line),
             note=_text(row.note),
         ))
@@ -403,10 +387,9 @@ def build_link_view(project: Project, link: Link, outcome: LinkOutcome, anchor: 
 def _instrument_views(instruments: Iterable[Instrument], frame: pd.DataFrame) -> tuple[InstrumentView, ...]:
     uses: dict[str, list[datetime]] = {}
     if not frame.empty:
-        for ids, tested_at in zip(frame["instrument"].fillna("").astype(str), frame["tested_at"]):
-            for inst in (i.strip() for i in ids.split(";")):
-                if inst:
-                    uses.setdefault(inst, []).append(pd.Timestamp(tested_at).to_pydatetime())
+        for ids, tested_at in zip(frame["instrument"], frame["tested_at"]):
+            for inst in ids:
+                uses.setdefault(inst, []).append(pd.Timestamp(tested_at).to_pydatetime())
     views = []
     for inst in instruments:
         used = uses.get(inst.id, [])
@@ -504,27 +487,6 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
     )
 
 
-def split_groups(groups: tuple[MatrixGroup, ...],
-                 size: int = MATRIX_ROWS_PER_PART) -> list[tuple[MatrixGroup, ...]]:
-    """Matrix groups cut into runs of at most ``size`` rows (for PDF parts of their own)."""
-    parts: list[tuple[MatrixGroup, ...]] = []
-    current: list[MatrixGroup] = []
-    room = size
-    for group in groups:
-        start = 0
-        while start < len(group.rows):
-            take = group.rows[start:start + room]
-            current.append(MatrixGroup(group.fiber_type, group.columns, take, continued=start > 0))
-            start += len(take)
-            room -= len(take)
-            if room == 0:
-                parts.append(tuple(current))
-                current, room = [], size
-    if current or not parts:
-        parts.append(tuple(current))
-    return parts
-
-
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
                assessed: ProjectApplications | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
@@ -568,14 +530,3 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         generated_at=now, version=version,
         apps=None if assessed is None else build_applications_view(project, assessed, anchors),
     )
-
-
-def chunk_links(links: tuple[LinkView, ...], size: int | None = None) -> list[tuple[LinkView, ...]]:
-    """Link sheets split into runs for the PDF body parts.
-
-    By default runs of up to LINKS_PER_PART sheets; a small report is cut into about
-    TARGET_PARTS runs (at least MIN_LINKS_PER_PART sheets each) to balance the workers.
-    """
-    if size is None:
-        size = min(LINKS_PER_PART, max(MIN_LINKS_PER_PART, -(-len(links) // TARGET_PARTS)))
-    return [links[i:i + size] for i in range(0, len(links), size)]
