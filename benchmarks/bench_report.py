@@ -12,7 +12,7 @@ Modes:
 
 * default: ``reportgen.pipeline.build(project_dir, out_dir)`` on a project written by
   ``benchmarks/make_synthetic.py`` (validate, judge, HTML, PDF, all outputs);
-* ``--synthetic-parts``: ``reportgen.pdf.render_pdf`` alone, on generated parts (a page per
+* ``--synthetic-parts``: ``reportgen.pdf.engine.render_pdf`` alone, on generated parts (a page per
   link with an 8-row table and a small inline SVG; a front matter with contents and a summary
   table with page numbers), split into ``--links-per-part`` links per body part;
 * ``--single``: for comparison, one plain WeasyPrint render of the same print HTML joined
@@ -182,7 +182,7 @@ def real_parts(links: int, work_dir: Path) -> tuple[Any, list[str], Path, str]:
 
     from reportgen import pipeline
 
-    from reportgen import render  # noqa: PLC0415
+    from reportgen.report import render  # noqa: PLC0415
     project_dir = make_project(work_dir / f"project-{links}", links=links, seed=1)
     project = pipeline.validate_only(project_dir)
     outcome = pipeline.compute(project)
@@ -194,7 +194,7 @@ def real_parts(links: int, work_dir: Path) -> tuple[Any, list[str], Path, str]:
 def measure(mode: str, links: int, links_per_part: int, work_dir: Path) -> dict[str, Any]:
     import logging  # noqa: PLC0415
 
-    from reportgen import pdf  # noqa: PLC0415
+    from reportgen.pdf import engine as pdf  # noqa: PLC0415
     logging.basicConfig(level=logging.INFO, format="  %(message)s", stream=sys.stderr)
     logging.getLogger("weasyprint").setLevel(logging.WARNING)
     logging.getLogger("weasyprint.progress").setLevel(logging.WARNING)
