@@ -23,7 +23,7 @@ from reportgen.export.summary import json_bytes, summary_dict
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import assess_project
 from reportgen.engine.judge import Judgement, judge_project
-from reportgen.report.messages import PAGE_LABEL
+from reportgen.report.messages import PAGE_LABEL, reason_text
 from reportgen.model import Project
 from reportgen.inputs.project import load_project
 
@@ -137,7 +137,8 @@ def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str,
     """summary.json: the contract's keys plus applications and power per link."""
     assessed = outcome.extras["applications"]
     project = outcome.project
-    link_extras = {link.link_id: assessed.link_json(link.link_id) for link in project.links}
+    link_extras = {link.link_id: assessed.link_json(link.link_id, reason_text)
+                   for link in project.links}
     meta = {
         "project": {"title": project.info.title, "job_number": project.info.job_number},
         "limits": project.limits.id,

@@ -37,10 +37,7 @@ from reportgen.model import (
     ResultVerdict,
     Testing,
 )
-
-# Comparisons allow for binary floating point: 2.7 must not fail a 2.7 dB limit
-# because 0.75·2 + … summed to 2.6999999999999997.
-TOLERANCE_DB: Final = 1e-9
+from reportgen.units import TOLERANCE_DB
 
 KEY: Final[list[str]] = ["link_id", "strand", "wavelength_nm", "direction"]
 ANY_DIRECTION: Final = "any"

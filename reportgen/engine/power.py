@@ -36,10 +36,8 @@ from typing import Any, Final
 import pandas as pd
 
 from reportgen.model import Link, Transceiver
-from reportgen.units import received_power_dbm
+from reportgen.units import TOLERANCE_DB, received_power_dbm
 
-# Comparisons allow for binary floating point (same tolerance as the judge).
-TOLERANCE_DB: Final = 1e-9
 # Decimals kept in summary.json values (dB and dBm): removes float noise, keeps 0.001 dB.
 JSON_DECIMALS: Final = 3
 

@@ -27,6 +27,7 @@ from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
 from reportgen.inputs.limits import describe_rows
 from reportgen.model import Instrument, Link, LinkVerdict, Project, ResultVerdict
 from reportgen.engine.power import PowerBudget
+from reportgen.report import messages
 
 LINKS_PER_PART: Final = 40  # most link sheets per PDF body part (see ReportDocument.bodies)
 MIN_LINKS_PER_PART: Final = 10
@@ -170,7 +171,7 @@ class ApplicationView:
     worst_loss_db: float | None  # highest judged loss at the needed wavelengths
     least_loss_db: float | None
     max_length_m: float | None
-    reasons: tuple[str, ...]  # Reason.text() of each reason
+    reasons: tuple[str, ...]  # messages.reason_text of each reason
 
 
 @dataclass(frozen=True)
@@ -474,7 +475,8 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
                 wavelengths_nm=table.get(a.id).test_wavelengths_nm,
                 max_loss_db=a.max_loss_db, min_loss_db=a.min_loss_db,
                 worst_loss_db=a.worst_loss_db, least_loss_db=a.least_loss_db,
-                max_length_m=a.max_length_m, reasons=tuple(r.text() for r in a.reasons))
+                max_length_m=a.max_length_m,
+                reasons=tuple(messages.reason_text(r) for r in a.reasons))
                 for a in found.assessments),
             capable=found.capable, power=power)
         if power is not None:
