@@ -20,12 +20,13 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from datetime import date
+from functools import cached_property
 from typing import Final
 
 import numpy as np
 import pandas as pd
 
-from reportgen.engine.budget import budget_frame
+from reportgen.engine.budget import BudgetTable, budget_frame
 from reportgen.model import (
     Directions,
     FiberType,
@@ -69,8 +70,13 @@ class Judgement:
     """Everything the engine concluded about a project."""
 
     results: pd.DataFrame  # project.results + limit_db, margin_db, verdict, flags, judged
-    budgets: pd.DataFrame  # budget.budget_frame(...)
+    budgets: pd.DataFrame  # budget.budget_frame(...): every link's budget, term by term
     links: tuple[LinkOutcome, ...]
+
+    @cached_property
+    def budget_table(self) -> BudgetTable:
+        """Each link's term-by-term budgets, read from ``budgets`` when first asked for."""
+        return BudgetTable(self.budgets)
 
     @property
     def totals(self) -> dict[str, int]:
