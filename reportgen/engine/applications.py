@@ -233,7 +233,6 @@ def check_applications(
     links = tuple(links)
     entries = table.entries
     wavelengths_nm = tuple(sorted({wl for entry in entries for wl in entry.test_wavelengths_nm}))
-    shape = (len(links), len(wavelengths_nm))
 
     # Judged losses as links × wavelengths (a repeated link id reads the same losses).
     link_codes, link_ids = pd.factorize(pd.Index([link.link_id for link in links], dtype=object))
@@ -241,15 +240,15 @@ def check_applications(
     columns = pd.Index(wavelengths_nm, dtype="int64").get_indexer(
         losses["wavelength_nm"].astype("int64"))
     known = (rows >= 0) & (columns >= 0)
+    at = rows[known], columns[known]
     by_id = (len(link_ids), len(wavelengths_nm))
-    measured, worst_db, least_db = np.zeros(by_id, dtype=bool), np.full(by_id, np.nan), \
-        np.full(by_id, np.nan)
-    measured[rows[known], columns[known]] = True
-    worst_db[rows[known], columns[known]] = losses["worst_loss_db"].to_numpy(dtype=float)[known]
-    least_db[rows[known], columns[known]] = losses["least_loss_db"].to_numpy(dtype=float)[known]
-    measured, worst_db, least_db = (measured[link_codes].reshape(shape),
-                                    worst_db[link_codes].reshape(shape),
-                                    least_db[link_codes].reshape(shape))
+    measured = np.zeros(by_id, dtype=bool)
+    worst_db = np.full(by_id, np.nan)
+    least_db = np.full(by_id, np.nan)
+    measured[at] = True
+    worst_db[at] = losses["worst_loss_db"].to_numpy(dtype=float)[known]
+    least_db[at] = losses["least_loss_db"].to_numpy(dtype=float)[known]
+    measured, worst_db, least_db = measured[link_codes], worst_db[link_codes], least_db[link_codes]
 
     # The table's limits per fiber type × entry, then per link × entry.
     fibers = list(FiberType)
@@ -264,7 +263,6 @@ def check_applications(
     for e, entry in enumerate(entries):
         needs[e, [wavelengths_nm.index(wl) for wl in entry.test_wavelengths_nm]] = True
     by_link = limits[np.array([fibers.index(link.fiber_type) for link in links], dtype=np.intp)]
-    by_link = by_link.reshape(len(links), len(entries), 3)
     max_length_m, max_loss_db, min_loss_db = by_link[..., 0], by_link[..., 1], by_link[..., 2]
     length_m = np.array([link.length_m for link in links], dtype=float)
 
