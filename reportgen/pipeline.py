@@ -23,7 +23,7 @@ from reportgen.export.summary import json_bytes, summary_dict
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
-from reportgen.report.messages import PAGE_LABEL
+from reportgen.report.messages import PAGE_LABEL, reason_text
 from reportgen.model import Project
 from reportgen.inputs.project import load_project
 
@@ -135,7 +135,7 @@ def build(
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
     """summary.json: the contract's keys plus applications and power per link."""
     project = outcome.project
-    link_extras = {link.link_id: outcome.applications.link_json(link.link_id)
+    link_extras = {link.link_id: outcome.applications.link_json(link.link_id, reason_text)
                    for link in project.links}
     meta = {
         "project": {"title": project.info.title, "job_number": project.info.job_number},

@@ -9,6 +9,11 @@ import math
 from collections.abc import Iterable
 from typing import Final
 
+# Comparisons of dB values allow for binary floating point: 2.7 must not fail a 2.7 dB
+# limit because 0.75·2 + … summed to 2.6999999999999997. Every limit comparison of the
+# engine (results, applications, power budgets) widens the limit by this much.
+TOLERANCE_DB: Final = 1e-9
+
 M_PER_FT: Final = 0.3048  # international foot, exact by definition (1959 agreement)
 M_PER_KM: Final = 1000.0
 

@@ -6,6 +6,7 @@ import pytest
 
 from reportgen.engine.budget import (
     END_CONNECTIONS,
+    BudgetTable,
     TermKind,
     allowed_loss_db,
     budget_frame,
@@ -58,7 +59,15 @@ def test_outside_plant_uses_outside_table_and_inside_falls_back():
     assert allowed_loss_db(om4_out, 850, TEST_LIMITS, ReferenceMethod.ONE_CORD) == pytest.approx(5.0)
 
 
-def test_budget_frame_matches_term_by_term_budget():
+def test_budget_frame_terms_and_limits_hand_worked():
+    # Two-cord reference: E = 1 end connection (IEC 61280-4-1/-4-2, reference-values.md §3).
+    # A: OM4 inside, 0.3 km, 2 connections, 1 splice:
+    #    850 nm: 0.3·2.0 + (2 + 1)·0.5 + 0.1 = 0.6 + 1.5 + 0.1 = 2.2 dB
+    #   1300 nm: 0.3·1.0 + 1.5 + 0.1 = 1.9 dB
+    # B: OS2 outside (outside table), 2.5 km, 4 splices, part p of 1.25 dB:
+    #   1310 nm: 2.5·0.2 + 1·0.5 + 4·0.1 + 1.25 = 0.5 + 0.5 + 0.4 + 1.25 = 2.65 dB
+    #   1550 nm: 2.5·0.1 + 0.5 + 0.4 + 1.25 = 2.4 dB
+    # C: OS2 inside, 0.09 km: 1310 nm 0.036 + 0.5 = 0.536 dB; 1550 nm 0.027 + 0.5 = 0.527 dB
     parts = {"p": Component("p", 1.25)}
     links = [
         make_link("A", length_m=300, connections=2, splices=1),
@@ -67,9 +76,27 @@ def test_budget_frame_matches_term_by_term_budget():
         make_link("C", fiber_type=FiberType.OS2, length_m=90),
     ]
     frame = budget_frame(links, TEST_LIMITS, ReferenceMethod.TWO_CORD, parts)
-    assert len(frame) == 6  # two wavelengths each
+    got = {(row.link_id, row.wavelength_nm): row.limit_db for row in frame.itertuples()}
+    assert got == pytest.approx({("A", 850): 2.2, ("A", 1300): 1.9, ("B", 1310): 2.65,
+                                 ("B", 1550): 2.4, ("C", 1310): 0.536, ("C", 1550): 0.527})
+    # The same rows, read term by term: B at 1310 nm.
+    budget = BudgetTable(frame).get("B", 1310)
+    assert [(t.kind, t.quantity, t.loss_db, t.item_id) for t in budget.terms] == pytest.approx([
+        (TermKind.FIBER, 2.5, 0.5, None), (TermKind.END_CONNECTIONS, 1, 0.5, None),
+        (TermKind.SPLICES, 4, 0.4, None), (TermKind.COMPONENT, 1, 1.25, "p")])
+    assert budget.total_db == pytest.approx(2.65)
+    # every limit is the total of its terms (the one computation, read two ways)
+    table = BudgetTable(frame)
     for row in frame.itertuples():
-        link = next(l for l in links if l.link_id == row.link_id)
-        expected = allowed_loss_db(link, row.wavelength_nm, TEST_LIMITS,
-                                   ReferenceMethod.TWO_CORD, parts)
-        assert row.limit_db == pytest.approx(expected, abs=1e-12)
+        terms = table.get(row.link_id, row.wavelength_nm).terms
+        assert row.limit_db == pytest.approx(sum(t.loss_db for t in terms), abs=1e-12)
+
+
+def test_wavelength_outside_the_limit_set_has_no_budget():
+    # TEST_LIMITS defines OM4 at 850 and 1300 nm only.
+    link = make_link(length_m=100)
+    frame = budget_frame([link], TEST_LIMITS, ReferenceMethod.ONE_CORD, {})
+    assert BudgetTable(frame).get("L1", 1550) is None
+    assert [b.wavelength_nm for b in BudgetTable(frame).for_link("L1")] == [850, 1300]
+    with pytest.raises(KeyError):
+        link_budget(link, 1550, TEST_LIMITS, ReferenceMethod.ONE_CORD, {})

@@ -15,6 +15,12 @@ Verdicts: ``not-supported`` when any check fails (every reason is listed, untest
 wavelengths included), else ``untested`` when a needed wavelength has no judged result,
 else ``supported``.
 
+One computation decides: :func:`check_applications` makes every comparison for every
+link × table entry (× needed wavelength) at once, as arrays. A link's listed
+applications with their reasons, its ``capable`` list and the links × applications
+matrix are all read from its :class:`ApplicationChecks`. Reasons are kinds and numbers;
+their words are the report's (``reportgen.report.messages.reason_text``).
+
 References
 ----------
 .. [1] IEEE 802.3 (Ethernet PMD channel insertion loss and reach), INCITS FC-PI
@@ -23,24 +29,14 @@ References
 """
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any, Final
 
 import numpy as np
 import pandas as pd
 
-from reportgen.model import (
-    Application,
-    ApplicationTable,
-    ApplicationVerdict,
-    FiberType,
-    Link,
-    Project,
-    ReasonKind,
-)
 from reportgen.engine.power import (
-    TOLERANCE_DB,
     LossRange,
     PowerBudget,
     assess_power,
@@ -48,20 +44,15 @@ from reportgen.engine.power import (
     judged_loss_table,
     loss_ranges_from_table,
 )
-from reportgen.units import round_db, round_length_m
-
-# Reason texts, one place to translate. Fields: application, fiber_type, wavelength_nm,
-# value, limit (numbers pre-formatted).
-REASON_TEXTS: dict[ReasonKind, str] = {
-    ReasonKind.FIBER_TYPE: "fiber type {fiber_type} not specified for {application}",
-    ReasonKind.TOO_LONG: "too long: {value} m documented, {limit} m allowed on {fiber_type}",
-    ReasonKind.TOO_MUCH_LOSS: "too much loss at {wavelength_nm} nm: {value} dB measured, "
-                              "{limit} dB allowed",
-    ReasonKind.TOO_LITTLE_LOSS: "too little loss at {wavelength_nm} nm: {value} dB measured, "
-                                "class minimum {limit} dB",
-    ReasonKind.UNTESTED: "untested at {wavelength_nm} nm: no judged result",
-}
-
+from reportgen.model import (
+    ApplicationTable,
+    ApplicationVerdict,
+    FiberType,
+    Link,
+    Project,
+    ReasonKind,
+)
+from reportgen.units import TOLERANCE_DB, round_db, round_length_m
 
 if TYPE_CHECKING:
     from reportgen.engine.judge import Judgement
@@ -69,7 +60,7 @@ if TYPE_CHECKING:
 
 @dataclass(frozen=True)
 class Reason:
-    """Why an application is not supported (or untested) on a link."""
+    """Why an application is not supported (or untested) on a link: a kind and its numbers."""
 
     kind: ReasonKind
     application: str
@@ -78,16 +69,9 @@ class Reason:
     value: float | None = None  # measured loss [dB] or documented length [m]
     limit: float | None = None  # the limit it was compared with, same unit
 
-    def text(self, texts: Mapping[ReasonKind, str] = REASON_TEXTS) -> str:
-        number = "{:.0f}" if self.kind is ReasonKind.TOO_LONG else "{:.2f}"
-        return texts[self.kind].format(
-            application=self.application, fiber_type=self.fiber_type,
-            wavelength_nm=self.wavelength_nm,
-            value=None if self.value is None else number.format(self.value),
-            limit=None if self.limit is None else number.format(self.limit))
 
-    def __str__(self) -> str:
-        return self.text()
+# Words for a reason, supplied by the report (reportgen.report.messages.reason_text).
+ReasonText = Callable[[Reason], str]
 
 
 @dataclass(frozen=True)
@@ -102,9 +86,8 @@ class ApplicationAssessment:
     reasons: tuple[Reason, ...] = ()
     min_loss_db: float | None = None
     least_loss_db: float | None = None  # lowest judged loss over the needed wavelengths
-    losses_db: Mapping[int, LossRange] = field(default_factory=dict)  # per needed wavelength
 
-    def to_json(self) -> dict[str, Any]:
+    def to_json(self, reason_text: ReasonText) -> dict[str, Any]:
         """One element of a link's ``applications`` list in summary.json."""
         return {
             "id": self.id,
@@ -112,7 +95,7 @@ class ApplicationAssessment:
             "max_loss_db": round_db(self.max_loss_db),
             "worst_loss_db": round_db(self.worst_loss_db),
             "max_length_m": round_length_m(self.max_length_m),
-            "reasons": [str(reason) for reason in self.reasons],
+            "reasons": [reason_text(reason) for reason in self.reasons],
         }
 
 
@@ -123,254 +106,215 @@ class LinkApplications:
     link_id: str
     assessments: tuple[ApplicationAssessment, ...]  # listed in links.csv, in that order
     capable: tuple[str, ...]  # ids of every table entry supported as measured, table order
-    # every table entry, table order (a tuple, or EntryAssessments worked out on reading)
-    every: Sequence[ApplicationAssessment] = ()
 
-    def to_json(self) -> dict[str, Any]:
-        return {"applications": [a.to_json() for a in self.assessments],
+    def to_json(self, reason_text: ReasonText) -> dict[str, Any]:
+        return {"applications": [a.to_json(reason_text) for a in self.assessments],
                 "capable": list(self.capable)}
 
 
-def assess_application(
-    link: Link, application: Application, measured: Mapping[int, LossRange]
-) -> ApplicationAssessment:
-    """Check one application on one link against its judged losses.
+# Verdict codes of ApplicationChecks.verdict_codes: the position in this tuple.
+VERDICTS: Final[tuple[ApplicationVerdict, ...]] = (
+    ApplicationVerdict.SUPPORTED, ApplicationVerdict.UNTESTED, ApplicationVerdict.NOT_SUPPORTED)
+_SUPPORTED, _UNTESTED, _NOT_SUPPORTED = range(3)
+
+
+@dataclass(frozen=True, eq=False)
+class ApplicationChecks:
+    """Every comparison of every link (L) with every table entry (E), as arrays.
+
+    Wavelength axes (W) are :attr:`wavelengths_nm`, the test wavelengths some entry
+    needs. Limits are NaN where an entry does not specify the link's fiber type (and
+    ``min_loss_db`` also where the entry has no minimum); losses are NaN where the link
+    has no judged result at that wavelength.
+    """
+
+    table: ApplicationTable
+    links: tuple[Link, ...]
+    wavelengths_nm: tuple[int, ...]
+    measured: np.ndarray  # (L, W) bool: a judged result at that wavelength
+    worst_loss_db: np.ndarray  # (L, W) highest judged loss over strands and directions
+    least_loss_db: np.ndarray  # (L, W) lowest judged loss
+    max_length_m: np.ndarray  # (L, E)
+    max_loss_db: np.ndarray  # (L, E)
+    min_loss_db: np.ndarray  # (L, E)
+    specified: np.ndarray  # (L, E) bool: the entry has a row for the link's fiber type
+    too_long: np.ndarray  # (L, E) bool
+    too_much_loss: np.ndarray  # (L, E, W) bool
+    too_little_loss: np.ndarray  # (L, E, W) bool
+    untested: np.ndarray  # (L, E, W) bool: needed, no judged result
+    verdict_codes: np.ndarray  # (L, E) index into VERDICTS
+
+    def verdict(self, link_at: int, entry_at: int) -> ApplicationVerdict:
+        return VERDICTS[int(self.verdict_codes[link_at, entry_at])]
+
+    def capable(self) -> list[tuple[str, ...]]:
+        """Ids of the supported entries of every link, table order; equal lists share a tuple."""
+        ids = self.table.ids
+        supported = self.verdict_codes == _SUPPORTED
+        packed = np.packbits(supported, axis=1, bitorder="little")
+        outcomes: dict[bytes, tuple[str, ...]] = {}
+        capable = []
+        for key, row in zip((bytes(row) for row in packed), supported):
+            found = outcomes.get(key)
+            if found is None:
+                found = outcomes[key] = tuple(i for i, fits in zip(ids, row.tolist()) if fits)
+            capable.append(found)
+        return capable
+
+    def assessment(self, link_at: int, entry_at: int) -> ApplicationAssessment:
+        """The verdict of one link and entry with the limits, losses and every reason."""
+        link, entry = self.links[link_at], self.table.entries[entry_at]
+        fiber = link.fiber_type.value
+        verdict = self.verdict(link_at, entry_at)
+        if not self.specified[link_at, entry_at]:
+            return ApplicationAssessment(entry.id, verdict, None, None, None,
+                                         (Reason(ReasonKind.FIBER_TYPE, entry.id, fiber),))
+        max_length_m = float(self.max_length_m[link_at, entry_at])
+        max_loss_db = float(self.max_loss_db[link_at, entry_at])
+        min_loss_db = _float(self.min_loss_db[link_at, entry_at])
+        reasons: list[Reason] = []
+        if self.too_long[link_at, entry_at]:
+            reasons.append(Reason(ReasonKind.TOO_LONG, entry.id, fiber, None,
+                                  link.length_m, max_length_m))
+        column = {wl: at for at, wl in enumerate(self.wavelengths_nm)}
+        needed = [(wl, column[wl]) for wl in dict.fromkeys(entry.test_wavelengths_nm)]
+        worst, least, untested = [], [], []
+        for wl, at in needed:
+            if not self.measured[link_at, at]:
+                untested.append(Reason(ReasonKind.UNTESTED, entry.id, fiber, wl))
+                continue
+            worst_db = float(self.worst_loss_db[link_at, at])
+            least_db = float(self.least_loss_db[link_at, at])
+            worst.append(worst_db)
+            least.append(least_db)
+            if self.too_much_loss[link_at, entry_at, at]:
+                reasons.append(Reason(ReasonKind.TOO_MUCH_LOSS, entry.id, fiber, wl,
+                                      worst_db, max_loss_db))
+            if self.too_little_loss[link_at, entry_at, at]:
+                reasons.append(Reason(ReasonKind.TOO_LITTLE_LOSS, entry.id, fiber, wl,
+                                      least_db, min_loss_db))
+        return ApplicationAssessment(
+            entry.id, verdict, max_loss_db, max(worst, default=None), max_length_m,
+            tuple(reasons + untested), min_loss_db, min(least, default=None))
+
+
+def _float(value: float) -> float | None:
+    return None if np.isnan(value) else float(value)
+
+
+def check_applications(
+    links: Sequence[Link], losses: pd.DataFrame, table: ApplicationTable
+) -> ApplicationChecks:
+    """Check every link against every entry of the application table, all at once.
+
+    The one place that decides ``supported`` / ``not-supported`` / ``untested`` and why.
 
     Parameters
     ----------
-    link : Link
+    links : sequence of Link
         Fiber type and documented length ``length_m``. [m]
-    application : Application
-        The table entry: rows per fiber type, needed test wavelengths.
-    measured : mapping
-        ``{wavelength_nm: LossRange}`` of the link's judged results.
+    losses : pandas.DataFrame
+        :func:`reportgen.engine.power.judged_loss_table` of the judged results: worst and
+        least judged loss [dB] per link and wavelength.
+    table : ApplicationTable
+        The application table (``Project.applications``).
 
     Returns
     -------
-    ApplicationAssessment
-        Verdict, limits, worst loss and every reason.
+    ApplicationChecks
+        The comparisons and verdicts of every link × entry.
 
     References
     ----------
     .. [1] IEEE 802.3, INCITS FC-PI, ITU-T G.984.2 / G.987.2 / G.9807.1: maximum channel
        insertion loss and reach; PON classes also a minimum loss.
     """
-    fiber = link.fiber_type.value
-    row = application.limits_for(link.fiber_type)
-    if row is None:
-        return ApplicationAssessment(application.id, ApplicationVerdict.NOT_SUPPORTED, None, None,
-                                     None, (Reason(ReasonKind.FIBER_TYPE, application.id, fiber),))
-    reasons: list[Reason] = []
-    if link.length_m > row.max_length_m + TOLERANCE_DB:
-        reasons.append(Reason(ReasonKind.TOO_LONG, application.id, fiber, None,
-                              link.length_m, row.max_length_m))
-    losses = {wl: measured[wl] for wl in application.test_wavelengths_nm if wl in measured}
-    untested = [wl for wl in application.test_wavelengths_nm if wl not in measured]
-    for wl, loss in losses.items():
-        if loss.worst_loss_db > row.max_loss_db + TOLERANCE_DB:
-            reasons.append(Reason(ReasonKind.TOO_MUCH_LOSS, application.id, fiber, wl,
-                                  loss.worst_loss_db, row.max_loss_db))
-        if row.min_loss_db is not None and loss.least_loss_db < row.min_loss_db - TOLERANCE_DB:
-            reasons.append(Reason(ReasonKind.TOO_LITTLE_LOSS, application.id, fiber, wl,
-                                  loss.least_loss_db, row.min_loss_db))
-    reasons += [Reason(ReasonKind.UNTESTED, application.id, fiber, wl) for wl in untested]
-    failed = any(reason.kind is not ReasonKind.UNTESTED for reason in reasons)
-    verdict = (ApplicationVerdict.NOT_SUPPORTED if failed
-               else ApplicationVerdict.UNTESTED if untested
-               else ApplicationVerdict.SUPPORTED)
-    return ApplicationAssessment(
-        application.id, verdict, row.max_loss_db,
-        max((loss.worst_loss_db for loss in losses.values()), default=None),
-        row.max_length_m, tuple(reasons), row.min_loss_db,
-        min((loss.least_loss_db for loss in losses.values()), default=None), losses)
+    links = tuple(links)
+    entries = table.entries
+    wavelengths_nm = tuple(sorted({wl for entry in entries for wl in entry.test_wavelengths_nm}))
+
+    # Judged losses as links × wavelengths (a repeated link id reads the same losses).
+    link_codes, link_ids = pd.factorize(pd.Index([link.link_id for link in links], dtype=object))
+    rows = pd.Index(link_ids).get_indexer(losses["link_id"].astype(object))
+    columns = pd.Index(wavelengths_nm, dtype="int64").get_indexer(
+        losses["wavelength_nm"].astype("int64"))
+    known = (rows >= 0) & (columns >= 0)
+    at = rows[known], columns[known]
+    by_id = (len(link_ids), len(wavelengths_nm))
+    measured = np.zeros(by_id, dtype=bool)
+    worst_db = np.full(by_id, np.nan)
+    least_db = np.full(by_id, np.nan)
+    measured[at] = True
+    worst_db[at] = losses["worst_loss_db"].to_numpy(dtype=float)[known]
+    least_db[at] = losses["least_loss_db"].to_numpy(dtype=float)[known]
+    measured, worst_db, least_db = measured[link_codes], worst_db[link_codes], least_db[link_codes]
+
+    # The table's limits per fiber type × entry, then per link × entry.
+    fibers = list(FiberType)
+    limits = np.full((len(fibers), len(entries), 3), np.nan)  # max length, max loss, min loss
+    for f, fiber_type in enumerate(fibers):
+        for e, entry in enumerate(entries):
+            row = entry.limits_for(fiber_type)
+            if row is not None:
+                limits[f, e] = (row.max_length_m, row.max_loss_db,
+                                np.nan if row.min_loss_db is None else row.min_loss_db)
+    needs = np.zeros((len(entries), len(wavelengths_nm)), dtype=bool)
+    for e, entry in enumerate(entries):
+        needs[e, [wavelengths_nm.index(wl) for wl in entry.test_wavelengths_nm]] = True
+    by_link = limits[np.array([fibers.index(link.fiber_type) for link in links], dtype=np.intp)]
+    max_length_m, max_loss_db, min_loss_db = by_link[..., 0], by_link[..., 1], by_link[..., 2]
+    length_m = np.array([link.length_m for link in links], dtype=float)
+
+    # The checks [1]; comparisons with NaN are false.
+    specified = ~np.isnan(max_loss_db)
+    too_long = length_m[:, None] > max_length_m + TOLERANCE_DB
+    needed = specified[:, :, None] & needs[None, :, :]
+    judged = needed & measured[:, None, :]
+    untested = needed & ~measured[:, None, :]
+    too_much_loss = judged & (worst_db[:, None, :] > (max_loss_db + TOLERANCE_DB)[:, :, None])
+    too_little_loss = judged & (least_db[:, None, :] < (min_loss_db - TOLERANCE_DB)[:, :, None])
+    failed = ~specified | too_long | (too_much_loss | too_little_loss).any(axis=2)
+    verdict_codes = np.where(failed, _NOT_SUPPORTED,
+                             np.where(untested.any(axis=2), _UNTESTED, _SUPPORTED)).astype(np.int8)
+    return ApplicationChecks(
+        table=table, links=links, wavelengths_nm=wavelengths_nm, measured=measured,
+        worst_loss_db=worst_db, least_loss_db=least_db, max_length_m=max_length_m,
+        max_loss_db=max_loss_db, min_loss_db=min_loss_db, specified=specified,
+        too_long=too_long, too_much_loss=too_much_loss, too_little_loss=too_little_loss,
+        untested=untested, verdict_codes=verdict_codes)
+
+
+def _first_positions(table: ApplicationTable) -> dict[str, int]:
+    position: dict[str, int] = {}
+    for at, application_id in enumerate(table.ids):
+        position.setdefault(application_id, at)
+    return position
+
+
+def link_applications(checks: ApplicationChecks) -> tuple[LinkApplications, ...]:
+    """Listed applications (with reasons) and ``capable`` of every link, read from ``checks``.
+
+    Raises KeyError for a listed id the table lacks (see
+    :func:`reportgen.inputs.apptable.validate_application_ids`).
+    """
+    position = _first_positions(checks.table)
+    return tuple(
+        LinkApplications(link.link_id, tuple(checks.assessment(link_at, position[i])
+                                             for i in link.applications), capable)
+        for link_at, (link, capable) in enumerate(zip(checks.links, checks.capable())))
 
 
 def assess_link_applications(
-    link: Link,
-    loss_ranges: Mapping[str, Mapping[int, LossRange]],
-    table: ApplicationTable,
+    link: Link, measured: Mapping[int, LossRange], table: ApplicationTable
 ) -> LinkApplications:
-    """Listed applications of one link, and the ids of all it would support as measured.
-
-    ``loss_ranges`` is :func:`reportgen.engine.power.judged_loss_ranges` of the judged results.
-    Raises KeyError for a listed id the table lacks (see :func:`validate_application_ids`).
-
-    Only the listed applications are assessed in full (with their reasons). ``capable``
-    comes from plain comparisons with the table's limits prepared once per fiber type
-    (:class:`_FiberPlan`); they give ``supported`` exactly when :func:`assess_application`
-    finds no reason. ``every`` holds the full assessment of each table entry, each worked
-    out when first read.
-    """
-    plan = _table_plan(table)
-    measured = loss_ranges.get(link.link_id) or {}
-    listed = tuple(assess_application(link, table.entries[plan.index[application_id]], measured)
-                   for application_id in link.applications)
-    capable = plan.for_fiber(link.fiber_type).capable(link.length_m, measured)
-    every = EntryAssessments(link, table, measured,
-                             {plan.index[a.id]: a for a in listed})
-    return LinkApplications(link.link_id, listed, capable, every)
-
-
-@dataclass(frozen=True)
-class _EntryCheck:
-    """The comparisons of one table entry on one fiber type, limits widened by the tolerance."""
-
-    id: str
-    wavelengths_nm: tuple[int, ...]
-    length_limit_m: float  # max_length_m + TOLERANCE_DB
-    loss_limit_db: float  # max_loss_db + TOLERANCE_DB
-    least_limit_db: float | None  # min_loss_db − TOLERANCE_DB; None without a minimum
-
-    def verdict(self, length_m: float, measured: Mapping[int, LossRange]) -> ApplicationVerdict:
-        """The verdict of :func:`assess_application`, without building its reasons."""
-        failed = length_m > self.length_limit_m
-        untested = False
-        for wl in self.wavelengths_nm:
-            loss = measured.get(wl)
-            if loss is None:
-                untested = True
-            elif loss.worst_loss_db > self.loss_limit_db or (
-                    self.least_limit_db is not None and loss.least_loss_db < self.least_limit_db):
-                failed = True
-        return (ApplicationVerdict.NOT_SUPPORTED if failed
-                else ApplicationVerdict.UNTESTED if untested
-                else ApplicationVerdict.SUPPORTED)
-
-
-@dataclass(frozen=True)
-class _FiberPlan:
-    """The table entries that specify one fiber type, in table order."""
-
-    checks: tuple[_EntryCheck, ...]
-
-    def capable(self, length_m: float, measured: Mapping[int, LossRange]) -> tuple[str, ...]:
-        """Ids of the entries with no reason against them (see :func:`assess_application`).
-
-        Every comparison is the negation of the one that gives a reason there, so the
-        verdicts agree also for values that compare false both ways.
-        """
-        if not measured:
-            return ()
-        losses = {wl: (loss.worst_loss_db, loss.least_loss_db) for wl, loss in measured.items()}
-        capable = []
-        for check in self.checks:
-            if length_m > check.length_limit_m:
-                continue
-            for wl in check.wavelengths_nm:
-                loss = losses.get(wl)
-                if (loss is None or loss[0] > check.loss_limit_db
-                        or (check.least_limit_db is not None and loss[1] < check.least_limit_db)):
-                    break
-            else:
-                capable.append(check.id)
-        return tuple(capable)
-
-
-class _TablePlan:
-    """Position of every id and the :class:`_FiberPlan` of every fiber type of one table."""
-
-    def __init__(self, table: ApplicationTable) -> None:
-        self.table = table
-        self.index: dict[str, int] = {}
-        for position, entry in enumerate(table.entries):
-            self.index.setdefault(entry.id, position)
-        self._fibers: dict[FiberType, _FiberPlan] = {}
-        self._by_position: dict[FiberType, tuple[_EntryCheck | None, ...]] = {}
-
-    def by_position(self, fiber_type: FiberType) -> tuple[_EntryCheck | None, ...]:
-        """The check of every table entry on ``fiber_type``; None where it is not specified."""
-        found = self._by_position.get(fiber_type)
-        if found is None:
-            checks = {check.id: check for check in self.for_fiber(fiber_type).checks}
-            found = self._by_position[fiber_type] = tuple(
-                checks.get(entry.id) for entry in self.table.entries)
-        return found
-
-    def for_fiber(self, fiber_type: FiberType) -> _FiberPlan:
-        plan = self._fibers.get(fiber_type)
-        if plan is None:
-            checks = []
-            for entry in self.table.entries:
-                row = entry.limits_for(fiber_type)
-                if row is not None:
-                    checks.append(_EntryCheck(
-                        entry.id, entry.test_wavelengths_nm,
-                        row.max_length_m + TOLERANCE_DB, row.max_loss_db + TOLERANCE_DB,
-                        None if row.min_loss_db is None else row.min_loss_db - TOLERANCE_DB))
-            plan = self._fibers[fiber_type] = _FiberPlan(tuple(checks))
-        return plan
-
-
-_LAST_PLAN: list[_TablePlan] = []
-
-
-def _table_plan(table: ApplicationTable) -> _TablePlan:
-    """The plan of ``table``, kept for the table used last (tables are immutable)."""
-    if not _LAST_PLAN or _LAST_PLAN[0].table is not table:
-        _LAST_PLAN[:] = [_TablePlan(table)]
-    return _LAST_PLAN[0]
-
-
-class EntryAssessments(Sequence[ApplicationAssessment]):
-    """:func:`assess_application` of one link for every table entry, in table order.
-
-    Behaves as a tuple of :class:`ApplicationAssessment` (indexing, iteration, ``len``,
-    equality with tuples); each element is worked out when first read and then kept.
-    """
-
-    __slots__ = ("_link", "_table", "_entries", "_measured", "_done")
-
-    def __init__(self, link: Link, table: ApplicationTable, measured: Mapping[int, LossRange],
-                 known: Mapping[int, ApplicationAssessment] | None = None) -> None:
-        self._link = link
-        self._table = table
-        self._entries = table.entries
-        self._measured = measured
-        self._done: list[ApplicationAssessment | None] = [None] * len(table.entries)
-        if known:
-            for position, assessment in known.items():
-                self._done[position] = assessment
-
-    def __len__(self) -> int:
-        return len(self._entries)
-
-    def verdict(self, index: int) -> ApplicationVerdict:
-        """``self[index].verdict``, without building the assessment when not yet read."""
-        position = range(len(self._entries))[index]
-        done = self._done[position]
-        if done is not None:
-            return done.verdict
-        check = _table_plan(self._table).by_position(self._link.fiber_type)[position]
-        if check is None:
-            return ApplicationVerdict.NOT_SUPPORTED
-        return check.verdict(self._link.length_m, self._measured)
-
-    def __getitem__(self, index):  # type: ignore[override]
-        if isinstance(index, slice):
-            return tuple(self)[index]
-        position = range(len(self._entries))[index]  # IndexError as a tuple's
-        done = self._done[position]
-        if done is None:
-            done = self._done[position] = assess_application(
-                self._link, self._entries[position], self._measured)
-        return done
-
-    def __iter__(self):
-        return (self[position] for position in range(len(self._entries)))
-
-    def __eq__(self, other: object) -> bool:
-        if isinstance(other, (EntryAssessments, tuple)):
-            return tuple(self) == tuple(other)
-        return NotImplemented
-
-    def __hash__(self) -> int:
-        return hash(tuple(self))
-
-    def __repr__(self) -> str:
-        return repr(tuple(self))
-
-    def __reduce__(self):
-        return tuple, (tuple(self),)
+    """:func:`check_applications` of one link, given its judged losses by wavelength."""
+    rows = sorted(measured.items())
+    losses = pd.DataFrame({"link_id": [link.link_id] * len(rows),
+                           "wavelength_nm": [wl for wl, _ in rows],
+                           "worst_loss_db": [r.worst_loss_db for _, r in rows],
+                           "least_loss_db": [r.least_loss_db for _, r in rows]})
+    [found] = link_applications(check_applications([link], losses, table))
+    return found
 
 
 # ------------------------------------------------------------------ project
@@ -383,6 +327,7 @@ class ProjectApplications:
     links: tuple[LinkApplications, ...]
     power: Mapping[str, PowerBudget | None]  # link_id -> budget (None: no transceiver)
     table: ApplicationTable
+    checks: ApplicationChecks
 
     def for_link(self, link_id: str) -> LinkApplications:
         index = self.__dict__.get("_by_link_id")
@@ -393,10 +338,10 @@ class ProjectApplications:
             object.__setattr__(self, "_by_link_id", index)
         return index[link_id]
 
-    def link_json(self, link_id: str) -> dict[str, Any]:
+    def link_json(self, link_id: str, reason_text: ReasonText) -> dict[str, Any]:
         """``applications``, ``capable`` and ``power`` of one link for summary.json."""
         power = self.power.get(link_id)
-        return {**self.for_link(link_id).to_json(),
+        return {**self.for_link(link_id).to_json(reason_text),
                 "power": None if power is None else power.to_json()}
 
     def matrix(self, application_ids: Sequence[str] | None = None) -> dict[str, Any]:
@@ -408,118 +353,20 @@ def assess_project(project: Project, judgement: Judgement) -> ProjectApplication
     """Applications and transceiver power budgets of every link of a judged project.
 
     ``judgement`` is :class:`reportgen.engine.judge.Judgement` (its ``results`` and ``budgets``).
-    Gives the same as :func:`assess_link_applications` on every link; ``capable`` is
-    worked out for all links at once (:func:`capable_by_link`).
     """
-    table = project.applications
-    plan = _table_plan(table)
     losses = judged_loss_table(judgement.results)
-    ranges = loss_ranges_from_table(losses)
+    checks = check_applications(project.links, losses, project.applications)
     links = project.links
-    capable = capable_by_link(links, losses, table)
-    assessed = []
-    for link, link_capable in zip(links, capable):
-        measured = ranges.get(link.link_id) or {}
-        if link.applications:
-            listed = tuple(assess_application(link, table.entries[plan.index[application_id]],
-                                              measured)
-                           for application_id in link.applications)
-            every = EntryAssessments(link, table, measured,
-                                     {plan.index[a.id]: a for a in listed})
-        else:
-            listed = ()
-            every = EntryAssessments(link, table, measured)
-        assessed.append(LinkApplications(link.link_id, listed, link_capable, every))
     power: dict[str, PowerBudget | None] = dict.fromkeys(link.link_id for link in links)
     fitted = [link for link in links if link.transceiver]
     if fitted:
+        ranges = loss_ranges_from_table(losses)
         limits = budget_limits_db(judgement.budgets)
         attenuators_db = project.testing.attenuators_db
         for link in fitted:
             power[link.link_id] = assess_power(
                 link, project.transceivers[link.transceiver], ranges, limits, attenuators_db)
-    return ProjectApplications(tuple(assessed), power, table)
-
-
-def capable_by_link(
-    links: Sequence[Link], losses: pd.DataFrame, table: ApplicationTable
-) -> list[tuple[str, ...]]:
-    """``capable`` of every link (see :func:`assess_link_applications`), in links order.
-
-    Array comparisons of a links × wavelengths table of worst and least judged loss with
-    each entry's limits for the links' fiber type; an entry is capable when its length,
-    maximum loss and minimum loss comparisons give no reason and every needed wavelength
-    has a judged result. Links with the same outcome share one tuple.
-
-    Parameters
-    ----------
-    links : sequence of Link
-        Fiber type and documented length ``length_m``. [m]
-    losses : pandas.DataFrame
-        :func:`reportgen.engine.power.judged_loss_table` of the judged results.
-    table : ApplicationTable
-        The application table (``Project.applications``).
-
-    References
-    ----------
-    .. [1] IEEE 802.3, INCITS FC-PI, ITU-T G.984.2 / G.987.2 / G.9807.1: maximum channel
-       insertion loss and reach; PON classes also a minimum loss.
-    """
-    plan = _table_plan(table)
-    link_ids = pd.Index([link.link_id for link in links])
-    if not link_ids.is_unique:  # not after validation; keep the per-link meaning anyway
-        ranges = loss_ranges_from_table(losses)
-        return [plan.for_fiber(link.fiber_type).capable(link.length_m,
-                                                        ranges.get(link.link_id) or {})
-                for link in links]
-    rows = link_ids.get_indexer(losses["link_id"].astype(object))
-    known = rows >= 0
-    rows = rows[known]
-    wavelengths_nm = sorted({int(wl) for wl in losses["wavelength_nm"].tolist()})
-    column = {wl: at for at, wl in enumerate(wavelengths_nm)}
-    columns = np.searchsorted(wavelengths_nm, losses["wavelength_nm"].to_numpy()[known])
-    shape = (len(links), len(wavelengths_nm))
-    present = np.zeros(shape, dtype=bool)
-    worst_db = np.zeros(shape)
-    least_db = np.zeros(shape)
-    present[rows, columns] = True
-    worst_db[rows, columns] = losses["worst_loss_db"].to_numpy(dtype=float)[known]
-    least_db[rows, columns] = losses["least_loss_db"].to_numpy(dtype=float)[known]
-    length_m = np.array([link.length_m for link in links], dtype=float)
-
-    capable: list[tuple[str, ...]] = [()] * len(links)
-    by_fiber: dict[FiberType, list[int]] = {}
-    for at, link in enumerate(links):
-        by_fiber.setdefault(link.fiber_type, []).append(at)
-    for fiber_type, members in by_fiber.items():
-        checks = plan.for_fiber(fiber_type).checks
-        if not checks or not wavelengths_nm:
-            continue
-        at = np.array(members)
-        ok = np.empty((len(at), len(checks)), dtype=bool)
-        for index, check in enumerate(checks):
-            # The negation of each comparison that gives a reason in assess_application.
-            fits = ~(length_m[at] > check.length_limit_m)
-            for wl in check.wavelengths_nm:
-                if wl not in column:
-                    fits[:] = False
-                    break
-                col = column[wl]
-                fits &= present[at, col] & ~(worst_db[at, col] > check.loss_limit_db)
-                if check.least_limit_db is not None:
-                    fits &= ~(least_db[at, col] < check.least_limit_db)
-            ok[:, index] = fits
-        # One tuple per distinct outcome: each row of `ok` as the bits of a Python int.
-        codes = [int.from_bytes(row, "little") for row in np.packbits(ok, axis=1,
-                                                                      bitorder="little")]
-        outcomes: dict[int, tuple[str, ...]] = {}
-        for link_at, code, fits in zip(members, codes, ok):
-            found = outcomes.get(code)
-            if found is None:
-                found = outcomes[code] = tuple(
-                    check.id for check, fit in zip(checks, fits.tolist()) if fit)
-            capable[link_at] = found
-    return capable
+    return ProjectApplications(link_applications(checks), power, project.applications, checks)
 
 
 def application_matrix(
@@ -540,20 +387,15 @@ def application_matrix(
         wanted = {a.id for link in assessed.links for a in link.assessments}
         wanted |= {application_id for link in assessed.links for application_id in link.capable}
         application_ids = [i for i in assessed.table.ids if i in wanted]
-    position = {}
-    for index, application_id in enumerate(assessed.table.ids):
-        position.setdefault(application_id, index)
-    columns = [(application_id, position[application_id]) for application_id in application_ids]
+    position = _first_positions(assessed.table)
+    at = np.array([position[i] for i in application_ids], dtype=np.intp)
+    words = np.array([verdict.value for verdict in VERDICTS], dtype=object)
+    verdicts = words[assessed.checks.verdict_codes[:, at]].tolist() if len(at) else \
+        [[] for _ in assessed.links]
     rows = []
-    for link in assessed.links:
+    for link, link_verdicts in zip(assessed.links, verdicts):
         listed = {a.id for a in link.assessments}
         rows.append({"link_id": link.link_id, "cells": [
-            {"id": i, "verdict": _verdict(link.every, at).value, "listed": i in listed}
-            for i, at in columns]})
+            {"id": i, "verdict": verdict, "listed": i in listed}
+            for i, verdict in zip(application_ids, link_verdicts)]})
     return {"applications": list(application_ids), "links": rows}
-
-
-def _verdict(every: Sequence[ApplicationAssessment], position: int) -> ApplicationVerdict:
-    if isinstance(every, EntryAssessments):
-        return every.verdict(position)
-    return every[position].verdict

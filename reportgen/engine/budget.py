@@ -13,7 +13,7 @@ References
 """
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from enum import StrEnum
 from typing import Final
@@ -57,10 +57,138 @@ class Budget:
     link_id: str
     wavelength_nm: int
     terms: tuple[BudgetTerm, ...]
+    total_db: float  # the limit a measured loss is compared with (budget_frame's limit_db)
 
-    @property
-    def total_db(self) -> float:
-        return sum(term.loss_db for term in self.terms)
+
+# Sources of allowances that come from the project rather than the limit set.
+COMPONENT_SOURCE: Final = "project.yaml components"
+_TABLE_KEYS: Final = ("attenuation_db_per_km", "attenuation_db_per_km_outside")
+
+
+BUDGET_COLUMNS: Final = [
+    "link_id", "wavelength_nm", "length_km", "alpha_db_per_km", "fiber_db", "fiber_source",
+    "end_connections", "end_connections_db", "connections", "connections_db", "connection_db",
+    "connection_source", "splices", "splices_db", "splice_db", "splice_source",
+    "component_ids", "component_losses_db", "components_db", "limit_db",
+]
+
+
+def budget_frame(
+    links: Sequence[Link],
+    limits: LimitSet,
+    method: ReferenceMethod,
+    components: Mapping[str, Component],
+) -> pd.DataFrame:
+    """Every link's loss budget at every wavelength the limit set defines for it, term by term.
+
+    The one budget computation: the judge compares results with ``limit_db``, and a link's
+    term-by-term :class:`Budget` (report, diagrams) is read from its rows
+    (:class:`BudgetTable`). One row per link and wavelength, sorted by both.
+
+    Parameters
+    ----------
+    links : sequence of Link
+        Fiber type F, plant, length L [km], connection and splice counts, parts.
+    limits : LimitSet
+        α [dB/km] per fiber type and wavelength, a_conn and a_splice [dB], each with its citation.
+    method : ReferenceMethod
+        Decides E, the end connections left in the measurement [2]_.
+    components : Mapping[str, Component]
+        The project's catalog of passive parts (loss_db each).
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``link_id``, ``wavelength_nm``; the fiber term ``length_km``, ``alpha_db_per_km``,
+        ``fiber_db``, ``fiber_source``; ``end_connections``, ``connections``, their
+        ``end_connections_db`` and ``connections_db``, ``connection_db`` (a_conn),
+        ``connection_source``; ``splices``, ``splices_db``, ``splice_db``, ``splice_source``;
+        ``component_ids`` and ``component_losses_db`` (tuples, link order),
+        ``components_db``; ``limit_db``, the limit [1]_ (the total of every term).
+    """
+    end_connections = END_CONNECTIONS[method]
+    outside = limits.attenuation_db_per_km_outside
+    parts = [tuple(components[part_id].loss_db for part_id in link.components) for link in links]
+    frame = pd.DataFrame({
+        "link_id": [link.link_id for link in links],
+        "fiber_type": [link.fiber_type.value for link in links],
+        "table": [_TABLE_KEYS[link.plant is Plant.OUTSIDE and link.fiber_type in outside]
+                  for link in links],
+        "length_km": pd.Series([link.length_km for link in links], dtype="float64"),
+        "connections": pd.Series([link.connections for link in links], dtype="int64"),
+        "splices": pd.Series([link.splices for link in links], dtype="int64"),
+        "component_ids": pd.Series([link.components for link in links], dtype=object),
+        "component_losses_db": pd.Series(parts, dtype=object),
+        "at": pd.Series(range(len(links)), dtype="int64"),
+    })
+    frame = frame.merge(_attenuation_frame(limits), on=["fiber_type", "table"], how="inner")
+    frame["fiber_db"] = frame["alpha_db_per_km"] * frame["length_km"]  # [1] fiber term
+    frame["end_connections"] = end_connections  # [2]
+    frame["end_connections_db"] = float(end_connections * limits.connection_db)
+    frame["connections_db"] = frame["connections"] * limits.connection_db  # [1]
+    frame["connection_db"] = limits.connection_db
+    frame["connection_source"] = limits.source_for("connection_db")
+    frame["splices_db"] = frame["splices"] * limits.splice_db  # [1] splice term
+    frame["splice_db"] = limits.splice_db
+    frame["splice_source"] = limits.source_for("splice_db")
+    # [1] as the contract writes it: the connections and the end connections together,
+    # the parts' losses summed first
+    frame["components_db"] = [sum(parts[at]) for at in frame["at"].tolist()]
+    limit_db = (frame["fiber_db"]
+                + (frame["connections"] + end_connections) * limits.connection_db
+                + frame["splices_db"] + frame["components_db"])
+    frame["limit_db"] = limit_db
+    return frame[BUDGET_COLUMNS].sort_values(["link_id", "wavelength_nm"], ignore_index=True)
+
+
+def _attenuation_frame(limits: LimitSet) -> pd.DataFrame:
+    rows: list[tuple[str, str, int, float, str]] = []
+    for key, table in zip(_TABLE_KEYS, (limits.attenuation_db_per_km,
+                                        limits.attenuation_db_per_km_outside)):
+        rows += [(fiber.value, key, wl, alpha, limits.source_for(f"{key}.{fiber.value}"))
+                 for fiber, row in table.items() for wl, alpha in row.items()]
+    return pd.DataFrame(rows, columns=["fiber_type", "table", "wavelength_nm", "alpha_db_per_km",
+                                       "fiber_source"])
+
+
+class BudgetTable:
+    """The term-by-term :class:`Budget` of each row of a :func:`budget_frame`, by link."""
+
+    def __init__(self, frame: pd.DataFrame) -> None:
+        self._columns = {column: frame[column].tolist() for column in BUDGET_COLUMNS}
+        self._rows: dict[str, list[int]] = {}
+        for at, link_id in enumerate(self._columns["link_id"]):
+            self._rows.setdefault(link_id, []).append(at)  # wavelength order: frame sorted
+
+    def for_link(self, link_id: str) -> tuple[Budget, ...]:
+        """Budgets of a link at every wavelength the limit set defines for it, shortest first."""
+        return tuple(self._budget(at) for at in self._rows.get(link_id, ()))
+
+    def get(self, link_id: str, wavelength_nm: int) -> Budget | None:
+        """The budget of a link at one wavelength; None where the limit set has none."""
+        wavelengths = self._columns["wavelength_nm"]
+        for at in self._rows.get(link_id, ()):
+            if wavelengths[at] == wavelength_nm:
+                return self._budget(at)
+        return None
+
+    def _budget(self, at: int) -> Budget:
+        c = {column: values[at] for column, values in self._columns.items()}
+        terms = [
+            BudgetTerm(TermKind.FIBER, c["length_km"], c["alpha_db_per_km"], c["fiber_db"],
+                       c["fiber_source"]),
+            BudgetTerm(TermKind.END_CONNECTIONS, c["end_connections"], c["connection_db"],
+                       c["end_connections_db"], c["connection_source"]),
+        ]
+        if c["connections"]:
+            terms.append(BudgetTerm(TermKind.CONNECTIONS, c["connections"], c["connection_db"],
+                                    c["connections_db"], c["connection_source"]))
+        if c["splices"]:
+            terms.append(BudgetTerm(TermKind.SPLICES, c["splices"], c["splice_db"],
+                                    c["splices_db"], c["splice_source"]))
+        terms += [BudgetTerm(TermKind.COMPONENT, 1, loss_db, loss_db, COMPONENT_SOURCE, part_id)
+                  for part_id, loss_db in zip(c["component_ids"], c["component_losses_db"])]
+        return Budget(c["link_id"], int(c["wavelength_nm"]), tuple(terms), c["limit_db"])
 
 
 def link_budget(
@@ -72,50 +200,14 @@ def link_budget(
 ) -> Budget:
     """Allowed insertion loss of one link at one wavelength, broken down. [dB]
 
-    Parameters
-    ----------
-    link : Link
-        Fiber type F, plant, length L [km], connection and splice counts, parts.
-    wavelength_nm : int
-        Test wavelength λ. [nm]
-    limits : LimitSet
-        α [dB/km], a_conn and a_splice [dB], each with its citation.
-    method : ReferenceMethod
-        Decides E, the end connections left in the measurement [2]_.
-    components : Mapping[str, Component]
-        The project's catalog of passive parts (loss_db each).
-
-    Returns
-    -------
-    Budget
-        Terms in link order; ``total_db`` is the limit a measured loss is compared with.
+    :func:`budget_frame` of the one link, read as a :class:`Budget`. Raises KeyError
+    when the limit set has no attenuation for the link's fiber type at ``wavelength_nm``.
     """
-    alpha_db_per_km = limits.attenuation_for(link.fiber_type, wavelength_nm, link.plant)
-    table = ("attenuation_db_per_km_outside"
-             if link.plant is Plant.OUTSIDE
-             and link.fiber_type in limits.attenuation_db_per_km_outside
-             else "attenuation_db_per_km")
-    connection_source = limits.source_for("connection_db")
-    end_connections = END_CONNECTIONS[method]
-    terms = [
-        BudgetTerm(TermKind.FIBER, link.length_km, alpha_db_per_km,
-                   alpha_db_per_km * link.length_km,  # [1] fiber term
-                   limits.source_for(f"{table}.{link.fiber_type.value}")),
-        BudgetTerm(TermKind.END_CONNECTIONS, end_connections, limits.connection_db,
-                   end_connections * limits.connection_db, connection_source),  # [1], [2]
-    ]
-    if link.connections:
-        terms.append(BudgetTerm(TermKind.CONNECTIONS, link.connections, limits.connection_db,
-                                link.connections * limits.connection_db, connection_source))
-    if link.splices:
-        terms.append(BudgetTerm(TermKind.SPLICES, link.splices, limits.splice_db,
-                                link.splices * limits.splice_db,  # [1] splice term
-                                limits.source_for("splice_db")))
-    for part_id in link.components:  # [1] catalog parts
-        part = components[part_id]
-        terms.append(BudgetTerm(TermKind.COMPONENT, 1, part.loss_db, part.loss_db,
-                                "project.yaml components", part_id))
-    return Budget(link.link_id, wavelength_nm, tuple(terms))
+    budget = BudgetTable(budget_frame([link], limits, method, components)).get(
+        link.link_id, wavelength_nm)
+    if budget is None:
+        raise KeyError(wavelength_nm)
+    return budget
 
 
 def allowed_loss_db(
@@ -127,64 +219,3 @@ def allowed_loss_db(
 ) -> float:
     """The limit a measured loss of ``link`` at ``wavelength_nm`` is compared with. [dB]"""
     return link_budget(link, wavelength_nm, limits, method, components or {}).total_db
-
-
-def links_frame(links: Sequence[Link], components: Mapping[str, Component]) -> pd.DataFrame:
-    """Links as a frame of the quantities the budget needs (one row per link)."""
-    return pd.DataFrame({
-        "link_id": [link.link_id for link in links],
-        "fiber_type": [link.fiber_type.value for link in links],
-        "plant": [link.plant.value for link in links],
-        "length_km": [link.length_km for link in links],
-        "connections": [link.connections for link in links],
-        "splices": [link.splices for link in links],
-        "components_db": [sum(components[c].loss_db for c in link.components) for link in links],
-    })
-
-
-def _attenuation_frame(limits: LimitSet) -> pd.DataFrame:
-    rows: list[tuple[str, str, int, float]] = []
-    for plant, table in (("inside", limits.attenuation_db_per_km),
-                         ("outside", limits.attenuation_db_per_km_outside)):
-        rows += [(fiber.value, plant, wl, alpha) for fiber, row in table.items()
-                 for wl, alpha in row.items()]
-    return pd.DataFrame(rows, columns=["fiber_type", "table", "wavelength_nm", "alpha_db_per_km"])
-
-
-def budget_frame(
-    links: Sequence[Link],
-    limits: LimitSet,
-    method: ReferenceMethod,
-    components: Mapping[str, Component],
-) -> pd.DataFrame:
-    """Allowed loss of every link at every wavelength the limit set defines for it.
-
-    Vectorised form of :func:`link_budget`. Columns: link_id, wavelength_nm,
-    alpha_db_per_km, fiber_db, connections_db, splices_db, components_db, limit_db.
-    """
-    frame = links_frame(links, components)
-    outside_types = {fiber.value for fiber in limits.attenuation_db_per_km_outside}
-    frame["table"] = "inside"
-    frame.loc[(frame["plant"] == "outside") & frame["fiber_type"].isin(outside_types),
-              "table"] = "outside"
-    frame = frame.merge(_attenuation_frame(limits), on=["fiber_type", "table"], how="inner")
-    frame["fiber_db"] = frame["alpha_db_per_km"] * frame["length_km"]  # [1] fiber term
-    frame["connections_db"] = (  # [1], [2] connections between the ends plus E
-        (frame["connections"] + END_CONNECTIONS[method]) * limits.connection_db)
-    frame["splices_db"] = frame["splices"] * limits.splice_db  # [1] splice term
-    frame["limit_db"] = (frame["fiber_db"] + frame["connections_db"] + frame["splices_db"]
-                         + frame["components_db"])
-    columns = ["link_id", "wavelength_nm", "alpha_db_per_km", "fiber_db", "connections_db",
-               "splices_db", "components_db", "limit_db"]
-    return frame[columns].sort_values(["link_id", "wavelength_nm"], ignore_index=True)
-
-
-def budgets_for_link(
-    link: Link,
-    wavelengths_nm: Iterable[int],
-    limits: LimitSet,
-    method: ReferenceMethod,
-    components: Mapping[str, Component],
-) -> list[Budget]:
-    """Term-by-term budgets of one link at several wavelengths (for the report)."""
-    return [link_budget(link, wl, limits, method, components) for wl in wavelengths_nm]

@@ -20,12 +20,13 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from datetime import date
+from functools import cached_property
 from typing import Final
 
 import numpy as np
 import pandas as pd
 
-from reportgen.engine.budget import budget_frame
+from reportgen.engine.budget import BudgetTable, budget_frame
 from reportgen.model import (
     Directions,
     FiberType,
@@ -37,10 +38,7 @@ from reportgen.model import (
     ResultVerdict,
     Testing,
 )
-
-# Comparisons allow for binary floating point: 2.7 must not fail a 2.7 dB limit
-# because 0.75·2 + … summed to 2.6999999999999997.
-TOLERANCE_DB: Final = 1e-9
+from reportgen.units import TOLERANCE_DB
 
 KEY: Final[list[str]] = ["link_id", "strand", "wavelength_nm", "direction"]
 ANY_DIRECTION: Final = "any"
@@ -73,8 +71,13 @@ class Judgement:
 
     # project.results + limit_db, margin_db, verdict, flags (tuple of ResultFlag), judged
     results: pd.DataFrame
-    budgets: pd.DataFrame  # budget.budget_frame(...)
+    budgets: pd.DataFrame  # budget.budget_frame(...): every link's budget, term by term
     links: tuple[LinkOutcome, ...]
+
+    @cached_property
+    def budget_table(self) -> BudgetTable:
+        """Each link's term-by-term budgets, read from ``budgets`` when first asked for."""
+        return BudgetTable(self.budgets)
 
     @property
     def totals(self) -> dict[str, int]:

@@ -31,15 +31,12 @@ from __future__ import annotations
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from enum import StrEnum
-from typing import Any, Final
+from typing import Any
 
 import pandas as pd
 
 from reportgen.model import Link, Transceiver
-from reportgen.units import received_power_dbm, round_db
-
-# Comparisons allow for binary floating point (same tolerance as the judge).
-TOLERANCE_DB: Final = 1e-9
+from reportgen.units import TOLERANCE_DB, received_power_dbm, round_db
 
 
 class PowerVerdict(StrEnum):

@@ -39,6 +39,9 @@ COLUMN_LEFT: Final = 462
 COLUMN_WIDTH: Final = 56
 COLUMN_GAP: Final = 28
 MAX_JOINT_STEPS: Final = 12  # more joints than this are drawn one step per kind
+# Drawing guard, not a limit tolerance: the axis ticks are stepped by float addition, so
+# the top tick may land a hair above the top and must still be drawn.
+TICK_SLACK_DB: Final = 1e-9
 
 # Line styles per wavelength, in order: (stroke colour, dash pattern). The dash differs
 # for each, so the lines stay apart in grayscale.
@@ -142,7 +145,7 @@ class _Canvas:
 def _axes(canvas: _Canvas, step_db: float) -> None:
     tick = 0.0
     rules: list[str] = []
-    while tick <= canvas.top_db + 1e-9:
+    while tick <= canvas.top_db + TICK_SLACK_DB:
         y = canvas.y(tick)
         rules.append(f"M{PLOT_LEFT},{y}H{PLOT_RIGHT}")
         canvas.text(PLOT_LEFT - 4, y + 3, f"{tick:g}", "tick", "end")

@@ -8,7 +8,7 @@ Readable in grayscale: lines differ by dash pattern and marker shape, not colour
 
 How the loss is split over the parts: each part (end connections, fiber, connections
 between the ends, splices, catalog components) drops in proportion to its share of the
-loss budget (:func:`reportgen.engine.budget.link_budget`); the drops add up to the worst or
+loss budget (the engine's :class:`reportgen.engine.budget.Budget`); the drops add up to the worst or
 least loss of the power budget, so the end points are exact and the steps schematic.
 A recommended attenuator is drawn as a last step before the receiver.
 
@@ -25,6 +25,10 @@ from xml.sax.saxutils import escape
 
 from reportgen.engine.budget import Budget, TermKind
 from reportgen.engine.power import PowerBudget
+
+# Drawing guard, not a limit tolerance: the axis ticks are stepped by float subtraction,
+# so the bottom tick may land a hair below the bottom and must still be drawn.
+TICK_SLACK_DB: Final = 1e-9
 
 LABELS: Final[dict[str, str]] = {
     "title": "Optical power level, {wavelength} nm ({basis})",
@@ -182,7 +186,7 @@ def power_level_svg(
     # axis with ticks
     out.append(f'<line x1="{left}" y1="{top}" x2="{left}" y2="{top + plot_h}" stroke="#000"/>')
     level = y_top
-    while level >= y_bottom - 1e-9:
+    while level >= y_bottom - TICK_SLACK_DB:
         out.append(f'<line x1="{left - 4}" y1="{y(level)}" x2="{left}" y2="{y(level)}" '
                    f'stroke="#000"/><text x="{left - 6}" y="{y(level) + 3}" text-anchor="end">'
                    f"{_fmt(level, 0)}</text>")

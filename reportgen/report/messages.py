@@ -9,7 +9,12 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from types import MappingProxyType
-from typing import Final
+from typing import TYPE_CHECKING, Final
+
+from reportgen.model import ReasonKind
+
+if TYPE_CHECKING:
+    from reportgen.engine.applications import Reason
 
 from reportgen import units
 
@@ -228,6 +233,13 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "apps_all_met": "every check met",
     "apps_capable_label": "Supported as measured (every application in the table):",
     "apps_capable_none": "none of the table\u2019s applications",
+    # why an application is not supported (or untested) on a link, by reason kind
+    # (reportgen.model.ReasonKind); see reason_text for the fields
+    "reason_fiber-type-not-specified": "fiber type {fiber_type} not specified for {application}",
+    "reason_too-long": "too long: {value} m documented, {limit} m allowed on {fiber_type}",
+    "reason_too-much-loss": "too much loss at {wavelength_nm} nm: {value} dB measured, {limit} dB allowed",
+    "reason_too-little-loss": "too little loss at {wavelength_nm} nm: {value} dB measured, class minimum {limit} dB",
+    "reason_untested": "untested at {wavelength_nm} nm: no judged result",
     "power_heading": "Transceiver power budget",
     "field_basis": "Loss basis",
     "basis_measured": "measured \u2013 the lowest and highest judged loss of this link at {wavelength} nm, over every strand and direction",
@@ -425,6 +437,20 @@ SAFETY: Final[tuple[str, ...]] = (
 def msg(key: str, /, **values: object) -> str:
     """The catalogue text ``key`` with its ``{placeholders}`` filled in."""
     return TEXT[key].format(**values)
+
+
+def reason_text(reason: Reason) -> str:
+    """Words for why an application is not supported (or untested) on a link.
+
+    Fields: application, fiber_type, wavelength_nm, value and limit (whole metres for
+    a length, two decimals for a loss in dB). summary.json carries the same text.
+    """
+    number = "{:.0f}".format if reason.kind is ReasonKind.TOO_LONG else units.format_db
+    return TEXT[f"reason_{reason.kind.value}"].format(
+        application=reason.application, fiber_type=reason.fiber_type,
+        wavelength_nm=reason.wavelength_nm,
+        value=None if reason.value is None else number(reason.value),
+        limit=None if reason.limit is None else number(reason.limit))
 
 
 # Number formats: every number the report prints goes through one of these (the

@@ -42,7 +42,6 @@ from reportgen.report import diagrams
 
 from reportgen.report import messages
 from reportgen.engine.applications import ProjectApplications
-from reportgen.engine.budget import link_budget
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
 from reportgen.model import Project
@@ -237,24 +236,22 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
     return entries
 
 
-def power_diagrams(project: Project, view: ReportView,
+def power_diagrams(project: Project, judgement: Judgement, view: ReportView,
                    assessed: ProjectApplications | None) -> dict[str, Markup]:
     """The power level diagram (inline SVG) of every link with a power budget, by anchor.
 
-    The steps follow the link's loss budget at the wavelength whose losses were used;
-    without a budget there (wavelength not in the limit set) the link is one step.
+    The steps follow the link's loss budget (the engine's, ``judgement.budget_table``) at
+    the wavelength whose losses were used; without a budget there (wavelength not in the
+    limit set) the link is one step.
     """
     if assessed is None:
         return {}
     out: dict[str, Markup] = {}
-    limits, method = project.limits, project.testing.reference_method
     for link, link_view in zip(project.links, view.links):
         power = assessed.power.get(link.link_id)
         if power is None:
             continue
-        budget = None
-        if power.wavelength_nm in limits.wavelengths_nm(link.fiber_type, link.plant):
-            budget = link_budget(link, power.wavelength_nm, limits, method, project.components)
+        budget = judgement.budget_table.get(link.link_id, power.wavelength_nm)
         out[link_view.anchor] = Markup(power_level_svg(power, level_steps(budget)))
     return out
 
@@ -331,7 +328,7 @@ def build_report(
     """
     view = build_view(project, judgement, now=now, version=version, assessed=applications)
     env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, power_diagrams(project, view, applications))
+    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications))
     makers: list[Callable[[], str]] = [
         functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
         for index, chunk in enumerate(chunk_links(view.links))]

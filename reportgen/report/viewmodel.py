@@ -21,11 +21,12 @@ import pandas as pd
 
 from reportgen.engine.applications import ProjectApplications
 from reportgen.inputs.apptable import describe_rows as describe_application_rows
-from reportgen.engine.budget import Budget, link_budget
+from reportgen.engine.budget import Budget
 from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
 from reportgen.inputs.limits import describe_rows
 from reportgen.model import Instrument, Link, LinkVerdict, Logo, Project, ResultVerdict
 from reportgen.engine.power import PowerBudget
+from reportgen.report import messages
 
 # Up to this many links the applications matrix and power list sit in the front matter,
 # after the link register; above it they form their own part before the appendix (the
@@ -65,6 +66,7 @@ class ResultView:
     limit_db: float | None
     margin_db: float | None
     verdict: str  # ResultVerdict value
+    judged: bool  # the engine's judged: the latest valid measurement of its key
     flags: tuple[str, ...]  # ResultFlag values
     technician: str
     instruments: tuple[str, ...]
@@ -159,7 +161,7 @@ class ApplicationView:
     worst_loss_db: float | None  # highest judged loss at the needed wavelengths
     least_loss_db: float | None
     max_length_m: float | None
-    reasons: tuple[str, ...]  # Reason.text() of each reason
+    reasons: tuple[str, ...]  # messages.reason_text of each reason
 
 
 @dataclass(frozen=True)
@@ -319,14 +321,14 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
     if frame.empty:
         return by_link
     columns = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "limit_db",
-               "margin_db", "verdict", "flags", "technician", "instrument", "tested_at",
+               "margin_db", "verdict", "judged", "flags", "technician", "instrument", "tested_at",
                "source_file", "source_line", "note"]
     for row in frame[columns].itertuples(index=False):
         by_link.setdefault(row.link_id, []).append(ResultView(
             strand=int(row.strand), wavelength_nm=int(row.wavelength_nm),
             direction=str(row.direction), loss_db=float(row.loss_db),
             limit_db=_float_or_none(row.limit_db), margin_db=_float_or_none(row.margin_db),
-            verdict=str(row.verdict), flags=tuple(row.flags), technician=_text(row.technician),
+            verdict=str(row.verdict), judged=bool(row.judged), flags=tuple(row.flags), technician=_text(row.technician),
             instruments=tuple(row.instrument), tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
             source_file=str(row.source_file), source_line=int(row.source_line),
             note=_text(row.note),
@@ -346,25 +348,25 @@ def _budget_view(budget: Budget, required: bool) -> BudgetView:
     return BudgetView(budget.wavelength_nm, terms, budget.total_db, required)
 
 
-def _link_budgets(project: Project, link: Link, measured_nm: Iterable[int]) -> tuple[BudgetView, ...]:
+def _link_budgets(project: Project, judgement: Judgement, link: Link,
+                  measured_nm: Iterable[int]) -> tuple[BudgetView, ...]:
+    """The engine's budgets of ``link`` at the required and the measured wavelengths."""
     required = set(project.testing.wavelengths_nm.get(link.fiber_type.category, ()))
-    defined = set(project.limits.wavelengths_nm(link.fiber_type, link.plant))
-    wanted = sorted((required | set(measured_nm)) & defined)
-    return tuple(_budget_view(link_budget(link, wl, project.limits,
-                                          project.testing.reference_method, project.components),
-                              wl in required) for wl in wanted)
+    wanted = required | set(measured_nm)
+    return tuple(_budget_view(budget, budget.wavelength_nm in required)
+                 for budget in judgement.budget_table.for_link(link.link_id)
+                 if budget.wavelength_nm in wanted)
 
 
 def _sort_key(result: ResultView) -> tuple:
     return (result.strand, result.wavelength_nm, result.direction, result.tested_at)
 
 
-def build_link_view(project: Project, link: Link, outcome: LinkOutcome, anchor: str,
-                    rows: list[ResultView]) -> LinkView:
+def build_link_view(project: Project, judgement: Judgement, link: Link, outcome: LinkOutcome,
+                    anchor: str, rows: list[ResultView]) -> LinkView:
     """The view of one link: definition, budgets, results, what is missing."""
-    judged_verdicts = {ResultVerdict.PASS.value, ResultVerdict.FAIL.value}
-    judged = tuple(sorted((r for r in rows if r.verdict in judged_verdicts), key=_sort_key))
-    set_aside = tuple(sorted((r for r in rows if r.verdict not in judged_verdicts), key=_sort_key))
+    judged = tuple(sorted((r for r in rows if r.judged), key=_sort_key))
+    set_aside = tuple(sorted((r for r in rows if not r.judged), key=_sort_key))
     components = tuple(
         ComponentView(c, project.components[c].loss_db, project.components[c].description or "")
         for c in link.components if c in project.components)
@@ -376,7 +378,7 @@ def build_link_view(project: Project, link: Link, outcome: LinkOutcome, anchor: 
         transceiver=link.transceiver or "", notes=link.notes or "",
         verdict=outcome.verdict.value, worst_margin_db=outcome.worst_margin_db,
         judged=outcome.judged,
-        budgets=_link_budgets(project, link, {r.wavelength_nm for r in judged}),
+        budgets=_link_budgets(project, judgement, link, {r.wavelength_nm for r in judged}),
         results=judged, set_aside=set_aside,
         missing=tuple(MissingView(m.strand, m.wavelength_nm, m.direction, m.reason)
                       for m in outcome.missing),
@@ -457,7 +459,8 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
                 wavelengths_nm=table.get(a.id).test_wavelengths_nm,
                 max_loss_db=a.max_loss_db, min_loss_db=a.min_loss_db,
                 worst_loss_db=a.worst_loss_db, least_loss_db=a.least_loss_db,
-                max_length_m=a.max_length_m, reasons=tuple(r.text() for r in a.reasons))
+                max_length_m=a.max_length_m,
+                reasons=tuple(messages.reason_text(r) for r in a.reasons))
                 for a in found.assessments),
             capable=found.capable, power=power)
         if power is not None:
@@ -498,7 +501,8 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
     rows_by_link = _result_views(frame)
     anchors = link_anchors(link.link_id for link in project.links)
     outcomes = {outcome.link_id: outcome for outcome in judgement.links}
-    links = tuple(build_link_view(project, link, outcomes[link.link_id], anchors[link.link_id],
+    links = tuple(build_link_view(project, judgement, link, outcomes[link.link_id],
+                                  anchors[link.link_id],
                                   rows_by_link.get(link.link_id, []))
                   for link in project.links)
     needs_action = (tuple(v for v in links if v.verdict == LinkVerdict.FAIL.value)
