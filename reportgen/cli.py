@@ -8,8 +8,11 @@ from __future__ import annotations
 
 import logging
 import sys
+import traceback
 from collections.abc import Sequence
+from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import click
 from rich.console import Console
@@ -30,6 +33,8 @@ Examples:
 
 Exit status: 0 done, 1 (check) a link fails or is incomplete,
 2 bad input or any other error (nothing is written).
+
+-v and --debug go before or after the command.
 """
 
 
@@ -48,16 +53,68 @@ def _stdout() -> Console:
     return Console(highlight=False)
 
 
-@click.group(epilog=EPILOG, context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(__version__, prog_name="reportgen", message="%(prog)s %(version)s")
-@click.option("-v", "--verbose", is_flag=True, help="Show each pipeline step.")
-@click.option("--debug", is_flag=True, help="Show a traceback on internal errors.")
-@click.pass_context
-def cli(ctx: click.Context, verbose: bool, debug: bool) -> None:
-    """Judge fiber-optic link test results against a loss budget and publish a report."""
-    logging.basicConfig(level=logging.INFO if verbose else logging.WARNING,
+@dataclass
+class _Settings:
+    """What -v and --debug asked for, wherever on the command line they were given."""
+
+    verbose: bool = False
+    debug: bool = False
+
+
+def _configure_logging(settings: _Settings) -> None:
+    """-v: our steps (INFO of the ``reportgen`` loggers); --debug: every log line.
+
+    Other libraries' loggers (WeasyPrint, fontTools, ...) inherit the root level, which
+    stays at WARNING unless --debug, so -v shows our lines only.
+    """
+    logging.basicConfig(level=logging.DEBUG if settings.debug else logging.WARNING,
                         format="%(message)s", stream=sys.stderr, force=True)
-    ctx.obj = {"debug": debug}
+    ours = logging.DEBUG if settings.debug else logging.INFO if settings.verbose else logging.NOTSET
+    logging.getLogger("reportgen").setLevel(ours)
+
+
+def _set_flag(ctx: click.Context, param: click.Parameter, value: bool) -> None:
+    if value and param.name is not None:
+        settings = ctx.ensure_object(_Settings)
+        setattr(settings, param.name, True)
+        _configure_logging(settings)
+
+
+def _flag_options() -> list[click.Option]:
+    """-v and --debug, accepted by the group and by every command (before or after it)."""
+    return [
+        click.Option(["-v", "--verbose"], is_flag=True, expose_value=False, callback=_set_flag,
+                     help="Show each step of the run."),
+        click.Option(["--debug"], is_flag=True, expose_value=False, callback=_set_flag,
+                     help="Show tracebacks (internal errors, failing PDF workers) and the "
+                          "libraries' log lines too."),
+    ]
+
+
+class _Command(click.Command):
+    """A command that takes -v/--debug and lists its whole first paragraph in --help."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        self.params.extend(_flag_options())
+
+    def get_short_help_str(self, limit: int = 45) -> str:
+        if self.short_help:
+            return super().get_short_help_str(limit)
+        return " ".join((self.help or "").split("\n\n")[0].split())
+
+
+class _Group(click.Group):
+    command_class = _Command
+
+
+@click.group(cls=_Group, epilog=EPILOG, params=_flag_options(),
+             context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="reportgen", message="%(prog)s %(version)s")
+@click.pass_context
+def cli(ctx: click.Context) -> None:
+    """Judge fiber-optic link test results against a loss budget and publish a report."""
+    _configure_logging(ctx.ensure_object(_Settings))
 
 
 PROJECT = click.argument("project", type=click.Path(path_type=Path))
@@ -124,10 +181,10 @@ def applications() -> None:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status instead of exiting."""
-    debug = "--debug" in (argv if argv is not None else sys.argv[1:])
+    settings = _Settings()
     try:
         status = cli.main(args=list(argv) if argv is not None else None,
-                          prog_name="reportgen", standalone_mode=False)
+                          prog_name="reportgen", standalone_mode=False, obj=settings)
     except _Failure as failure:
         return failure.status
     except click.exceptions.Exit as done:
@@ -150,15 +207,22 @@ def main(argv: Sequence[str] | None = None) -> int:
             console.print(f"{len(problems)} problem(s) found; nothing was written", markup=False)
         return 2
     except ReportgenError as error:
-        _stderr().print(f"error: {error}", markup=False)
+        hint = " (run with --debug for the traceback)" if error.__cause__ is not None else ""
+        _report(error, f"error: {error}", hint, settings.debug)
         return 2
     except Exception as error:  # still exit 2 with a message, never a bare traceback
-        if debug:
-            raise
-        _stderr().print(f"error: internal failure: {error!r} (run with --debug for details)",
-                        markup=False)
+        _report(error, f"error: internal failure: {error!r}", " (run with --debug for details)",
+                settings.debug)
         return 2
     return status if isinstance(status, int) else 0
+
+
+def _report(error: BaseException, line: str, hint: str, debug: bool) -> None:
+    """One line on standard error; with --debug the traceback (and its causes) before it."""
+    if debug:
+        sys.stderr.write("".join(traceback.format_exception(error)))
+        hint = ""
+    _stderr().print(line + hint, markup=False)
 
 
 def run() -> int:

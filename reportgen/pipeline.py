@@ -52,7 +52,7 @@ class BuildResult:
 
 
 def validate_only(project_dir: Path) -> Project:
-    """Step 1–2: read and validate the project folder (raises InputError)."""
+    """Step 1: read and validate the project folder (raises InputError)."""
     project_dir = Path(project_dir)
     if not project_dir.is_dir():
         raise InputError([InputProblem(str(project_dir), None, None,
@@ -63,8 +63,8 @@ def validate_only(project_dir: Path) -> Project:
 
 
 def compute(project: Project) -> Outcome:
-    """Step 3: judge every result, then assess applications and power budgets."""
-    log.info("Step 3: judging %d results of %d links", len(project.results), len(project.links))
+    """Steps 2 and 3: judge every result, then assess applications and power budgets."""
+    log.info("Step 2: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
     log.info("Step 3: assessing applications and transceiver power budgets")
     return Outcome(project, judgement, assess_project(project, judgement))
@@ -126,6 +126,7 @@ def build(
         outputs = render_report(outcome, now=now, version=version, progress=progress,
                                 alongside=data_outputs)
     else:
+        log.info("Step 4: no HTML/PDF report (data only)")
         outputs = data_outputs()
     log.info("Step 5: writing %s", ", ".join(outputs))
     write_outputs(out_dir, outputs)

@@ -1,9 +1,18 @@
-"""Builders of in-memory model objects for engine tests (no files involved)."""
+"""Helpers shared by the tests: in-memory model objects for engine tests, a large project
+folder on disk, and checkers of what the tests read back (folder digests, HTML tag balance,
+page numbers printed in a PDF). Test modules import helpers from here (or fixtures from
+conftest.py), never from one another or from benchmarks/."""
 from __future__ import annotations
 
+import hashlib
+import os
+import re
+import xml.etree.ElementTree as ET
+from html.parser import HTMLParser
 from pathlib import Path
 
 import pandas as pd
+import pypdf
 
 from reportgen.inputs.apptable import load_applications
 from reportgen.model import (
@@ -88,4 +97,107 @@ def make_project(links, results, *, limits=TEST_LIMITS, method=ReferenceMethod.O
     )
 
 
-__all__ = ["TEST_LIMITS", "make_link", "make_results", "make_project", "Plant"]
+
+def write_large_project(root: Path, links: int) -> Path:
+    """A valid project folder of ``links`` OM4 links with every required result passing:
+    2 strands x 850/1300 nm x both directions = 8 results per link (12,500 links = 100,000
+    results), split over two results files. Invented data, for size tests only."""
+    root.mkdir(parents=True)
+    (root / "project.yaml").write_text(
+        "project:\n  title: Large test project\n  contractor: {name: Test Cabling}\n"
+        "testing:\n  limits: tia-568.3-d\n  reference_method: one-cord\n  directions: both\n"
+        "instruments:\n  - {id: SRC-1, kind: light-source}\n", encoding="utf-8")
+    ids = [f"L{index:05d}" for index in range(1, links + 1)]
+    (root / "links.csv").write_text(
+        "link_id,end_a,end_b,fiber_type,length_m,strands\n"
+        + "".join(f"{link_id},Room 1,Room 2,OM4,100,2\n" for link_id in ids), encoding="utf-8")
+    (root / "results").mkdir()
+    header = "link_id,strand,wavelength_nm,direction,loss_db,tested_at,instrument\n"
+    for day, half in enumerate((ids[: links // 2], ids[links // 2:]), start=1):
+        rows = [f"{link_id},{strand},{wavelength},{direction},1.00,2030-01-1{day}T09:00,SRC-1\n"
+                for link_id in half for strand in (1, 2) for wavelength in (850, 1300)
+                for direction in ("ab", "ba")]
+        (root / "results" / f"day{day}.csv").write_text(header + "".join(rows), encoding="utf-8")
+    return root
+
+
+def tree_digest(root: Path) -> str:
+    """Names, kinds, contents and modification times of everything under ``root``."""
+    digest = hashlib.sha256()
+    for path in sorted(root.rglob("*")):
+        digest.update(path.relative_to(root).as_posix().encode() + b"\0")
+        if path.is_symlink():
+            digest.update(b"link:" + os.readlink(path).encode())
+        elif path.is_file():
+            digest.update(path.read_bytes())
+            digest.update(str(path.stat().st_mtime_ns).encode())
+    return digest.hexdigest()
+
+
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
+        "track", "wbr"}
+
+
+class _TagBalance(HTMLParser):
+    """Fails on a closing tag that does not match the open one (SVG self-closing allowed)."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.ids: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.ids += [value for name, value in attrs if name == "id"]
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.ids += [value for name, value in attrs if name == "id"]
+
+    def handle_endtag(self, tag):
+        assert self.stack and self.stack[-1] == tag, f"</{tag}> closes <{self.stack[-1:]}>"
+        self.stack.pop()
+
+
+def well_formed(html: str) -> list[str]:
+    """Parse; check tag balance; every inline SVG parses as XML. Returns the element ids."""
+    parser = _TagBalance()
+    parser.feed(html)
+    parser.close()
+    assert parser.stack == []
+    for svg in re.findall(r"<svg\b.*?</svg>", html, flags=re.S):
+        ET.fromstring(svg)
+    return parser.ids
+
+
+def printed_page_refs(reader: pypdf.PdfReader, page_index: int) -> list[tuple[str, int]]:
+    """(number printed inside a link's rectangle, 1-based page the link leads to) per link.
+
+    Text positions come from pypdf's content-stream visitor; a number counts as inside
+    a link when its start point lies in the link rectangle (1 pt of slack).
+    """
+    runs: list[tuple[str, float, float]] = []
+
+    def visit(text, cm, tm, font, size):
+        if text.strip():
+            x = tm[4] * cm[0] + tm[5] * cm[2] + cm[4]
+            y = tm[4] * cm[1] + tm[5] * cm[3] + cm[5]
+            runs.append((text.strip(), x, y))
+
+    page = reader.pages[page_index]
+    page.extract_text(visitor_text=visit)
+    found = []
+    for annotation in page.get("/Annots", []):
+        annotation = annotation.get_object()
+        if annotation["/Subtype"] != "/Link" or "/Dest" not in annotation:
+            continue
+        x1, y1, x2, y2 = (float(value) for value in annotation["/Rect"])
+        inside = [text for text, x, y in runs
+                  if x1 - 1 <= x <= x2 + 1 and y1 - 1 <= y <= y2 + 1 and text.isdigit()]
+        if inside:
+            target = reader.get_page_number(annotation["/Dest"][0].get_object()) + 1
+            found.append(("".join(inside), target))
+    return found
+
+__all__ = ["TEST_LIMITS", "make_link", "make_results", "make_project", "Plant",
+           "write_large_project", "tree_digest", "well_formed", "printed_page_refs"]

@@ -1,10 +1,56 @@
-"""Shared fixtures for the test suite."""
+"""Shared fixtures for the test suite, and the --update-golden option."""
 from __future__ import annotations
 
+import difflib
 from collections.abc import Callable
 from pathlib import Path
 
 import pytest
+
+GOLDEN_DIR = Path(__file__).resolve().parent / "golden"
+UPDATE_GOLDEN = "python -m pytest -q tests/test_golden.py --update-golden"
+
+
+def pytest_addoption(parser: pytest.Parser) -> None:
+    parser.addoption("--update-golden", action="store_true", default=False,
+                     help="rewrite the golden files in tests/golden/ from the current output "
+                          "instead of comparing with them; review the diff before committing")
+
+
+@pytest.fixture
+def golden(request: pytest.FixtureRequest) -> Callable[[str, str], None]:
+    """``golden(name, text)``: ``text`` must equal the reviewed file tests/golden/<name>.
+
+    With ``--update-golden`` the file is rewritten from ``text`` instead; a difference
+    fails the test with a unified diff (reviewed file first, then the current output).
+    """
+    update = request.config.getoption("--update-golden")
+
+    def check(name: str, text: str) -> None:
+        path = GOLDEN_DIR / name
+        if update:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(text.encode("utf-8"))
+            return
+        if not path.exists():
+            pytest.fail(f"tests/golden/{name} does not exist; create it with: {UPDATE_GOLDEN}",
+                        pytrace=False)
+        expected = path.read_bytes().decode("utf-8")
+        if text != expected:
+            diff = "".join(difflib.unified_diff(
+                _tag_lines(expected), _tag_lines(text),
+                fromfile=f"tests/golden/{name} (reviewed)", tofile=f"{name} (rendered now)"))
+            pytest.fail(f"the output differs from tests/golden/{name} (diff with a line break "
+                        f"between adjacent tags, for reading):\n{diff}\n"
+                        f"If the change is intended, rewrite the file ({UPDATE_GOLDEN}), "
+                        f"review `git diff tests/golden/` and commit it.", pytrace=False)
+
+    return check
+
+
+def _tag_lines(text: str) -> list[str]:
+    """Lines to diff: a link sheet is one long line of HTML, so break between tags too."""
+    return text.replace("><", ">\n<").splitlines(keepends=True)
 
 # A minimal valid project folder (invented data, for tests only). Files given to
 # make_project() replace these or are added beside them; None removes one.

@@ -4,9 +4,11 @@ from __future__ import annotations
 import csv
 import hashlib
 import json
+import logging
 import os
 import subprocess
 import sys
+from datetime import datetime, timezone
 from pathlib import Path
 
 import pypdf
@@ -14,8 +16,9 @@ import pytest
 
 from reportgen import __version__
 
-from reportgen import cli
-from test_pdf import printed_page_refs
+from reportgen import cli, pipeline
+from reportgen.pdf.engine import render_pdf
+from tests.builders import printed_page_refs
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "demo_project"
@@ -81,6 +84,7 @@ def test_demo_pdf_and_html_name_every_link_and_verdict(demo_build):
     assert f"Page 1 of {len(reader.pages)}" in (reader.pages[0].extract_text() or "")
 
 
+@pytest.mark.slow
 def test_demo_front_page_numbers_are_the_pages_their_links_lead_to(demo_build):
     reader = pypdf.PdfReader(demo_build / "report.pdf")
     summary = json.loads((demo_build / "summary.json").read_text(encoding="utf-8"))
@@ -138,6 +142,84 @@ def test_data_only_build_and_default_output_folder(make_project):
     assert cli.main(["build", str(project), "--data-only"]) == 0
 
 
+def test_data_only_build_removes_an_earlier_report_beside_it(make_project, tmp_path):
+    """README "Usage": --data-only removes report.html/report.pdf of an earlier build in the
+    output folder, so no stale report sits beside the new data; other files stay."""
+    out = tmp_path / "out"
+    out.mkdir()
+    for name in ("report.html", "report.pdf", "notes.txt"):
+        (out / name).write_text("from an earlier build", encoding="utf-8")
+    assert cli.main(["build", str(make_project()), "-o", str(out), "--data-only"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["notes.txt", "results.csv", "summary.json"]
+
+
+@pytest.fixture
+def restore_logging():
+    """main() configures logging for the whole process (as a command line run does)."""
+    yield
+    cli._configure_logging(cli._Settings())
+
+
+STEPS = ["Step 1: reading and validating", "Step 2: judging", "Step 3: assessing",
+         "Step 4: no HTML/PDF report", "Step 5: writing"]
+
+
+@pytest.mark.parametrize("where", ["before", "after"])
+def test_verbose_before_or_after_the_command_shows_our_steps_once_in_order(
+        make_project, tmp_path, capsys, restore_logging, where):
+    build = ["build", str(make_project()), "-o", str(tmp_path / "out"), "--data-only"]
+    argv = ["-v", *build] if where == "before" else [*build, "-v"]
+    assert cli.main(argv) == 0
+    lines = capsys.readouterr().err.splitlines()
+    assert len(lines) == len(STEPS)
+    assert all(line.startswith(step) for line, step in zip(lines, STEPS))
+    # the libraries' own log lines (WeasyPrint's progress, fontTools' subsetting) stay out
+    logging.getLogger("weasyprint.progress").info("Step 2 - Fetching and parsing CSS")
+    logging.getLogger("fontTools.subset").info("maxp pruned")
+    assert capsys.readouterr().err == ""
+
+
+def test_debug_also_shows_the_libraries_log_lines(make_project, capsys, restore_logging):
+    assert cli.main(["check", "--debug", str(make_project())]) == 1
+    assert capsys.readouterr().err.startswith("Step 1: reading and validating")
+    logging.getLogger("fontTools.subset").info("maxp pruned")
+    assert capsys.readouterr().err == "maxp pruned\n"
+
+
+@pytest.mark.parametrize("debug", [False, True])
+def test_a_failing_pdf_worker_is_one_line_or_with_debug_its_traceback(
+        make_project, tmp_path, capsys, monkeypatch, restore_logging, debug):
+    def failing_report(outcome, **kwargs):
+        # a body part that is not a document: the worker process raises TypeError
+        return {"report.pdf": render_pdf(lambda page_of, total: "<p>front</p>", [None],
+                                         root=tmp_path, title="t",
+                                         created=datetime(2030, 1, 1, tzinfo=timezone.utc))}
+
+    monkeypatch.setattr(pipeline, "render_report", failing_report)
+    out = tmp_path / "out"
+    argv = ["build", str(make_project()), "-o", str(out), *(["--debug"] if debug else [])]
+    assert cli.main(argv) == 2
+    lines = capsys.readouterr().err.splitlines()
+    error_lines = [line for line in lines if line.startswith("error: ")]
+    assert len(error_lines) == 1
+    assert error_lines[0].startswith("error: rendering body part 1 of the PDF failed: TypeError")
+    assert not out.exists()
+    if debug:
+        # the worker's own traceback, down to the frame that raised in the worker process
+        assert "in _part_process" in "\n".join(lines) and lines[-1] == error_lines[0]
+    else:
+        assert lines == error_lines
+        assert lines[0].endswith("(run with --debug for the traceback)")
+
+
+def test_help_lists_every_command_with_its_whole_description(capsys):
+    assert cli.main(["--help"]) == 0
+    listing = " ".join(capsys.readouterr().out.split())
+    for name, command in cli.cli.commands.items():
+        description = " ".join(command.help.split("\n\n")[0].split())
+        assert f"{name} {description}" in listing
+
+
 def test_limits_and_applications_listings(capsys):
     assert cli.main(["limits"]) == 0
     out = capsys.readouterr().out
@@ -159,12 +241,13 @@ def test_version_help_and_usage_errors(capsys):
     assert cli.main(["check"]) == 2
 
 
+@pytest.mark.slow
 def test_installed_package_runs_from_another_folder(tmp_path):
     """The wheel ships templates and data: run the installed package outside the checkout."""
     probe = subprocess.run([sys.executable, "-c", "import reportgen, sys; print(reportgen.__file__)"],
                            cwd=tmp_path, capture_output=True, text=True)
     location = probe.stdout.strip()
-    if probe.returncode != 0 or Path(location).resolve().is_relative_to(ROOT):
+    if probe.returncode != 0 or Path(location).resolve().parent == ROOT / "reportgen":
         pytest.skip("reportgen is not installed outside the checkout (run pip install . first)")
     out = tmp_path / "out"
     env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}

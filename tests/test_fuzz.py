@@ -22,7 +22,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from reportgen.cli import main
-from tests.test_hardening import tree_digest
+from tests.builders import tree_digest
 
 BASE: dict[str, str] = {
     "project.yaml": (
@@ -231,7 +231,21 @@ def fuzz(examples: int) -> settings:
 
 
 def test_base_project_builds():
-    check_and_build(dict(BASE))
+    """The unmutated project must be accepted: the mutations start from a valid project."""
+    with tempfile.TemporaryDirectory() as temp:
+        root = Path(temp) / "project"
+        for name, content in BASE.items():
+            path = root / name
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_text(content, encoding="utf-8")
+        # directions: both and 2 strands: L1 needs 8 results (has 3), L2 needs 1310 and
+        # 1550 nm both ways (has 2, one of them a negative loss, invalid): both incomplete,
+        # so check exits 1 (the exit status of check, README "Usage").
+        assert _run(["check", str(root)]) == (1, "")
+        out = Path(temp) / "out"
+        assert _run(["build", str(root), "-o", str(out), "--data-only"]) == (0, "")
+        summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+        assert summary["totals"] == {"links": 2, "pass": 0, "fail": 0, "incomplete": 2}
 
 
 @fuzz(50)

@@ -7,9 +7,8 @@ are marked "fuzz".
 """
 from __future__ import annotations
 
-import hashlib
 import os
-import time
+import sys
 from pathlib import Path
 
 import pytest
@@ -18,6 +17,7 @@ from reportgen import pipeline
 from reportgen.cli import MAX_PROBLEMS_SHOWN, main
 from reportgen.errors import InputError, ReportgenError
 from reportgen.inputs.project import load_project
+from tests.builders import tree_digest, write_large_project
 from tests.conftest import MINIMAL_PROJECT
 
 Y = MINIMAL_PROJECT["project.yaml"]
@@ -33,19 +33,6 @@ def problems_of(project_dir: Path) -> list[str]:
     with pytest.raises(InputError) as caught:
         load_project(project_dir)
     return [str(problem) for problem in caught.value.problems]
-
-
-def tree_digest(root: Path) -> str:
-    """Names, kinds, contents and modification times of everything under ``root``."""
-    digest = hashlib.sha256()
-    for path in sorted(root.rglob("*")):
-        digest.update(path.relative_to(root).as_posix().encode() + b"\0")
-        if path.is_symlink():
-            digest.update(b"link:" + os.readlink(path).encode())
-        elif path.is_file():
-            digest.update(path.read_bytes())
-            digest.update(str(path.stat().st_mtime_ns).encode())
-    return digest.hexdigest()
 
 
 # --- bad input the loader's own tests did not cover yet ------------------------------------
@@ -345,13 +332,29 @@ def test_data_only_build_leaves_the_project_folder_alone(make_project, tmp_path,
 
 # --- large input --------------------------------------------------------------------------
 
+_OPENED: list[str] | None = None  # while a list, every file Python opens is appended to it
+
+
+def _record_open(event: str, args: tuple) -> None:
+    if event == "open" and _OPENED is not None and isinstance(args[0], (str, bytes, os.PathLike)):
+        _OPENED.append(os.fsdecode(args[0]))
+
+
 def test_one_gigabyte_results_file_is_refused_without_reading(make_project, tmp_path, capsys):
+    global _OPENED
     project_dir = make_project()
-    with (project_dir / "results" / "huge.csv").open("wb") as handle:
+    huge = project_dir / "results" / "huge.csv"
+    with huge.open("wb") as handle:
         handle.truncate(2**30)  # sparse: no disk space; reading it would take a second or more
-    started = time.process_time()
-    assert main(["build", str(project_dir), "-o", str(tmp_path / "out"), "--data-only"]) == 2
-    assert time.process_time() - started < 5  # generous: refusing it must not read 1 GB
+    sys.addaudithook(_record_open)  # PEP 578: open() raises an "open" event with the path
+    _OPENED = []
+    try:
+        assert main(["build", str(project_dir), "-o", str(tmp_path / "out"), "--data-only"]) == 2
+        opened = _OPENED
+    finally:
+        _OPENED = None
+    assert (project_dir / "results" / "day1.csv").as_posix() in opened  # the hook sees reads
+    assert huge.as_posix() not in opened  # refused from its size, never opened
     assert capsys.readouterr().err.splitlines()[0] == (
         "error: results/huge.csv: expected a file of at most 256 MB; this file is 1024 MB")
     assert not (tmp_path / "out").exists()
@@ -372,9 +375,7 @@ def test_twenty_megabyte_results_file_loads(make_project):
 
 @pytest.mark.slow
 def test_one_hundred_thousand_results_validate(tmp_path):
-    from benchmarks.make_synthetic import make_project as make_synthetic
-
-    project_dir = make_synthetic(tmp_path / "big", links=12_500)
+    project_dir = write_large_project(tmp_path / "big", links=12_500)
     project = pipeline.validate_only(project_dir)
     assert (len(project.links), len(project.results)) == (12_500, 100_000)
 

@@ -26,9 +26,8 @@ from pathlib import Path
 
 import pytest
 
-from benchmarks.make_synthetic import make_project as make_synthetic
 from reportgen.export.atomic import OUTPUT_NAMES, TEMP_PREFIX
-from tests.test_hardening import tree_digest
+from tests.builders import tree_digest, write_large_project
 
 REPO = Path(__file__).resolve().parent.parent
 FIRST_EPOCH = "1893456000"  # 2030-01-01T00:00:00Z
@@ -123,7 +122,7 @@ def summary_is_new(out: Path) -> bool:
 
 @pytest.mark.slow
 def test_killed_data_build_keeps_previous_outputs(tmp_path):
-    project = make_synthetic(tmp_path / "project", links=1500)  # 12,000 results
+    project = write_large_project(tmp_path / "project", links=1500)  # 12,000 results
     killed = _kill_at_moments(project, tmp_path / "out", [0.15, 0.5, 0.8, 0.95], data_only=True)
     assert killed >= 2  # at least the early kills must land part-way, or the test proves nothing
 
@@ -132,6 +131,6 @@ def test_killed_data_build_keeps_previous_outputs(tmp_path):
 @pytest.mark.skipif(not os.environ.get("REPORTGEN_SLOW_TESTS"),
                     reason="renders a full report three times (about a minute); set REPORTGEN_SLOW_TESTS=1")
 def test_killed_report_build_keeps_previous_outputs(tmp_path):
-    project = make_synthetic(tmp_path / "project", links=12)
+    project = write_large_project(tmp_path / "project", links=12)
     killed = _kill_at_moments(project, tmp_path / "out", [0.2, 0.6, 0.9], data_only=False)
     assert killed >= 2

@@ -19,6 +19,7 @@ from reportgen.errors import ReportgenError
 from reportgen.pdf.engine import PageMap, _receive_part, _settle_front, render_pdf
 from reportgen.pdf.weasy import render_part
 from reportgen.pdf.merge import pdf_date
+from tests.builders import printed_page_refs
 
 CREATED = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
 CSS = """<style>
@@ -120,36 +121,6 @@ def test_links_across_parts_become_goto_annotations_to_the_right_page(
     reader = read(report_pdf)
     assert link_targets(reader, 0) == [1, 4]  # front → alpha-1 (page 2), beta-2 (page 5)
     assert link_targets(reader, 2) == [4]     # alpha part → beta-2 in the next part
-
-
-def printed_page_refs(reader: pypdf.PdfReader, page_index: int) -> list[tuple[str, int]]:
-    """(number printed inside a link's rectangle, 1-based page the link leads to) per link.
-
-    Text positions come from pypdf's content-stream visitor; a number counts as inside
-    a link when its start point lies in the link rectangle (1 pt of slack).
-    """
-    runs: list[tuple[str, float, float]] = []
-
-    def visit(text, cm, tm, font, size):
-        if text.strip():
-            x = tm[4] * cm[0] + tm[5] * cm[2] + cm[4]
-            y = tm[4] * cm[1] + tm[5] * cm[3] + cm[5]
-            runs.append((text.strip(), x, y))
-
-    page = reader.pages[page_index]
-    page.extract_text(visitor_text=visit)
-    found = []
-    for annotation in page.get("/Annots", []):
-        annotation = annotation.get_object()
-        if annotation["/Subtype"] != "/Link" or "/Dest" not in annotation:
-            continue
-        x1, y1, x2, y2 = (float(value) for value in annotation["/Rect"])
-        inside = [text for text, x, y in runs
-                  if x1 - 1 <= x <= x2 + 1 and y1 - 1 <= y <= y2 + 1 and text.isdigit()]
-        if inside:
-            target = reader.get_page_number(annotation["/Dest"][0].get_object()) + 1
-            found.append(("".join(inside), target))
-    return found
 
 
 SLOT_CSS = "<style>a.page-slot { display: inline-block; width: 2.6em; height: 0.7em }</style>"

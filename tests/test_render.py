@@ -2,16 +2,13 @@
 from __future__ import annotations
 
 import dataclasses
-import re
-import xml.etree.ElementTree as ET
 from datetime import datetime
-from html.parser import HTMLParser
 from pathlib import Path
 
 import jinja2
 import pytest
 
-from builders import make_link, make_project
+from builders import make_link, make_project, well_formed
 from reportgen.report import messages
 from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, ReportOptions
@@ -19,43 +16,9 @@ from reportgen.report.render import LazyDocuments, build_report, css_string
 from reportgen.report.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
-VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
-        "track", "wbr"}
 HOSTILE_SCRIPT = "<script>alert(1)</script>"
 HOSTILE_ATTR = '"><img src=x onerror=alert(1)>'
 HOSTILE_TEMPLATE = "{{ 7*7 }}"
-
-
-class _TagBalance(HTMLParser):
-    """Fails on a closing tag that does not match the open one (SVG self-closing allowed)."""
-
-    def __init__(self) -> None:
-        super().__init__(convert_charrefs=True)
-        self.stack: list[str] = []
-        self.ids: list[str] = []
-
-    def handle_starttag(self, tag, attrs):
-        self.ids += [value for name, value in attrs if name == "id"]
-        if tag not in VOID:
-            self.stack.append(tag)
-
-    def handle_startendtag(self, tag, attrs):
-        self.ids += [value for name, value in attrs if name == "id"]
-
-    def handle_endtag(self, tag):
-        assert self.stack and self.stack[-1] == tag, f"</{tag}> closes <{self.stack[-1:]}>"
-        self.stack.pop()
-
-
-def well_formed(html: str) -> list[str]:
-    """Parse; check tag balance; every inline SVG parses as XML. Returns the element ids."""
-    parser = _TagBalance()
-    parser.feed(html)
-    parser.close()
-    assert parser.stack == []
-    for svg in re.findall(r"<svg\b.*?</svg>", html, flags=re.S):
-        ET.fromstring(svg)
-    return parser.ids
 
 
 def mixed_project(**kwargs):

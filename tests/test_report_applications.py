@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-from builders import make_link, make_project
+from builders import make_link, make_project, well_formed
 from reportgen.report import messages
 from reportgen.report import viewmodel
 from reportgen.engine.applications import assess_project
@@ -17,7 +17,6 @@ from reportgen.model import FiberType, Transceiver
 from reportgen.report.render import build_report, split_groups
 from reportgen.inputs.project import load_project
 from reportgen.report.viewmodel import MatrixGroup, MatrixRow, link_anchors
-from test_render import well_formed
 
 NOW = datetime(2030, 2, 1, 12, 0)
 DEMO = Path(__file__).resolve().parent.parent / "demo_project"

@@ -89,6 +89,7 @@ def test_hostile_text_parses_to_the_html5_tree() -> None:
     assert doc.own_templates
 
 
+@pytest.mark.slow  # renders two demo parts twice with WeasyPrint
 def test_both_routes_give_byte_identical_pages(demo_document: ReportDocument) -> None:
     for html in (demo_document.bodies[0], demo_document.bodies[-1]):
         fast = render_part(html, DEMO, xml_first=True)

@@ -90,6 +90,17 @@ def page_numbers(parts: Sequence[RenderedPart], first_page: int = 1) -> dict[str
     return numbers
 
 
+class WorkerTraceback(Exception):
+    """The traceback of a failed worker, as text: the cause of the error the parent raises.
+
+    The command line prints it with ``--debug`` (after the error's own traceback's
+    "direct cause" line); without, only the error's one-line message is shown.
+    """
+
+    def __str__(self) -> str:
+        return "\n" + str(self.args[0]).rstrip()
+
+
 def _part_process(jobs: Connection, results: Connection) -> None:
     """Body of a worker process: wait for one part, render it, send it back (or the error).
 
@@ -233,8 +244,8 @@ def _receive_part(receiver: Connection, index: int, process: BaseProcess) -> Ren
     process.join()
     if status == "failed":
         message, details = payload
-        LOGGER.debug("body part %d failed:\n%s", index + 1, details)
-        raise ReportgenError(f"rendering body part {index + 1} of the PDF failed: {message}")
+        raise ReportgenError(f"rendering body part {index + 1} of the PDF failed: {message}"
+                             ) from WorkerTraceback(details)
     return payload[0]
 
 
