@@ -49,7 +49,7 @@ def _shown(value: Any) -> str:
 class Checker:
     """Collects the problems of one YAML file while reading its values."""
 
-    def __init__(self, root: Path, file: str,
+    def __init__(self, root: Path | None, file: str,
                  keys: Mapping[str, tuple[str, ...]] | None = None,
                  required_keys: frozenset[tuple[str, str]] = frozenset()) -> None:
         self.root = root
@@ -100,7 +100,8 @@ class Checker:
                 continue
             close = difflib.get_close_matches(key.lower(), known, n=1, cutoff=0.8)
             if close and close[0] not in data and not self._required(path, close[0]):
-                self.problem(f"{path}.{clip(key)}", f"a key the format knows (did you mean {close[0]}?)")
+                self.problem(f"{path}.{clip(key)}" if path else clip(key),
+                             f"a key the format knows (did you mean {close[0]}?)")
 
     def _required(self, path: str, key: str) -> bool:
         return (path, key) in self.required_keys
@@ -152,7 +153,7 @@ class Checker:
         return int(value)
 
     def inside_path(self, value: Any, path: str, what: str) -> Path | None:
-        if not isinstance(value, str) or not value.strip():
+        if self.root is None or not isinstance(value, str) or not value.strip():
             self.problem(path, f"a path to {what} inside the project folder", value)
             return None
         resolved = resolve_inside(self.root, value)

@@ -1,0 +1,87 @@
+"""Every input file read one way, every problem in one run, one clear message per mistake.
+
+Limit files and the application table go through the loader project.yaml uses; a
+misspelt header does not hide row problems; a row split by a decimal comma gets one
+message; ids are matched ignoring case where the trade writes them either way. The
+expected messages are ours (typed here, not produced by the code); the values they
+quote are the test inputs.
+"""
+from __future__ import annotations
+
+import pytest
+
+from reportgen.cli import main
+from reportgen.errors import InputError
+from reportgen.inputs.project import load_project
+from tests.conftest import MINIMAL_PROJECT
+
+Y = MINIMAL_PROJECT["project.yaml"]
+OWN_LIMITS = Y.replace("limits: tia-568.3-d", "limits: own-limits.yaml")
+# Coefficients below are test inputs, not a standard's values.
+LIMIT_FILE = ("id: own\n"
+              "title: Own limits\n"
+              "source: test input\n"
+              "connection_db: 0.75\n"
+              "splice_db: 0.3\n"
+              "attenuation_db_per_km: {OM4: {850: 3.0, 1300: 1.5}, OS2: {1310: 0.5, 1550: 0.5}}\n")
+
+
+def problems_of(project_dir) -> list[str]:
+    with pytest.raises(InputError) as caught:
+        load_project(project_dir)
+    return [str(problem) for problem in caught.value.problems]
+
+
+# ------------------------------------------------------------------ limit files
+
+
+def test_limit_file_with_a_repeated_key_is_refused(make_project):
+    project_dir = make_project({"project.yaml": OWN_LIMITS,
+                                "own-limits.yaml": LIMIT_FILE + "connection_db: 0.5\n"})
+    assert problems_of(project_dir) == [
+        "own-limits.yaml, line 7, connection_db: expected each key once in its mapping "
+        "(first given on line 4)"]
+
+
+def test_limit_file_with_a_repeated_key_check_exits_2(make_project, capsys):
+    project_dir = make_project({"project.yaml": OWN_LIMITS,
+                                "own-limits.yaml": LIMIT_FILE.replace(
+                                    "{850: 3.0, 1300: 1.5}", "{850: 3.0, 850: 2.5}")})
+    assert main(["check", str(project_dir)]) == 2
+    assert capsys.readouterr().err.splitlines() == [
+        "error: own-limits.yaml, line 6, 850: expected each key once in its mapping (first given on line 6)",
+        "1 problem(s) found; nothing was written"]
+
+
+def test_limit_file_problems_all_reported_in_one_run(make_project):
+    project_dir = make_project({"project.yaml": OWN_LIMITS, "own-limits.yaml": (
+        LIMIT_FILE.replace("splice_db: 0.3", "splice_db: 0,3")
+        .replace("title: Own limits\n", "")
+        .replace("{850: 3.0, 1300: 1.5}", "{85: 3.0, 1300: -1}")
+        + "attenuation_db_per_km_outsde: {OS2: {1310: 0.4}}\n")})
+    assert problems_of(project_dir) == [
+        "own-limits.yaml, attenuation_db_per_km_outsde: expected a key the format knows "
+        "(did you mean attenuation_db_per_km_outside?)",
+        "own-limits.yaml, title: expected a non-empty text (required key is missing)",
+        "own-limits.yaml, splice_db: expected a number of dB from 0 to 100 "
+        "(write numbers with a decimal point, not a comma) (got '0,3')",
+        "own-limits.yaml, attenuation_db_per_km.OM4: expected a wavelength in whole nm from 600 to 1700 "
+        "(got '85')",
+        "own-limits.yaml, attenuation_db_per_km.OM4.1300: expected a number of dB from 0 to 100 "
+        "(got '-1')",
+    ]
+
+
+def test_limit_file_in_another_case_of_a_built_in_id(make_project):
+    project = load_project(make_project({"project.yaml": Y.replace("tia-568.3-d", "TIA-568.3-D")}))
+    # the standard is ANSI/TIA-568.3-D; its built-in set's id is written in lower case
+    assert (project.testing.limits, project.limits.id) == ("tia-568.3-d", "tia-568.3-d")
+
+
+def test_limits_command_ignores_case(capsys):
+    assert main(["limits", "tia-568.3-d"]) == 0
+    lower = capsys.readouterr().out
+    assert main(["limits", "TIA-568.3-D"]) == 0
+    upper = capsys.readouterr().out
+    assert upper == lower
+    assert upper.splitlines()[0].endswith("(tia-568.3-d)")
