@@ -85,3 +85,15 @@ def test_limits_command_ignores_case(capsys):
     upper = capsys.readouterr().out
     assert upper == lower
     assert upper.splitlines()[0].endswith("(tia-568.3-d)")
+
+
+# ------------------------------------------------------------------ ids and case
+
+
+def test_application_id_in_another_case_is_the_tables_id(make_project):
+    project = load_project(make_project({"links.csv": (
+        "link_id,end_a,end_b,fiber_type,length_m,strands,applications\n"
+        "L1,Room 1,Room 2,OM4,120,2,10gbase-sr\n"
+        "L2,Room 1,Hut 3,OS2,1500,1,\n")}))
+    # IEEE 802.3 clause 52 writes the PMD 10GBASE-SR (common practice: capitals)
+    assert project.links[0].applications == ("10GBASE-SR",)

@@ -15,7 +15,7 @@ from typing import Final
 
 import pandas as pd
 
-from reportgen.inputs.apptable import load_applications, validate_application_ids
+from reportgen.inputs.apptable import check_application_ids, load_applications
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
 from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_yaml
@@ -78,7 +78,8 @@ def load_project(project_dir: Path) -> Project:
     problems += _wavelength_coverage(settings, links)
     problems += link_problems
     applications = load_applications()
-    problems += validate_application_ids(links, applications)
+    links, application_problems = check_application_ids(links, applications)
+    problems += application_problems
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
