@@ -97,3 +97,24 @@ def test_application_id_in_another_case_is_the_tables_id(make_project):
         "L2,Room 1,Hut 3,OS2,1500,1,\n")}))
     # IEEE 802.3 clause 52 writes the PMD 10GBASE-SR (common practice: capitals)
     assert project.links[0].applications == ("10GBASE-SR",)
+
+
+# ------------------------------------------------------------------ one rule, one place
+
+
+def test_number_patterns_and_wavelength_range_are_defined_once():
+    import re
+    from pathlib import Path
+
+    import reportgen
+    package = Path(reportgen.__file__).parent
+    digit_patterns = {}
+    range_literals = {}
+    for path in sorted(package.rglob("*.py")):
+        text = path.read_text(encoding="utf-8")
+        name = path.relative_to(package).as_posix()
+        digit_patterns[name] = len(re.findall(r"re\.compile\(r?[\"'][^\"']*\\d", text))
+        range_literals[name] = len(re.findall(r"\b600\b[^\n]*\b1700\b", text))
+    # NUMBER_TEXT and DECIMAL_COMMA_TEXT; WAVELENGTH_RANGE_NM and its comment
+    assert {name: n for name, n in digit_patterns.items() if n} == {"inputs/checker.py": 2}
+    assert {name: n for name, n in range_literals.items() if n} == {"inputs/checker.py": 2}

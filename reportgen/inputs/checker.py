@@ -20,6 +20,9 @@ from reportgen.inputs.files import as_written, clip, resolve_inside, shown_value
 
 # A decimal number as written in a text file: digits with a point, optional exponent.
 NUMBER_TEXT: Final = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
+# A number written with a decimal comma (1,25): refused everywhere, with DECIMAL_HINT.
+DECIMAL_COMMA_TEXT: Final = re.compile(r"[+-]?\d+,\d+", re.ASCII)
+DECIMAL_HINT: Final = " (write numbers with a decimal point, not a comma)"
 # Test wavelengths accepted anywhere [nm]: the fiber windows in use, 600 to 1700 nm.
 WAVELENGTH_RANGE_NM: Final = (600, 1700)
 _MISSING = object()
@@ -136,8 +139,8 @@ class Checker:
             except OverflowError:  # an integer of hundreds of digits
                 value = math.inf
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            hint = " (write numbers with a decimal point, not a comma)" if isinstance(value, str) \
-                and "," in value else ""
+            hint = DECIMAL_HINT if isinstance(value, str) and DECIMAL_COMMA_TEXT.fullmatch(value.strip()) \
+                else ""
             self.problem(path, f"a number {expected}{hint}", written)
             return None
         if value < low or value > high or (low_open and value == low):

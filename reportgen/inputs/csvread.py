@@ -10,16 +10,15 @@ from __future__ import annotations
 import csv
 import difflib
 import io
-import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from operator import itemgetter
 from pathlib import Path
 
 from reportgen.errors import InputProblem
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT
 from reportgen.inputs.files import clip, read_text
 
-_DECIMAL_COMMA = re.compile(r"\d,\d")
 _SEPARATORS = {";": "semicolon", "\t": "tab"}
 
 
@@ -44,7 +43,7 @@ def _separator_problem(text: str, shown: str) -> InputProblem | None:
     commas = header_line.count(",")
     for separator, name in _SEPARATORS.items():
         if header_line.count(separator) > commas:
-            decimal = " with decimal commas" if _DECIMAL_COMMA.search(text, 0, 100_000) else ""
+            decimal = " with decimal commas" if DECIMAL_COMMA_TEXT.search(text, 0, 100_000) else ""
             return InputProblem(
                 shown, 1, None,
                 "comma-separated values with a decimal point in numbers "

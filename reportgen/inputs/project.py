@@ -8,7 +8,6 @@ within a CSV file by line). The folder is only read, never written.
 from __future__ import annotations
 
 import dataclasses
-import re
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Final
@@ -29,10 +28,10 @@ from reportgen.model import (
     Project,
     Transceiver,
 )
-from reportgen.inputs.checker import NUMBER_TEXT, enum_choices, match_enum
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, enum_choices, match_enum
 from reportgen.inputs.project_yaml import Settings, check_project_yaml
 from reportgen.units import ft_to_m
-from reportgen.inputs.results import DECIMAL_HINT, EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
+from reportgen.inputs.results import EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
 from reportgen.inputs.results import OPTIONAL as RESULT_OPTIONAL
 from reportgen.inputs.results import REQUIRED as RESULT_REQUIRED
 
@@ -43,7 +42,6 @@ LINK_OPTIONAL: Final = ("plant", "strands", "connections", "splices", "component
                         "transceiver", "notes")
 MAX_STRANDS: Final = 1000
 MAX_COUNT: Final = 1000  # connections or splices on one link
-_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+", re.ASCII)
 
 
 def load_project(project_dir: Path) -> Project:
@@ -182,7 +180,7 @@ def _number(text: str, column: str, expected: str, line: int, file: str,
             problems: list[InputProblem]) -> float | None:
     if NUMBER_TEXT.fullmatch(text):
         return float(text)
-    hint = DECIMAL_HINT if _DECIMAL_COMMA.fullmatch(text) else ""
+    hint = DECIMAL_HINT if DECIMAL_COMMA_TEXT.fullmatch(text) else ""
     problems.append(InputProblem(file, line, column, expected + hint, clip(text)))
     return None
 

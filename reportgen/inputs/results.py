@@ -15,7 +15,7 @@ import pandas as pd
 
 from reportgen.inputs.csvread import CsvTable
 from reportgen.errors import InputProblem
-from reportgen.inputs.checker import WAVELENGTH_RANGE_NM
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM
 from reportgen.inputs.files import clip
 from reportgen.model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
 from reportgen.units import M_PER_FT
@@ -29,7 +29,6 @@ MAX_STRAND: Final = 1000  # as links.csv strands
 MAX_LENGTH_M: Final = 200_000.0  # 200 km
 YEAR_RANGE: Final = (1900, 2199)
 EMPTY: Final = " (the cell is empty)"
-DECIMAL_HINT: Final = " (write numbers with a decimal point, not a comma)"
 
 
 @dataclass(frozen=True)
@@ -70,15 +69,15 @@ def _numbers(texts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     if len(texts) == 0:
         return np.zeros(0), np.zeros(0, bool)
     codes, uniques = pd.factorize(texts)
-    numbers = np.array(pd.to_numeric(pd.Series(uniques, dtype=object), errors="coerce"), dtype=float)
+    numbers = np.array([float(text) if NUMBER_TEXT.fullmatch(text) else np.nan for text in uniques],
+                       dtype=float)
     bad_unique = (uniques != "") & ~np.isfinite(numbers)
     numbers[bad_unique] = np.nan
     return numbers[codes], bad_unique[codes]
 
 
 def _number_hint(texts: np.ndarray, row: int) -> str:
-    text = texts[row].lstrip("+-")
-    return DECIMAL_HINT if "," in text and text.replace(",", "", 1).isdigit() else ""
+    return DECIMAL_HINT if DECIMAL_COMMA_TEXT.fullmatch(texts[row]) else ""
 
 
 def _whole(values: np.ndarray) -> np.ndarray:
