@@ -118,3 +118,20 @@ def test_number_patterns_and_wavelength_range_are_defined_once():
     # NUMBER_TEXT and DECIMAL_COMMA_TEXT; WAVELENGTH_RANGE_NM and its comment
     assert {name: n for name, n in digit_patterns.items() if n} == {"inputs/checker.py": 2}
     assert {name: n for name, n in range_literals.items() if n} == {"inputs/checker.py": 2}
+
+
+def test_unknown_link_id_gets_a_did_you_mean(make_project):
+    links = ("link_id,end_a,end_b,fiber_type,length_m,strands\n"
+             "A-BB-01,Room 1,Room 2,OM4,120,2\n"
+             "A-BB-02,Room 1,Room 3,OM4,90,2\n")
+    results = ("link_id,strand,wavelength_nm,direction,loss_db,tested_at,instrument\n"
+               "a-bb-01,1,850,ab,1.20,2030-01-15,\n"
+               "A-BB-1,1,850,ab,1.20,2030-01-15,\n"
+               "C-DD-77,1,850,ab,1.20,2030-01-15,\n")
+    assert problems_of(make_project({"links.csv": links, "results/day1.csv": results})) == [
+        "results/day1.csv, line 2, link_id: expected a link_id defined in links.csv "
+        "(did you mean A-BB-01?) (got 'a-bb-01')",
+        "results/day1.csv, line 3, link_id: expected a link_id defined in links.csv "
+        "(did you mean A-BB-01?) (got 'A-BB-1')",
+        "results/day1.csv, line 4, link_id: expected a link_id defined in links.csv (got 'C-DD-77')",
+    ]

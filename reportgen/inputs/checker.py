@@ -10,7 +10,7 @@ import difflib
 import functools
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from enum import StrEnum
 from pathlib import Path
 from typing import Any, Final, TypeVar
@@ -41,6 +41,19 @@ def _members_by_text(enum: type[StrEnum]) -> dict[str, StrEnum]:
 def match_enum(enum: type[E], text: str) -> E | None:
     """The member whose value equals ``text`` ignoring case and surrounding blanks."""
     return _members_by_text(enum).get(text.strip().lower())
+
+
+def closest(text: str, known: Collection[str], cutoff: float = 0.8) -> str | None:
+    """The known id ``text`` most likely meant: one differing only in case, else the closest by
+    difflib (ignoring case, similarity at least ``cutoff``); None when nothing is close."""
+    by_lower: dict[str, str] = {}
+    for name in sorted(known):
+        by_lower.setdefault(name.lower(), name)
+    folded = text.strip().lower()
+    if folded in by_lower:
+        return by_lower[folded]
+    close = difflib.get_close_matches(folded, list(by_lower), n=1, cutoff=cutoff)
+    return by_lower[close[0]] if close else None
 
 
 def _shown(value: Any) -> str:

@@ -15,7 +15,7 @@ import pandas as pd
 
 from reportgen.inputs.csvread import CsvTable
 from reportgen.errors import InputProblem
-from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM, closest
 from reportgen.inputs.files import clip
 from reportgen.model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
 from reportgen.units import M_PER_FT
@@ -27,6 +27,7 @@ OPTIONAL: Final = ("strand", "direction", "instrument", "technician", "note", *L
 MAX_LOSS_DB: Final = 100.0
 MAX_STRAND: Final = 1000  # as links.csv strands
 MAX_LENGTH_M: Final = 200_000.0  # 200 km
+MAX_HINTED: Final = 100  # unknown link ids per file given a "did you mean"
 YEAR_RANGE: Final = (1900, 2199)
 EMPTY: Final = " (the cell is empty)"
 
@@ -80,6 +81,21 @@ def _number_hint(texts: np.ndarray, row: int) -> str:
     return DECIMAL_HINT if DECIMAL_COMMA_TEXT.fullmatch(texts[row]) else ""
 
 
+def _link_hints(unique_ids: np.ndarray, defined: np.ndarray, all_link_ids: frozenset[str]) -> list[str]:
+    """" (did you mean A-BB-01?)" for each unknown id that differs from a link_id of links.csv only
+    in case or is close to one; difflib is asked for the first MAX_HINTED unknown ids only."""
+    hints = [""] * len(unique_ids)
+    asked = 0
+    for index in np.flatnonzero(~defined):
+        if unique_ids[index] == "" or asked >= MAX_HINTED:
+            continue
+        asked += 1
+        meant = closest(unique_ids[index], all_link_ids)
+        if meant is not None:
+            hints[index] = f" (did you mean {clip(meant)}?)"
+    return hints
+
+
 def _whole(values: np.ndarray) -> np.ndarray:
     return np.isfinite(values) & (values == np.floor(values))
 
@@ -99,7 +115,9 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     if context.all_link_ids is not None:
         defined = np.array([link_id in context.all_link_ids for link_id in unique_ids], dtype=bool)
         unknown = ~empty_id & ~defined[id_codes] if len(id_codes) else empty_id
-        out.add(unknown, "link_id", "a link_id defined in links.csv", link_ids)
+        hints = _link_hints(unique_ids, defined, context.all_link_ids)
+        out.add(unknown, "link_id", lambda row: f"a link_id defined in links.csv{hints[id_codes[row]]}",
+                link_ids)
     links = context.links or {}
     unique_links = [links.get(link_id) for link_id in unique_ids]
 
