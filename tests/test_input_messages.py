@@ -135,3 +135,44 @@ def test_unknown_link_id_gets_a_did_you_mean(make_project):
         "(did you mean A-BB-01?) (got 'A-BB-1')",
         "results/day1.csv, line 4, link_id: expected a link_id defined in links.csv (got 'C-DD-77')",
     ]
+
+
+# ------------------------------------------------------------------ a bad header hides nothing
+
+
+def test_misspelt_results_header_does_not_hide_row_problems(make_project):
+    results = ("link_id,strand,wavelenght_nm,direction,loss_db,tested_at,instrument\n"
+               "L1,1,850,ab,1.20,2030-01-15T09:00,SRC-1\n"
+               "L1,1,850,ba,1.25,2030-01-15T09:05,SRC-1\n"
+               "L1,2,850,ab,1.10,2030-01-15T09:10,SRC-1\n"
+               "L1,2,850,ba,1.15,2030-01-15T09:15,SRC-1\n"
+               "L2,1,1310,ab,0.60,2030-01-15T10:00,SRC-1\n"
+               'L2,1,1310,ba,"0,87",2030-01-15T10:05,SRC-1\n')
+    assert problems_of(make_project({"results/day1.csv": results})) == [
+        "results/day1.csv, line 1, wavelength_nm: expected a column named wavelength_nm "
+        "(did you mean wavelength_nm instead of 'wavelenght_nm'?)",
+        "results/day1.csv, line 7, loss_db: expected a loss in dB, a number of at most 100 "
+        "(write numbers with a decimal point, not a comma) (got '0,87')",
+    ]
+
+
+def test_misspelt_links_header_does_not_hide_row_problems(make_project):
+    links = ("link_id,end_a,end_b,fibre_type,length_m,strands\n"
+             "L1,Room 1,Room 2,OM4,120,2\n"
+             "L2,Room 1,Hut 3,OS2,-1500,1\n")
+    assert problems_of(make_project({"links.csv": links})) == [
+        "links.csv, line 1, fiber_type: expected a column named fiber_type "
+        "(did you mean fiber_type instead of 'fibre_type'?)",
+        "links.csv, line 3, length_m: expected a length in m, greater than 0 and at most 200 km "
+        "(got '-1500')",
+    ]
+
+
+def test_results_missing_every_required_column_but_one(make_project):
+    results = "link_id,lambda,attenuation,date\nL9,850,1.2,2030-01-15\n"
+    assert problems_of(make_project({"results/day1.csv": results})) == [
+        "results/day1.csv, line 1, wavelength_nm: expected a column named wavelength_nm",
+        "results/day1.csv, line 1, loss_db: expected a column named loss_db",
+        "results/day1.csv, line 1, tested_at: expected a column named tested_at",
+        "results/day1.csv, line 2, link_id: expected a link_id defined in links.csv (got 'L9')",
+    ]

@@ -159,17 +159,18 @@ BAD_CSV = [
                  id="links header only"),
     pytest.param("links.csv", "", "links.csv: expected a header row naming the columns (file is empty)",
                  id="links empty"),
-    pytest.param("links.csv", "link_id,end_a,end_b,fibre_type,length_m\nL1,a,b,OM4,1\n",
+    pytest.param("links.csv", "link_id,end_a,end_b,fibre_type,length_m\nL1,a,b,OM4,1\nL2,a,b,OS2,1500\n",
                  "links.csv, line 1, fiber_type: expected a column named fiber_type "
                  "(did you mean fiber_type instead of 'fibre_type'?)", id="misspelt column"),
-    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type\nL1,a,b,OM4\n",
+    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type\nL1,a,b,OM4\nL2,a,b,OS2\n",
                  "links.csv, line 1, length: expected a column named length, length_m or length_ft",
                  id="no length column"),
     pytest.param("links.csv", "link_id;end_a;end_b;fiber_type;length_m\nL1;a;b;OM4;1,5\n",
                  "links.csv, line 1: expected comma-separated values with a decimal point in numbers "
                  "(file looks semicolon-separated with decimal commas; export it again as comma-separated CSV)",
                  id="semicolon separated"),
-    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type,length_m,length_m\nL1,a,b,OM4,1,1\n",
+    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type,length_m,length_m\nL1,a,b,OM4,1,1\n"
+                              "L2,a,b,OS2,1500,1500\n",
                  "links.csv, line 1, length_m: expected each column name once (found in columns 5 and 6)",
                  id="duplicate column"),
     pytest.param("links.csv", LINKS + "L1,a,b,OM9,120,1\nL2,a,b,OS2,1500,1\n",

@@ -95,7 +95,10 @@ def read_csv(path: Path, shown: str, *, required: Sequence[tuple[str, ...]],
     -------
     (CsvTable or None, list of InputProblem)
         None when the file cannot be read as a table at all (size, encoding,
-        separator, header); row problems (too many cells) come with a table.
+        separator, no header row, broken quoting). Header problems (a required
+        column missing or named twice) and row problems (too many cells) come
+        with a table of the columns that were recognised; a missing column is
+        absent from ``CsvTable.columns``.
     """
     text, problems = read_text(path, shown)
     if text is None:
@@ -118,9 +121,9 @@ def read_csv(path: Path, shown: str, *, required: Sequence[tuple[str, ...]],
                                    "a header row naming the columns (the file has only empty cells)")]
     names = [name.strip().lower() for name in header]
     known = {name for group in required for name in group} | set(optional)
+    # A header problem (a required column missing or named twice) does not stop the rows from
+    # being read: the columns that were recognised are still checked in the same run.
     problems = _header_problems(names, shown, required, known)
-    if problems:
-        return None, problems
 
     width = len(names)
     first_line = reader.line_num + 1

@@ -157,10 +157,11 @@ def _load_links(root: Path, settings: Settings
     if table is None:
         return [], None, problems
     if len(table) == 0:
-        return [], None, problems + [InputProblem(LINKS_FILE, None, None,
-                                                  "at least one link row below the header")]
+        return [], None, problems or [InputProblem(LINKS_FILE, None, None,
+                                                   "at least one link row below the header")]
     links, row_problems = check_links(table, settings)
-    return links, frozenset(table.columns["link_id"]) - {""}, _by_line(problems + row_problems)
+    all_ids = frozenset(table.columns["link_id"]) - {""} if table.has("link_id") else None
+    return links, all_ids, _by_line(problems + row_problems)
 
 
 def _printable(problem: InputProblem) -> InputProblem:
@@ -223,10 +224,14 @@ def check_links(table: CsvTable, settings: Settings) -> tuple[list[Link], list[I
     links: list[Link] = []
     problems: list[InputProblem] = []
     first_line: dict[str, int] = {}
+    # required columns the header lacks: reported once on the header, not on every row
+    absent = {group[0] for group in LINK_REQUIRED if not any(table.has(name) for name in group)}
     for row, line in enumerate(table.lines):
         row_problems: list[InputProblem] = []
 
         def problem(column: str, expected: str, found: str | None = None) -> None:
+            if column in absent:
+                return
             row_problems.append(InputProblem(file, line, column, expected,
                                              None if found is None else clip(found)))
 
@@ -289,6 +294,8 @@ def _link_length(get: Mapping[str, Sequence[str]], present: Sequence[str], row: 
                  units: LengthUnit | None, problem, line: int, file: str,
                  row_problems: list[InputProblem]) -> float | None:
     """Documented length [m] from exactly one of length (testing.units), length_m, length_ft."""
+    if not present:  # no length column: reported once on the header
+        return None
     given = [name for name in present if get[name][row]]
     if len(given) != 1:
         field = "/".join(present)

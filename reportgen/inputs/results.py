@@ -48,12 +48,16 @@ class _Collector:
 
     def __init__(self, table: CsvTable) -> None:
         self.table = table
+        # required columns the header lacks: that is one header problem, not one per row
+        self.absent = {name for name in REQUIRED_NAMES if not table.has(name)}
         self.items: list[tuple[int, int, InputProblem]] = []
         self.order = 0
 
     def add(self, mask: np.ndarray, column: str, expected, found) -> None:
         """One problem for every row where ``mask`` is true; ``expected`` may be a function of the row."""
         self.order += 1
+        if column in self.absent:
+            return
         for row in np.flatnonzero(mask):
             text = expected(row) if callable(expected) else expected
             value = found(row) if callable(found) else None if found is None else found[row]
@@ -207,7 +211,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     measured_m = _measured_length(column, table, context.units, out)
 
     problems = out.sorted()
-    if problems:
+    if problems or out.absent:
         return None, problems
     frame = pd.DataFrame({
         "source_file": pd.Series([table.file] * n, dtype="str"),
