@@ -176,3 +176,34 @@ def test_results_missing_every_required_column_but_one(make_project):
         "results/day1.csv, line 1, tested_at: expected a column named tested_at",
         "results/day1.csv, line 2, link_id: expected a link_id defined in links.csv (got 'L9')",
     ]
+
+
+# ------------------------------------------------------------------ a row split by a decimal comma
+
+
+def test_row_split_by_an_unquoted_decimal_comma_gets_one_message(make_project):
+    results = ("link_id,strand,wavelength_nm,direction,loss_db,tested_at,instrument\n"
+               "L1,1,850,ab,1.20,2030-01-15T09:00,SRC-1\n"
+               "L2,1,1310,ab,0,87,2030-01-15T10:00,SRC-1\n")
+    assert problems_of(make_project({"results/day1.csv": results})) == [
+        "results/day1.csv, line 3, loss_db: expected a number with a decimal point (the unquoted comma "
+        "in 0,87 splits the row into 8 cells for 7 columns; write 0.87) (got '0,87')"]
+
+
+def test_row_split_twice_by_decimal_commas_names_both_fields(make_project):
+    results = ("link_id,wavelength_nm,loss_db,tested_at,length_m\n"
+               "L1,850,1,25,2030-01-15,119,5\n")
+    assert problems_of(make_project({"results/day1.csv": results})) == [
+        "results/day1.csv, line 2, loss_db: expected a number with a decimal point (the unquoted comma "
+        "in 1,25 splits the row into 7 cells for 5 columns; write 1.25) (got '1,25')",
+        "results/day1.csv, line 2, length_m: expected a number with a decimal point (the unquoted comma "
+        "in 119,5 splits the row into 7 cells for 5 columns; write 119.5) (got '119,5')"]
+
+
+def test_row_split_where_the_cell_is_unknown_gets_one_message(make_project):
+    # loss 1,2 with length 3, or loss 1 with length 2,3: the row cannot tell, so only its width is reported
+    results = "link_id,wavelength_nm,loss_db,length_m,tested_at\nL1,850,1,2,3,2030-01-15\n"
+    assert problems_of(make_project({"results/day1.csv": results})) == [
+        "results/day1.csv, line 2: expected at most 5 cells, one per header column (write numbers with a "
+        "decimal point, 1.25 not 1,25, and put a text that contains a comma in double quotes) "
+        "(got '6 cells')"]

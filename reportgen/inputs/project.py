@@ -90,7 +90,8 @@ def load_project(project_dir: Path) -> Project:
             problems.append(outside_problem(shown))
             continue
         files.append(shown)
-        table, table_problems = read_csv(path, shown, required=RESULT_REQUIRED, optional=RESULT_OPTIONAL)
+        table, table_problems = read_csv(path, shown, required=RESULT_REQUIRED, optional=RESULT_OPTIONAL,
+                                         decimal=("loss_db", *LENGTH_COLUMNS))
         if table is None:
             problems += table_problems
             continue
@@ -153,7 +154,8 @@ def _load_links(root: Path, settings: Settings
     if not path.is_file():
         return [], None, [InputProblem(LINKS_FILE, None, None,
                                        "a file links.csv in the project folder (not found)")]
-    table, problems = read_csv(path, LINKS_FILE, required=LINK_REQUIRED, optional=LINK_OPTIONAL)
+    table, problems = read_csv(path, LINKS_FILE, required=LINK_REQUIRED, optional=LINK_OPTIONAL,
+                               decimal=LENGTH_COLUMNS)
     if table is None:
         return [], None, problems
     if len(table) == 0:
@@ -227,6 +229,8 @@ def check_links(table: CsvTable, settings: Settings) -> tuple[list[Link], list[I
     # required columns the header lacks: reported once on the header, not on every row
     absent = {group[0] for group in LINK_REQUIRED if not any(table.has(name) for name in group)}
     for row, line in enumerate(table.lines):
+        if line in table.unreadable:  # reported once as a row of too many cells
+            continue
         row_problems: list[InputProblem] = []
 
         def problem(column: str, expected: str, found: str | None = None) -> None:

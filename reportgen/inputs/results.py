@@ -59,6 +59,8 @@ class _Collector:
         if column in self.absent:
             return
         for row in np.flatnonzero(mask):
+            if self.table.lines[row] in self.table.unreadable:
+                continue
             text = expected(row) if callable(expected) else expected
             value = found(row) if callable(found) else None if found is None else found[row]
             shown = None if value is None else clip(str(value))
