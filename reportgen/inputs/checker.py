@@ -43,12 +43,18 @@ def match_enum(enum: type[E], text: str) -> E | None:
     return _members_by_text(enum).get(text.strip().lower())
 
 
-def closest(text: str, known: Collection[str], cutoff: float = 0.8) -> str | None:
-    """The known id ``text`` most likely meant: one differing only in case, else the closest by
-    difflib (ignoring case, similarity at least ``cutoff``); None when nothing is close."""
+def by_lower_case(known: Collection[str]) -> dict[str, str]:
+    """Known ids by their lower-case spelling (of ids differing only in case, the first sorted)."""
     by_lower: dict[str, str] = {}
     for name in sorted(known):
         by_lower.setdefault(name.lower(), name)
+    return by_lower
+
+
+def closest(text: str, by_lower: Mapping[str, str], cutoff: float = 0.8) -> str | None:
+    """The known id ``text`` most likely meant: one differing only in case, else the closest by
+    difflib (ignoring case, similarity at least ``cutoff``); None when nothing is close.
+    ``by_lower`` is :func:`by_lower_case` of the known ids."""
     folded = text.strip().lower()
     if folded in by_lower:
         return by_lower[folded]

@@ -161,24 +161,23 @@ def read_csv(path: Path, shown: str, *, required: Sequence[tuple[str, ...]],
             elif size > width:
                 while len(row) > width and not row[-1].strip():  # trailing empty cells are harmless
                     row = row[:-1]
-                split = _decimal_comma_split(row, names, set(decimal), len(row) - width)
-                if len(row) == width:
-                    pass
-                elif split is not None:
+                size = len(row)
+                split = _decimal_comma_split(row, names, set(decimal), size - width) if size > width else None
+                if split is not None:
                     row, merged = split
                     problems += [InputProblem(
                         shown, start, column,
                         f"a number with a decimal point (the unquoted comma in {written} splits the row "
                         f"into {size} cells for {width} columns; write {written.replace(',', '.')})",
                         written) for column, written in merged]
-                else:  # which cell was split is unknown: the row gets this one problem only
+                elif size > width:  # which cell was split is unknown: the row gets this one problem only
                     problems.append(InputProblem(
                         shown, start, None,
                         f"at most {width} cells, one per header column (write numbers with a decimal "
                         "point, 1.25 not 1,25, and put a text that contains a comma in double quotes)",
                         f"{size} cells"))
                     unreadable.append(len(rows))
-                row = row[:width]
+                    row = row[:width]
             rows.append(row)
             lines.append(start)
     blank = [not joined.strip() for joined in map("".join, rows)]

@@ -15,7 +15,7 @@ import pandas as pd
 
 from reportgen.inputs.csvread import CsvTable
 from reportgen.errors import InputProblem
-from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM, closest
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM, by_lower_case, closest
 from reportgen.inputs.files import clip
 from reportgen.model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
 from reportgen.units import M_PER_FT
@@ -91,12 +91,15 @@ def _link_hints(unique_ids: np.ndarray, defined: np.ndarray, all_link_ids: froze
     """" (did you mean A-BB-01?)" for each unknown id that differs from a link_id of links.csv only
     in case or is close to one; difflib is asked for the first MAX_HINTED unknown ids only."""
     hints = [""] * len(unique_ids)
+    if defined.all():
+        return hints
+    known = by_lower_case(all_link_ids)
     asked = 0
     for index in np.flatnonzero(~defined):
         if unique_ids[index] == "" or asked >= MAX_HINTED:
             continue
         asked += 1
-        meant = closest(unique_ids[index], all_link_ids)
+        meant = closest(unique_ids[index], known)
         if meant is not None:
             hints[index] = f" (did you mean {clip(meant)}?)"
     return hints
