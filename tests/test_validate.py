@@ -303,7 +303,9 @@ def test_bad_csv_is_reported_precisely(make_project, path, content, message):
 
 
 def test_trailing_empty_cells_are_harmless(make_project):
-    load_project(make_project({"links.csv": LINKS + "L1,a,b,OM4,120,2,\nL2,a,b,OS2,1500,1,,\n"}))
+    project = load_project(make_project({"links.csv": LINKS + "L1,a,b,OM4,120,2,\nL2,a,b,OS2,1500,1,,\n"}))
+    assert [(link.link_id, link.length_m, link.strands) for link in project.links] == [
+        ("L1", 120.0, 2), ("L2", 1500.0, 1)]
 
 
 def test_fiber_type_the_limit_set_does_not_cover(make_project):
