@@ -18,10 +18,11 @@ from reportgen.inputs.apptable import (
     describe_rows,
     load_applications,
     parse_applications,
-    validate_application_ids,
+    read_applications,
+    check_application_ids,
 )
 from reportgen.model import ApplicationVerdict, ReasonKind
-from reportgen.errors import ReportgenError
+from reportgen.errors import InputError
 from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
 from reportgen.engine.power import LossRange, judged_loss_ranges
@@ -182,8 +183,45 @@ def test_broken_table_is_named_precisely():
                               "test_wavelengths_nm": [850], "strands": 2,
                               "fibers": [{"types": ["OM9"], "max_length_m": 1,
                                           "max_loss_db": 1, "status": "from memory"}]}]}
-    with pytest.raises(ReportgenError, match=r"t\.yaml, application X\.fibers\[0\]\.types"):
+    with pytest.raises(InputError) as caught:
         parse_applications(data, "t.yaml")
+    assert [str(problem) for problem in caught.value.problems] == [
+        "t.yaml, application X.fibers[0].types: expected a list of fiber types, each one of OM1, OM2, "
+        "OM3, OM4, OM5, OS1, OS1a, OS2 (got \"['OM9']\")"]
+
+
+def test_every_problem_of_a_broken_table_is_named_at_once():
+    data = {"applications": [
+        {"id": "X", "family": "F", "source": "S", "operating_nm": [85], "test_wavelengths_nm": [850],
+         "strands": 2, "fibers": [{"types": ["OM4"], "max_length_m": -1, "max_loss_db": "2,5",
+                                   "status": "from memory"}]},
+        {"id": "x", "family": "F", "source": "S", "operating_nm": [850], "test_wavelengths_nm": [850],
+         "strands": 2.5, "fibers": [{"types": ["OM4"], "max_length_m": 1, "max_loss_db": 1,
+                                     "status": "guess"}]},
+    ]}
+    with pytest.raises(InputError) as caught:
+        parse_applications(data, "t.yaml")
+    assert [str(problem) for problem in caught.value.problems] == [
+        "t.yaml, application X.operating_nm: expected a wavelength in whole nm from 600 to 1700 (got '85')",
+        "t.yaml, application X.fibers[0].max_length_m: expected a number ≥ 0 (got '-1')",
+        "t.yaml, application X.fibers[0].max_loss_db: expected a number ≥ 0 "
+        "(write numbers with a decimal point, not a comma) (got '2,5')",
+        "t.yaml, application x.id: expected an id not used before, ignoring case "
+        "(applications[0] has it) (got 'x')",
+        "t.yaml, application x.strands: expected a whole number of fibers ≥ 1 (got '2.5')",
+        "t.yaml, application x.fibers[0].status: expected 'verified, secondary', 'derived' or "
+        "'from memory' (got 'guess')",
+    ]
+
+
+def test_application_table_file_with_a_repeated_key_is_refused():
+    text = "applications:\n  - {id: X, family: F, source: S, operating_nm: [850], strands: 2,\n" \
+           "     test_wavelengths_nm: [850], fibers: [{types: [OM4], max_length_m: 1, max_loss_db: 1,\n" \
+           "     status: from memory, max_loss_db: 2}]}\n"
+    with pytest.raises(InputError) as caught:
+        read_applications(text, "t.yaml")
+    assert [str(problem) for problem in caught.value.problems] == [
+        "t.yaml, line 4, max_loss_db: expected each key once in its mapping (first given on line 3)"]
 
 
 # --------------------------------------------------------------- input ids
@@ -192,8 +230,8 @@ def test_broken_table_is_named_precisely():
 @pytest.mark.parametrize(("written", "message"), [
     ("10GBASE-XX", "links.csv, line 5, applications: expected an application id such as "
                    "10GBASE-SR (see 'reportgen applications') (got '10GBASE-XX')"),
-    ("10gbase-lr", "links.csv, line 5, applications: expected an application id such as "
-                   "10GBASE-LR (see 'reportgen applications') (got '10gbase-lr')"),
+    ("10gbase-lx", "links.csv, line 5, applications: expected an application id such as "
+                   "10GBASE-LR (see 'reportgen applications') (got '10gbase-lx')"),
     ("PON B+", "links.csv, line 5, applications: expected an application id such as "
                    "PON-B+ (see 'reportgen applications') (got 'PON B+')"),
     ("token ring", "links.csv, line 5, applications: expected an application id such as "
@@ -201,11 +239,19 @@ def test_broken_table_is_named_precisely():
 ])
 def test_unknown_application_id_is_refused(written, message):
     link = make_link(applications=("10GBASE-SR", written), line=5)
-    assert [str(p) for p in validate_application_ids([link])] == [message]
+    assert [str(p) for p in check_application_ids([link])[1]] == [message]
 
 
 def test_known_application_ids_pass():
-    assert validate_application_ids([make_link(applications=tuple(REQUIRED_IDS))]) == []
+    link = make_link(applications=tuple(REQUIRED_IDS))
+    assert check_application_ids([link]) == ([link], [])
+
+
+def test_application_ids_are_matched_ignoring_case():
+    # IEEE 802.3 names its PMDs in capitals (10GBASE-SR); written in lower case it is the same PMD
+    link = make_link(applications=("10gbase-sr", "pon-b+"), line=5)
+    links, problems = check_application_ids([link])
+    assert (links[0].applications, problems) == (("10GBASE-SR", "PON-B+"), [])
 
 
 # --------------------------------------------------------------- assessment

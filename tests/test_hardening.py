@@ -100,9 +100,8 @@ BAD = [
                   "(file looks semicolon-separated with decimal commas; export it again as comma-separated CSV)"],
                  id="results semicolon separated, decimal comma"),
     pytest.param("results/day1.csv", "link_id,wavelength_nm,loss_db,tested_at\nL1,850,1,2,2030-01-15\n",
-                 ["results/day1.csv, line 2: expected at most 4 cells, one per header column; a decimal comma "
-                  "splits a number in two, write 1.25 not 1,25 (got '5 cells')",
-                  f"results/day1.csv, line 2, tested_at: expected {DATE} (got '2')"],
+                 ["results/day1.csv, line 2, loss_db: expected a number with a decimal point (the unquoted "
+                  "comma in 1,2 splits the row into 5 cells for 4 columns; write 1.2) (got '1,2')"],
                  id="results unquoted decimal comma"),
     pytest.param("results/day1.csv", "link_id,wavelength_nm,loss_db,tested_at,Loss_dB\n"
                                      "L1,850,1.2,2030-01-15,1.3\n",

@@ -159,17 +159,18 @@ BAD_CSV = [
                  id="links header only"),
     pytest.param("links.csv", "", "links.csv: expected a header row naming the columns (file is empty)",
                  id="links empty"),
-    pytest.param("links.csv", "link_id,end_a,end_b,fibre_type,length_m\nL1,a,b,OM4,1\n",
+    pytest.param("links.csv", "link_id,end_a,end_b,fibre_type,length_m\nL1,a,b,OM4,1\nL2,a,b,OS2,1500\n",
                  "links.csv, line 1, fiber_type: expected a column named fiber_type "
                  "(did you mean fiber_type instead of 'fibre_type'?)", id="misspelt column"),
-    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type\nL1,a,b,OM4\n",
+    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type\nL1,a,b,OM4\nL2,a,b,OS2\n",
                  "links.csv, line 1, length: expected a column named length, length_m or length_ft",
                  id="no length column"),
     pytest.param("links.csv", "link_id;end_a;end_b;fiber_type;length_m\nL1;a;b;OM4;1,5\n",
                  "links.csv, line 1: expected comma-separated values with a decimal point in numbers "
                  "(file looks semicolon-separated with decimal commas; export it again as comma-separated CSV)",
                  id="semicolon separated"),
-    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type,length_m,length_m\nL1,a,b,OM4,1,1\n",
+    pytest.param("links.csv", "link_id,end_a,end_b,fiber_type,length_m,length_m\nL1,a,b,OM4,1,1\n"
+                              "L2,a,b,OS2,1500,1500\n",
                  "links.csv, line 1, length_m: expected each column name once (found in columns 5 and 6)",
                  id="duplicate column"),
     pytest.param("links.csv", LINKS + "L1,a,b,OM9,120,1\nL2,a,b,OS2,1500,1\n",
@@ -188,8 +189,18 @@ BAD_CSV = [
                  "links.csv, line 2, length_m: expected a length in m, greater than 0 and at most 200 km "
                  "(write numbers with a decimal point, not a comma) (got '1,5')", id="decimal comma"),
     pytest.param("links.csv", LINKS + "L1,a,b,OM4,1,5,2\nL2,a,b,OS2,1500,1\n",
-                 "links.csv, line 2: expected at most 6 cells, one per header column; a decimal comma "
-                 "splits a number in two, write 1.25 not 1,25 (got '7 cells')", id="too many cells"),
+                 "links.csv, line 2, length_m: expected a number with a decimal point (the unquoted comma in "
+                 "1,5 splits the row into 7 cells for 6 columns; write 1.5) (got '1,5')",
+                 id="row split by a decimal comma"),
+    pytest.param("links.csv", "length_m,link_id,end_a,end_b,fiber_type,strands,connections\n"
+                              "120,L1,a,b,OM4,2,1,5\n1500,L2,a,b,OS2,1,0\n",
+                 "links.csv, line 2: expected at most 7 cells, one per header column (write numbers with a "
+                 "decimal point, 1.25 not 1,25, and put a text that contains a comma in double quotes) "
+                 "(got '8 cells')", id="too many cells"),
+    pytest.param("links.csv", LINKS + "L1,Room 1, rack 4,b,OM4,120,2\nL2,a,b,OS2,1500,1\n",
+                 "links.csv, line 2: expected at most 6 cells, one per header column (write numbers with a "
+                 "decimal point, 1.25 not 1,25, and put a text that contains a comma in double quotes) "
+                 "(got '7 cells')", id="unquoted comma in a text"),
     pytest.param("links.csv", LINKS + "L1,a,b,OM4,120,0\nL2,a,b,OS2,1500,1\n",
                  "links.csv, line 2, strands: expected a whole number from 1 to 1000 (got '0')", id="strands"),
     pytest.param("links.csv", LINKS + "L1,a,b,OM4,120,2\nL2,a,b,OS2,1500,1\nL1,a,b,OS2,1500,1\n",
@@ -289,6 +300,12 @@ BAD_CSV = [
 @pytest.mark.parametrize(("path", "content", "message"), BAD_CSV)
 def test_bad_csv_is_reported_precisely(make_project, path, content, message):
     assert problems_of(make_project({path: content})) == [message]
+
+
+def test_trailing_empty_cells_are_harmless(make_project):
+    project = load_project(make_project({"links.csv": LINKS + "L1,a,b,OM4,120,2,\nL2,a,b,OS2,1500,1,,\n"}))
+    assert [(link.link_id, link.length_m, link.strands) for link in project.links] == [
+        ("L1", 120.0, 2), ("L2", 1500.0, 1)]
 
 
 def test_fiber_type_the_limit_set_does_not_cover(make_project):

@@ -6,15 +6,17 @@ project names; :mod:`reportgen.engine.applications` assesses links against it.
 """
 from __future__ import annotations
 
+import dataclasses
 import difflib
+import math
 from collections.abc import Iterable, Mapping
 from functools import lru_cache
 from importlib import resources
 from typing import Any, Final
 
-import yaml
-
-from reportgen.errors import InputProblem, ReportgenError
+from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.checker import Checker, enum_choices, match_enum
+from reportgen.inputs.files import parse_yaml
 from reportgen.model import Application, ApplicationTable, FiberLimits, FiberType, Link
 
 TABLE_FILE: Final = "applications.yaml"
@@ -26,83 +28,140 @@ EXAMPLE_ID: Final = "10GBASE-SR"
 
 @lru_cache(maxsize=1)
 def load_applications() -> ApplicationTable:
-    """The built-in application table (read once)."""
+    """The built-in application table (read once, like project.yaml: a key given twice is refused).
+
+    Raises
+    ------
+    InputError
+        Every problem of the table at once (a broken table is a fault of this installation).
+    """
     text = (resources.files("reportgen") / "data" / TABLE_FILE).read_text(encoding="utf-8")
-    return parse_applications(yaml.safe_load(text), f"built-in {TABLE_FILE}")
+    return read_applications(text, f"built-in {TABLE_FILE}")
+
+
+def read_applications(text: str, shown: str) -> ApplicationTable:
+    """The table from the text of its YAML file; raises one InputError naming every problem."""
+    data, problems = parse_yaml(text, shown)
+    if data is None and problems:
+        raise InputError(problems)
+    table, value_problems = check_applications(data, shown)
+    if problems or table is None:
+        raise InputError(problems + value_problems)
+    return table
 
 
 def parse_applications(data: Any, shown_as: str) -> ApplicationTable:
-    """Check the table's YAML data; a broken table is an internal error, named precisely."""
+    """Check the table's YAML data; raises one InputError naming every bad value."""
+    table, problems = check_applications(data, shown_as)
+    if table is None:
+        raise InputError(problems)
+    return table
 
-    def fail(where: str, expected: str, found: Any) -> ReportgenError:
-        return ReportgenError(f"{shown_as}, {where}: expected {expected} (got {found!r})")
 
+def check_applications(data: Any, shown_as: str) -> tuple[ApplicationTable | None, list[InputProblem]]:
+    """The table from its YAML data, or None and every problem found (one per bad value)."""
+    check = Checker(None, shown_as)
     if not isinstance(data, Mapping) or not isinstance(data.get("applications"), list):
-        raise fail("applications", "a list of entries", type(data).__name__)
+        check.problem("applications", "a list of entries",
+                      data.get("applications") if isinstance(data, Mapping) else type(data).__name__)
+        return None, check.problems
     entries: list[Application] = []
+    first_index: dict[str, int] = {}
     for index, raw in enumerate(data["applications"]):
         where = f"applications[{index}]"
         if not isinstance(raw, Mapping):
-            raise fail(where, "a mapping", raw)
-        for key in ("id", "family", "source"):
-            if not isinstance(raw.get(key), str) or not raw[key].strip():
-                raise fail(f"{where}.{key}", "a non-empty text", raw.get(key))
-        where = f"application {raw['id']}"
-        if raw["id"] in {entry.id for entry in entries}:
-            raise fail(f"{where}.id", "an id not used before", raw["id"])
-        entries.append(Application(
-            id=raw["id"], family=raw["family"], source=raw["source"],
-            operating_nm=_wavelengths(raw.get("operating_nm"), f"{where}.operating_nm", fail),
-            test_wavelengths_nm=_wavelengths(raw.get("test_wavelengths_nm"),
-                                             f"{where}.test_wavelengths_nm", fail),
-            strands=int(_number(raw.get("strands"), f"{where}.strands", fail)),
-            fibers=_fiber_rows(raw.get("fibers"), f"{where}.fibers", fail),
-        ))
+            check.problem(where, "a mapping", raw)
+            continue
+        texts = {key: check.text(raw, key, f"{where}.{key}", required=True)
+                 for key in ("id", "family", "source")}
+        if texts["id"] is not None:
+            where = f"application {texts['id']}"
+            folded = texts["id"].lower()
+            if folded in first_index:  # ids are matched ignoring case, so they must differ in more
+                check.problem(f"{where}.id", "an id not used before, ignoring case "
+                              f"(applications[{first_index[folded]}] has it)", texts["id"])
+            first_index.setdefault(folded, index)
+        operating = _wavelengths(check, raw.get("operating_nm"), f"{where}.operating_nm")
+        tested = _wavelengths(check, raw.get("test_wavelengths_nm"), f"{where}.test_wavelengths_nm")
+        strands = _strands(check, raw.get("strands"), f"{where}.strands")
+        fibers = _fiber_rows(check, raw.get("fibers"), f"{where}.fibers")
+        if None in (*texts.values(), operating, tested, strands, fibers):
+            continue
+        entries.append(Application(id=texts["id"], family=texts["family"], source=texts["source"],
+                                   operating_nm=operating, test_wavelengths_nm=tested,
+                                   strands=strands, fibers=fibers))
+    if check.problems:
+        return None, check.problems
     return ApplicationTable(str(data.get("title", "")), dict(data.get("sources") or {}),
-                            tuple(entries))
+                            tuple(entries)), []
 
 
-def _number(value: Any, where: str, fail) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value < 0:
-        raise fail(where, "a number ≥ 0", value)
-    return float(value)
+def _strands(check: Checker, value: Any, where: str) -> int | None:
+    if value is None:
+        check.problem(where, "a whole number of fibers ≥ 1")
+        return None
+    number = check.number(value, where, "of fibers, a whole number ≥ 1", 1.0, math.inf)
+    if number is not None and number != int(number):
+        check.problem(where, "a whole number of fibers ≥ 1", value)
+        return None
+    return None if number is None else int(number)
 
 
-def _wavelengths(value: Any, where: str, fail) -> tuple[int, ...]:
-    if (not isinstance(value, list) or not value
-            or not all(isinstance(v, int) and not isinstance(v, bool) and v > 0 for v in value)):
-        raise fail(where, "a non-empty list of wavelengths in nm", value)
-    return tuple(value)
+def _loss(check: Checker, value: Any, where: str) -> float | None:
+    if value is None:
+        check.problem(where, "a number ≥ 0")
+        return None
+    return check.number(value, where, "≥ 0", 0.0, math.inf)
 
 
-def _fiber_rows(value: Any, where: str, fail) -> tuple[FiberLimits, ...]:
+def _wavelengths(check: Checker, value: Any, where: str) -> tuple[int, ...] | None:
     if not isinstance(value, list) or not value:
-        raise fail(where, "a non-empty list of rows", value)
+        check.problem(where, "a non-empty list of wavelengths in nm", value)
+        return None
+    wavelengths = [check.wavelength(item, where) for item in value]
+    return None if None in wavelengths else tuple(wavelengths)
+
+
+def _fiber_rows(check: Checker, value: Any, where: str) -> tuple[FiberLimits, ...] | None:
+    if not isinstance(value, list) or not value:
+        check.problem(where, "a non-empty list of rows", value)
+        return None
     rows: list[FiberLimits] = []
     covered: set[FiberType] = set()
+    complete = True
     for index, raw in enumerate(value):
         at = f"{where}[{index}]"
-        names = raw.get("types") if isinstance(raw, Mapping) else None
-        if not isinstance(names, list) or not names or not all(
-                name in {f.value for f in FiberType} for name in names):
-            raise fail(f"{at}.types", "a list of fiber types", names)
-        types = tuple(FiberType(name) for name in names)
-        if covered & set(types):
-            raise fail(f"{at}.types", "fiber types not listed in an earlier row", names)
+        if not isinstance(raw, Mapping):
+            check.problem(at, "a mapping with types, max_length_m, max_loss_db and status", raw)
+            complete = False
+            continue
+        names = raw.get("types")
+        types = tuple(match_enum(FiberType, str(name)) for name in names) if isinstance(names, list) else ()
+        if not types or None in types:
+            check.problem(f"{at}.types", f"a list of fiber types, each one of {enum_choices(FiberType)}",
+                          names)
+            types = ()
+        elif covered & set(types):
+            check.problem(f"{at}.types", "fiber types not listed in an earlier row", names)
+            types = ()
         covered |= set(types)
         status = raw.get("status")
         if not isinstance(status, str) or not any(
                 word in status for word in ("verified", "derived", "from memory")):
-            raise fail(f"{at}.status", "'verified, secondary', 'derived' or 'from memory'", status)
+            check.problem(f"{at}.status", "'verified, secondary', 'derived' or 'from memory'",
+                          *(() if status is None else (status,)))
+            status = None
+        max_length_m = _loss(check, raw.get("max_length_m"), f"{at}.max_length_m")
+        max_loss_db = _loss(check, raw.get("max_loss_db"), f"{at}.max_loss_db")
         min_loss = raw.get("min_loss_db")
-        rows.append(FiberLimits(
-            fiber_types=types,
-            max_length_m=_number(raw.get("max_length_m"), f"{at}.max_length_m", fail),
-            max_loss_db=_number(raw.get("max_loss_db"), f"{at}.max_loss_db", fail),
-            min_loss_db=None if min_loss is None else _number(min_loss, f"{at}.min_loss_db", fail),
-            status=status,
-        ))
-    return tuple(rows)
+        min_loss_db = None if min_loss is None else _loss(check, min_loss, f"{at}.min_loss_db")
+        if (not types or status is None or max_length_m is None or max_loss_db is None
+                or (min_loss is not None and min_loss_db is None)):
+            complete = False
+            continue
+        rows.append(FiberLimits(fiber_types=types, max_length_m=max_length_m, max_loss_db=max_loss_db,
+                                min_loss_db=min_loss_db, status=status))
+    return tuple(rows) if complete else None
 
 
 DESCRIBE_COLUMNS: Final[tuple[str, ...]] = (
@@ -137,20 +196,26 @@ def describe_rows(table: ApplicationTable | None = None) -> list[dict[str, Any]]
     ]
 
 
-def validate_application_ids(
+def check_application_ids(
     links: Iterable[Link], table: ApplicationTable | None = None
-) -> list[InputProblem]:
-    """One problem per application id in links.csv that the table does not know.
+) -> tuple[list[Link], list[InputProblem]]:
+    """The links with their application ids in the table's spelling, and one problem per
+    application id in links.csv that the table does not know.
 
-    The example in the message is the closest known id (difflib, case-insensitive),
-    or 10GBASE-SR when nothing is close.
+    Ids are matched ignoring case (``10gbase-sr`` is ``10GBASE-SR``): the trade writes PMD
+    names in either case and no two entries of the table differ only in case. The example
+    in a problem is the closest known id (difflib, case-insensitive), or 10GBASE-SR when
+    nothing is close.
     """
     table = table or load_applications()
     known = {application_id.upper(): application_id for application_id in table.ids}
+    checked: list[Link] = []
     problems = []
     for link in links:
+        spelt = []
         for application_id in link.applications:
-            if application_id in table:
+            if application_id.upper() in known:
+                spelt.append(known[application_id.upper()])
                 continue
             close = difflib.get_close_matches(application_id.upper(), list(known), n=1)
             example = known[close[0]] if close else EXAMPLE_ID
@@ -158,4 +223,6 @@ def validate_application_ids(
                 "links.csv", link.line or None, "applications",
                 f"an application id such as {example} (see 'reportgen applications')",
                 application_id))
-    return problems
+        checked.append(link if tuple(spelt) == link.applications
+                       else dataclasses.replace(link, applications=tuple(spelt)))
+    return checked, problems

@@ -10,7 +10,7 @@ import difflib
 import functools
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from enum import StrEnum
 from pathlib import Path
 from typing import Any, Final, TypeVar
@@ -20,6 +20,9 @@ from reportgen.inputs.files import as_written, clip, resolve_inside, shown_value
 
 # A decimal number as written in a text file: digits with a point, optional exponent.
 NUMBER_TEXT: Final = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
+# A number written with a decimal comma (1,25): refused everywhere, with DECIMAL_HINT.
+DECIMAL_COMMA_TEXT: Final = re.compile(r"[+-]?\d+,\d+", re.ASCII)
+DECIMAL_HINT: Final = " (write numbers with a decimal point, not a comma)"
 # Test wavelengths accepted anywhere [nm]: the fiber windows in use, 600 to 1700 nm.
 WAVELENGTH_RANGE_NM: Final = (600, 1700)
 _MISSING = object()
@@ -40,6 +43,25 @@ def match_enum(enum: type[E], text: str) -> E | None:
     return _members_by_text(enum).get(text.strip().lower())
 
 
+def by_lower_case(known: Collection[str]) -> dict[str, str]:
+    """Known ids by their lower-case spelling (of ids differing only in case, the first sorted)."""
+    by_lower: dict[str, str] = {}
+    for name in sorted(known):
+        by_lower.setdefault(name.lower(), name)
+    return by_lower
+
+
+def closest(text: str, by_lower: Mapping[str, str], cutoff: float = 0.8) -> str | None:
+    """The known id ``text`` most likely meant: one differing only in case, else the closest by
+    difflib (ignoring case, similarity at least ``cutoff``); None when nothing is close.
+    ``by_lower`` is :func:`by_lower_case` of the known ids."""
+    folded = text.strip().lower()
+    if folded in by_lower:
+        return by_lower[folded]
+    close = difflib.get_close_matches(folded, list(by_lower), n=1, cutoff=cutoff)
+    return by_lower[close[0]] if close else None
+
+
 def _shown(value: Any) -> str:
     """A value quoted back in a problem: numbers as written, structures never expanded in full."""
     written = getattr(value, "yaml_text", None)
@@ -49,7 +71,7 @@ def _shown(value: Any) -> str:
 class Checker:
     """Collects the problems of one YAML file while reading its values."""
 
-    def __init__(self, root: Path, file: str,
+    def __init__(self, root: Path | None, file: str,
                  keys: Mapping[str, tuple[str, ...]] | None = None,
                  required_keys: frozenset[tuple[str, str]] = frozenset()) -> None:
         self.root = root
@@ -100,7 +122,8 @@ class Checker:
                 continue
             close = difflib.get_close_matches(key.lower(), known, n=1, cutoff=0.8)
             if close and close[0] not in data and not self._required(path, close[0]):
-                self.problem(f"{path}.{clip(key)}", f"a key the format knows (did you mean {close[0]}?)")
+                self.problem(f"{path}.{clip(key)}" if path else clip(key),
+                             f"a key the format knows (did you mean {close[0]}?)")
 
     def _required(self, path: str, key: str) -> bool:
         return (path, key) in self.required_keys
@@ -135,8 +158,8 @@ class Checker:
             except OverflowError:  # an integer of hundreds of digits
                 value = math.inf
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            hint = " (write numbers with a decimal point, not a comma)" if isinstance(value, str) \
-                and "," in value else ""
+            hint = DECIMAL_HINT if isinstance(value, str) and DECIMAL_COMMA_TEXT.fullmatch(value.strip()) \
+                else ""
             self.problem(path, f"a number {expected}{hint}", written)
             return None
         if value < low or value > high or (low_open and value == low):
@@ -152,7 +175,7 @@ class Checker:
         return int(value)
 
     def inside_path(self, value: Any, path: str, what: str) -> Path | None:
-        if not isinstance(value, str) or not value.strip():
+        if self.root is None or not isinstance(value, str) or not value.strip():
             self.problem(path, f"a path to {what} inside the project folder", value)
             return None
         resolved = resolve_inside(self.root, value)

@@ -3,20 +3,28 @@
 A limit set holds the allowances of one standard and edition (attenuation per
 fiber type and wavelength, connection and splice allowances), each value with
 its source. See ``reportgen/data/limits/*.yaml`` and docs/project-format.md.
+Both kinds are read like project.yaml (``reportgen.inputs.files.parse_yaml``: a key
+given twice is refused with its line) and checked by one collecting
+:class:`reportgen.inputs.checker.Checker`: every bad value is one problem.
 """
 from __future__ import annotations
 
 from collections.abc import Mapping
 from importlib import resources
 from pathlib import Path
-from typing import Any
-
-import yaml
+from typing import Any, Final
 
 from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.checker import Checker, enum_choices, match_enum
+from reportgen.inputs.files import parse_yaml, read_yaml
 from reportgen.model import FiberType, LimitSet
 
-_MAX_DB = 100.0  # sanity bound for any allowance [dB] or coefficient [dB/km]
+_MAX_DB: Final = 100.0  # sanity bound for any allowance [dB] or coefficient [dB/km]
+_ALLOWANCE: Final = f"of dB from 0 to {_MAX_DB:g}"
+_TABLES: Final = ("attenuation_db_per_km", "attenuation_db_per_km_outside")
+_KEYS: Final = {"": ("id", "title", "source", "connection_db", "splice_db", *_TABLES, "sources", "notes")}
+_REQUIRED: Final = frozenset({("", "id"), ("", "title"), ("", "source"), ("", "connection_db"),
+                              ("", "splice_db"), ("", "attenuation_db_per_km")})
 
 
 def _builtin_dir():
@@ -32,65 +40,76 @@ def builtin_ids() -> list[str]:
     )
 
 
+def builtin_id(written: str) -> str | None:
+    """The built-in limit set id ``written`` names, ignoring case and surrounding blanks
+    (``TIA-568.3-D`` is ``tia-568.3-d``: standards are named in either case); else None."""
+    by_lower = {set_id.lower(): set_id for set_id in builtin_ids()}
+    return by_lower.get(written.strip().lower())
+
+
 def load_builtin_limit_set(set_id: str) -> LimitSet:
-    """A built-in limit set by id; raises KeyError for an unknown id."""
-    if set_id not in builtin_ids():
+    """A built-in limit set by id (any case); raises KeyError for an unknown id."""
+    found = builtin_id(set_id)
+    if found is None:
         raise KeyError(set_id)
-    text = (_builtin_dir() / f"{set_id}.yaml").read_text(encoding="utf-8")
-    return parse_limit_set(yaml.safe_load(text), f"built-in limit set {set_id}", "built-in")
+    shown = f"built-in limit set {found}"
+    data, problems = parse_yaml((_builtin_dir() / f"{found}.yaml").read_text(encoding="utf-8"), shown)
+    return _checked(data, problems, shown, "built-in")
 
 
 def load_limit_file(path: Path, shown_as: str) -> LimitSet:
-    """A project's own limit set file; problems name the file as ``shown_as``."""
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as error:
-        raise InputError([InputProblem(shown_as, None, None, "a readable UTF-8 YAML limit set",
-                                       type(error).__name__)]) from error
-    try:
-        data = yaml.safe_load(text)
-    except yaml.YAMLError as error:
-        mark = getattr(error, "problem_mark", None)
-        line = mark.line + 1 if mark is not None else None
-        column = f"column {mark.column + 1}" if mark is not None else None
-        raise InputError([InputProblem(shown_as, line, column, "valid YAML",
-                                       str(getattr(error, "problem", error)))]) from error
-    return parse_limit_set(data, shown_as, shown_as)
+    """A project's own limit set file; problems name the file as ``shown_as``.
+
+    Read as project.yaml is (size guard, UTF-8, YAML with duplicate keys refused);
+    raises InputError holding every problem of the file.
+    """
+    data, problems = read_yaml(path, shown_as)
+    return _checked(data, problems, shown_as, shown_as)
+
+
+def _checked(data: Any, problems: list[InputProblem], shown_as: str, origin: str) -> LimitSet:
+    if data is None and problems:  # unreadable, or not YAML at all
+        raise InputError(problems)
+    limits, value_problems = check_limit_set(data, shown_as, origin)
+    if problems or limits is None:
+        raise InputError(problems + value_problems)
+    return limits
 
 
 def parse_limit_set(data: Any, shown_as: str, origin: str) -> LimitSet:
-    """Check a limit set's YAML data; collects every problem into one InputError."""
-    problems: list[InputProblem] = []
+    """Check a limit set's YAML data; raises one InputError holding every problem."""
+    limits, problems = check_limit_set(data, shown_as, origin)
+    if limits is None:
+        raise InputError(problems)
+    return limits
 
-    def problem(field: str | None, expected: str, found: Any = None) -> None:
-        problems.append(InputProblem(shown_as, None, field, expected,
-                                     None if found is None else str(found)))
 
+def check_limit_set(data: Any, shown_as: str, origin: str) -> tuple[LimitSet | None, list[InputProblem]]:
+    """Check a limit set's YAML data: the set, or None and every problem found."""
+    check = Checker(None, shown_as, _KEYS, _REQUIRED)
     if not isinstance(data, Mapping):
-        raise InputError([InputProblem(shown_as, None, None, "a YAML mapping with id, title, "
-                                       "source, connection_db, splice_db, attenuation_db_per_km",
-                                       type(data).__name__)])
-    for key in ("id", "title", "source"):
-        if not isinstance(data.get(key), str) or not data.get(key).strip():
-            problem(key, "a non-empty text", data.get(key))
-    allowances = {key: _number(data.get(key), f"{key}", problem) for key in ("connection_db", "splice_db")}
-    tables = {}
-    for key in ("attenuation_db_per_km", "attenuation_db_per_km_outside"):
-        tables[key] = _table(data.get(key), key, problem, required=key == "attenuation_db_per_km")
+        check.problem(None, "a YAML mapping with id, title, source, connection_db, splice_db, "
+                            "attenuation_db_per_km",
+                      "an empty file" if data is None else type(data).__name__)
+        return None, check.problems
+    check.misspelt_keys(data, "")
+    texts = {key: check.text(data, key, key, required=True) for key in ("id", "title", "source")}
+    allowances = {key: _allowance(check, data, key) for key in ("connection_db", "splice_db")}
+    tables = {key: _table(check, data.get(key), key, required=key == _TABLES[0]) for key in _TABLES}
     sources = data.get("sources") or {}
     if not isinstance(sources, Mapping) or not all(isinstance(v, str) for v in sources.values()):
-        problem("sources", "a mapping of key path to citation text", sources)
+        check.problem("sources", "a mapping of key path to citation text", sources)
         sources = {}
     notes = data.get("notes") or []
     if not isinstance(notes, list) or not all(isinstance(n, str) for n in notes):
-        problem("notes", "a list of texts", notes)
+        check.problem("notes", "a list of texts", notes)
         notes = []
-    if problems:
-        raise InputError(problems)
+    if check.problems:
+        return None, check.problems
     return LimitSet(
-        id=data["id"].strip(),
-        title=data["title"].strip(),
-        source=data["source"].strip(),
+        id=texts["id"],
+        title=texts["title"],
+        source=texts["source"],
         connection_db=allowances["connection_db"],
         splice_db=allowances["splice_db"],
         attenuation_db_per_km=tables["attenuation_db_per_km"],
@@ -98,40 +117,37 @@ def parse_limit_set(data: Any, shown_as: str, origin: str) -> LimitSet:
         sources={str(k): v for k, v in sources.items()},
         notes=tuple(notes),
         origin=origin,
-    )
+    ), []
 
 
-def _number(value: Any, field: str, problem) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 <= value <= _MAX_DB:
-        problem(field, f"a number of dB from 0 to {_MAX_DB:g}", value)
-        return 0.0
-    return float(value)
+def _allowance(check: Checker, data: Mapping[str, Any], key: str) -> float | None:
+    value = check.get(data, key, key, f"a number {_ALLOWANCE}", required=True)
+    return None if value is None else check.number(value, key, _ALLOWANCE, 0.0, _MAX_DB)
 
 
-def _table(value: Any, key: str, problem, *, required: bool) -> dict[FiberType, dict[int, float]]:
+def _table(check: Checker, value: Any, key: str, *, required: bool) -> dict[FiberType, dict[int, float]]:
     if value is None and not required:
         return {}
     if not isinstance(value, Mapping) or not value:
-        problem(key, "a mapping of fiber type to {wavelength_nm: dB/km}", value)
+        check.problem(key, "a mapping of fiber type to {wavelength_nm: dB/km}",
+                      *(() if value is None else (value,)))
         return {}
-    by_name = {member.value.lower(): member for member in FiberType}
     table: dict[FiberType, dict[int, float]] = {}
     for fiber_name, row in value.items():
-        fiber = by_name.get(str(fiber_name).strip().lower())
+        path = f"{key}.{fiber_name}"
+        fiber = match_enum(FiberType, str(fiber_name))
         if fiber is None:
-            problem(f"{key}.{fiber_name}",
-                    f"a fiber type, one of {', '.join(m.value for m in FiberType)}", fiber_name)
+            check.problem(path, f"a fiber type, one of {enum_choices(FiberType)}", fiber_name)
             continue
         if not isinstance(row, Mapping) or not row:
-            problem(f"{key}.{fiber_name}", "a mapping of wavelength [nm] to dB/km", row)
+            check.problem(path, "a mapping of wavelength [nm] to dB/km", row)
             continue
         table[fiber] = {}
         for wavelength, alpha in row.items():
-            if isinstance(wavelength, bool) or not isinstance(wavelength, int) or not 600 <= wavelength <= 1700:
-                problem(f"{key}.{fiber_name}", "wavelengths as whole numbers of nm from 600 to 1700",
-                        wavelength)
-                continue
-            table[fiber][wavelength] = _number(alpha, f"{key}.{fiber_name}.{wavelength}", problem)
+            wavelength_nm = check.wavelength(wavelength, path)
+            coefficient = check.number(alpha, f"{path}.{wavelength}", _ALLOWANCE, 0.0, _MAX_DB)
+            if wavelength_nm is not None and coefficient is not None:
+                table[fiber][wavelength_nm] = coefficient
     return table
 
 

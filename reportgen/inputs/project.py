@@ -8,14 +8,13 @@ within a CSV file by line). The folder is only read, never written.
 from __future__ import annotations
 
 import dataclasses
-import re
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Final
 
 import pandas as pd
 
-from reportgen.inputs.apptable import load_applications, validate_application_ids
+from reportgen.inputs.apptable import check_application_ids, load_applications
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
 from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_yaml
@@ -29,10 +28,10 @@ from reportgen.model import (
     Project,
     Transceiver,
 )
-from reportgen.inputs.checker import NUMBER_TEXT, enum_choices, match_enum
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, enum_choices, match_enum
 from reportgen.inputs.project_yaml import Settings, check_project_yaml
 from reportgen.units import ft_to_m
-from reportgen.inputs.results import DECIMAL_HINT, EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
+from reportgen.inputs.results import EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
 from reportgen.inputs.results import OPTIONAL as RESULT_OPTIONAL
 from reportgen.inputs.results import REQUIRED as RESULT_REQUIRED
 
@@ -43,7 +42,6 @@ LINK_OPTIONAL: Final = ("plant", "strands", "connections", "splices", "component
                         "transceiver", "notes")
 MAX_STRANDS: Final = 1000
 MAX_COUNT: Final = 1000  # connections or splices on one link
-_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+", re.ASCII)
 
 
 def load_project(project_dir: Path) -> Project:
@@ -78,7 +76,8 @@ def load_project(project_dir: Path) -> Project:
     problems += _wavelength_coverage(settings, links)
     problems += link_problems
     applications = load_applications()
-    problems += validate_application_ids(links, applications)
+    links, application_problems = check_application_ids(links, applications)
+    problems += application_problems
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
@@ -91,7 +90,8 @@ def load_project(project_dir: Path) -> Project:
             problems.append(outside_problem(shown))
             continue
         files.append(shown)
-        table, table_problems = read_csv(path, shown, required=RESULT_REQUIRED, optional=RESULT_OPTIONAL)
+        table, table_problems = read_csv(path, shown, required=RESULT_REQUIRED, optional=RESULT_OPTIONAL,
+                                         decimal=("loss_db", *LENGTH_COLUMNS))
         if table is None:
             problems += table_problems
             continue
@@ -154,14 +154,16 @@ def _load_links(root: Path, settings: Settings
     if not path.is_file():
         return [], None, [InputProblem(LINKS_FILE, None, None,
                                        "a file links.csv in the project folder (not found)")]
-    table, problems = read_csv(path, LINKS_FILE, required=LINK_REQUIRED, optional=LINK_OPTIONAL)
+    table, problems = read_csv(path, LINKS_FILE, required=LINK_REQUIRED, optional=LINK_OPTIONAL,
+                               decimal=LENGTH_COLUMNS)
     if table is None:
         return [], None, problems
     if len(table) == 0:
-        return [], None, problems + [InputProblem(LINKS_FILE, None, None,
-                                                  "at least one link row below the header")]
+        return [], None, problems or [InputProblem(LINKS_FILE, None, None,
+                                                   "at least one link row below the header")]
     links, row_problems = check_links(table, settings)
-    return links, frozenset(table.columns["link_id"]) - {""}, _by_line(problems + row_problems)
+    all_ids = frozenset(table.columns["link_id"]) - {""} if table.has("link_id") else None
+    return links, all_ids, _by_line(problems + row_problems)
 
 
 def _printable(problem: InputProblem) -> InputProblem:
@@ -181,7 +183,7 @@ def _number(text: str, column: str, expected: str, line: int, file: str,
             problems: list[InputProblem]) -> float | None:
     if NUMBER_TEXT.fullmatch(text):
         return float(text)
-    hint = DECIMAL_HINT if _DECIMAL_COMMA.fullmatch(text) else ""
+    hint = DECIMAL_HINT if DECIMAL_COMMA_TEXT.fullmatch(text) else ""
     problems.append(InputProblem(file, line, column, expected + hint, clip(text)))
     return None
 
@@ -224,10 +226,16 @@ def check_links(table: CsvTable, settings: Settings) -> tuple[list[Link], list[I
     links: list[Link] = []
     problems: list[InputProblem] = []
     first_line: dict[str, int] = {}
+    # required columns the header lacks: reported once on the header, not on every row
+    absent = {group[0] for group in LINK_REQUIRED if not any(table.has(name) for name in group)}
     for row, line in enumerate(table.lines):
+        if line in table.unreadable:  # reported once as a row of too many cells
+            continue
         row_problems: list[InputProblem] = []
 
         def problem(column: str, expected: str, found: str | None = None) -> None:
+            if column in absent:
+                return
             row_problems.append(InputProblem(file, line, column, expected,
                                              None if found is None else clip(found)))
 
@@ -290,6 +298,8 @@ def _link_length(get: Mapping[str, Sequence[str]], present: Sequence[str], row: 
                  units: LengthUnit | None, problem, line: int, file: str,
                  row_problems: list[InputProblem]) -> float | None:
     """Documented length [m] from exactly one of length (testing.units), length_m, length_ft."""
+    if not present:  # no length column: reported once on the header
+        return None
     given = [name for name in present if get[name][row]]
     if len(given) != 1:
         field = "/".join(present)

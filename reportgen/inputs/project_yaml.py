@@ -18,7 +18,7 @@ from reportgen.inputs import catalogs
 from reportgen.inputs.checker import Checker as _BaseChecker, enum_choices, match_enum
 from reportgen.inputs import limits as limit_sets
 from reportgen.errors import InputError, InputProblem
-from reportgen.inputs.files import MAX_FILE_BYTES, is_inside, resolve_inside, shown_path, size_in_mb
+from reportgen.inputs.files import is_inside, resolve_inside, shown_path, size_in_mb
 from reportgen.model import (
     DEFAULT_ATTENUATORS_DB,
     DEFAULT_WAVELENGTHS_NM,
@@ -173,9 +173,8 @@ def _testing(check: Checker, data: Mapping[str, Any]):
 
 def _limit_set(check: Checker, written: str) -> tuple[LimitSet | None, str | None]:
     ids = limit_sets.builtin_ids()
-    by_lower = {set_id.lower(): set_id for set_id in ids}
-    if written.lower() in by_lower:
-        set_id = by_lower[written.lower()]
+    set_id = limit_sets.builtin_id(written)
+    if set_id is not None:
         return limit_sets.load_builtin_limit_set(set_id), set_id
     expected = (f"a built-in limit set ({', '.join(ids)}) or a path to a limits YAML file "
                 "inside the project folder")
@@ -184,19 +183,12 @@ def _limit_set(check: Checker, written: str) -> tuple[LimitSet | None, str | Non
         check.problem("testing.limits", expected + " (symbolic links are followed)", written)
         return None, None
     if not resolved.is_file():
-        close = difflib.get_close_matches(written.lower(), list(by_lower), n=1, cutoff=0.6)
-        hint = f" (did you mean {by_lower[close[0]]}?)" if close else ""
+        close = difflib.get_close_matches(written.lower(), ids, n=1, cutoff=0.6)
+        hint = f" (did you mean {close[0]}?)" if close else ""
         check.problem("testing.limits", expected + hint, written)
         return None, None
-    shown = shown_path(check.root, resolved)
-    size = resolved.stat().st_size
-    if size > MAX_FILE_BYTES:
-        check.problems.append(InputProblem(
-            shown, None, None, f"a file of at most {size_in_mb(MAX_FILE_BYTES)} MB; "
-                               f"this file is {size_in_mb(size)} MB"))
-        return None, None
     try:
-        return limit_sets.load_limit_file(resolved, shown), written
+        return limit_sets.load_limit_file(resolved, shown_path(check.root, resolved)), written
     except InputError as error:
         check.problems.extend(error.problems)
         return None, None

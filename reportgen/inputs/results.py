@@ -15,7 +15,7 @@ import pandas as pd
 
 from reportgen.inputs.csvread import CsvTable
 from reportgen.errors import InputProblem
-from reportgen.inputs.checker import WAVELENGTH_RANGE_NM
+from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM, by_lower_case, closest
 from reportgen.inputs.files import clip
 from reportgen.model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
 from reportgen.units import M_PER_FT
@@ -27,9 +27,9 @@ OPTIONAL: Final = ("strand", "direction", "instrument", "technician", "note", *L
 MAX_LOSS_DB: Final = 100.0
 MAX_STRAND: Final = 1000  # as links.csv strands
 MAX_LENGTH_M: Final = 200_000.0  # 200 km
+MAX_HINTED: Final = 100  # unknown link ids per file given a "did you mean"
 YEAR_RANGE: Final = (1900, 2199)
 EMPTY: Final = " (the cell is empty)"
-DECIMAL_HINT: Final = " (write numbers with a decimal point, not a comma)"
 
 
 @dataclass(frozen=True)
@@ -48,13 +48,19 @@ class _Collector:
 
     def __init__(self, table: CsvTable) -> None:
         self.table = table
+        # required columns the header lacks: that is one header problem, not one per row
+        self.absent = {name for name in REQUIRED_NAMES if not table.has(name)}
         self.items: list[tuple[int, int, InputProblem]] = []
         self.order = 0
 
     def add(self, mask: np.ndarray, column: str, expected, found) -> None:
         """One problem for every row where ``mask`` is true; ``expected`` may be a function of the row."""
         self.order += 1
+        if column in self.absent:
+            return
         for row in np.flatnonzero(mask):
+            if self.table.lines[row] in self.table.unreadable:
+                continue
             text = expected(row) if callable(expected) else expected
             value = found(row) if callable(found) else None if found is None else found[row]
             shown = None if value is None else clip(str(value))
@@ -70,15 +76,33 @@ def _numbers(texts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     if len(texts) == 0:
         return np.zeros(0), np.zeros(0, bool)
     codes, uniques = pd.factorize(texts)
-    numbers = np.array(pd.to_numeric(pd.Series(uniques, dtype=object), errors="coerce"), dtype=float)
+    numbers = np.array([float(text) if NUMBER_TEXT.fullmatch(text) else np.nan for text in uniques],
+                       dtype=float)
     bad_unique = (uniques != "") & ~np.isfinite(numbers)
     numbers[bad_unique] = np.nan
     return numbers[codes], bad_unique[codes]
 
 
 def _number_hint(texts: np.ndarray, row: int) -> str:
-    text = texts[row].lstrip("+-")
-    return DECIMAL_HINT if "," in text and text.replace(",", "", 1).isdigit() else ""
+    return DECIMAL_HINT if DECIMAL_COMMA_TEXT.fullmatch(texts[row]) else ""
+
+
+def _link_hints(unique_ids: np.ndarray, defined: np.ndarray, all_link_ids: frozenset[str]) -> list[str]:
+    """" (did you mean A-BB-01?)" for each unknown id that differs from a link_id of links.csv only
+    in case or is close to one; difflib is asked for the first MAX_HINTED unknown ids only."""
+    hints = [""] * len(unique_ids)
+    if defined.all():
+        return hints
+    known = by_lower_case(all_link_ids)
+    asked = 0
+    for index in np.flatnonzero(~defined):
+        if unique_ids[index] == "" or asked >= MAX_HINTED:
+            continue
+        asked += 1
+        meant = closest(unique_ids[index], known)
+        if meant is not None:
+            hints[index] = f" (did you mean {clip(meant)}?)"
+    return hints
 
 
 def _whole(values: np.ndarray) -> np.ndarray:
@@ -100,7 +124,9 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     if context.all_link_ids is not None:
         defined = np.array([link_id in context.all_link_ids for link_id in unique_ids], dtype=bool)
         unknown = ~empty_id & ~defined[id_codes] if len(id_codes) else empty_id
-        out.add(unknown, "link_id", "a link_id defined in links.csv", link_ids)
+        hints = _link_hints(unique_ids, defined, context.all_link_ids)
+        out.add(unknown, "link_id", lambda row: f"a link_id defined in links.csv{hints[id_codes[row]]}",
+                link_ids)
     links = context.links or {}
     unique_links = [links.get(link_id) for link_id in unique_ids]
 
@@ -190,7 +216,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     measured_m = _measured_length(column, table, context.units, out)
 
     problems = out.sorted()
-    if problems:
+    if problems or out.absent:
         return None, problems
     frame = pd.DataFrame({
         "source_file": pd.Series([table.file] * n, dtype="str"),
