@@ -129,7 +129,7 @@ LIMIT_SET_DOCUMENTS = {
                    "premises, Part 1: General requirements",
     # ISO/IEC 11801:2002 title (verified, secondary)
     "iso-11801-2002": "ISO/IEC 11801:2002, Information technology, Generic cabling for customer premises",
-    # ANSI/TIA-568-C.3 title (verified, secondary)
+    # ANSI/TIA-568-C.3 title (from memory)
     "tia-568-c.3": "ANSI/TIA-568-C.3 (2008), Optical Fiber Cabling Components Standard",
     # ANSI/TIA-568.3-D title (from memory)
     "tia-568.3-d": "ANSI/TIA-568.3-D (2016), Optical Fiber Cabling and Components Standard",
@@ -286,7 +286,7 @@ APP_ROWS: dict[tuple[str, str], tuple[float, float | None, float, tuple[str, ...
 # Per application: family, the document cited, operating wavelengths [nm], test
 # wavelengths standing for them [nm], fibers per channel.
 APP_ENTRIES: dict[str, tuple[str, str, tuple[int, ...], tuple[int, ...], int]] = {
-    # IEEE 802.3 clause per PMD (clause numbers verified, secondary, reference-values §4);
+    # IEEE 802.3 clause per PMD (as reference-values §4 names them);
     # wavelengths: 850 nm short-reach, 1310 nm long-reach, 1550 nm extended-reach (common
     # practice); lane wavelengths of the WDM PMDs and fiber counts of the parallel PMDs
     # (4 or 8 lanes each way) from memory; the test wavelength nearest the operating one
@@ -308,8 +308,8 @@ APP_ENTRIES: dict[str, tuple[str, str, tuple[int, ...], tuple[int, ...], int]] =
     "16GFC": ("Fibre Channel", "INCITS FC-PI-5", (850,), (850,), 2),
     "32GFC": ("Fibre Channel", "INCITS FC-PI-6", (850,), (850,), 2),
     # ITU-T G.984.2 (GPON: 1310 nm up, 1490 nm down) and G.987.2 / G.9807.1 (XG(S)-PON:
-    # 1270 nm up, 1577 nm down), one fiber; tested at 1310 and 1550 nm (verified in
-    # reference-values §4 for the classes; test wavelengths common practice)
+    # 1270 nm up, 1577 nm down), one fiber (from memory); tested at 1310 and 1550 nm, the
+    # test wavelengths nearest (common practice)
     **{f"PON-{c}": ("PON", "ITU-T G.984.2", (1310, 1490), (1310, 1550), 1) for c in ("A", "B", "B+", "C", "C+")},
     **{f"PON-{c}": ("PON", "ITU-T G.987.2 / G.9807.1", (1270, 1577), (1310, 1550), 1)
        for c in ("N1", "N2", "E1", "E2")},
