@@ -161,7 +161,7 @@ class Transceiver:
     wavelength_nm: int
     tx_min_dbm: float
     tx_max_dbm: float
-    rx_sensitivity_dbm: float
+    rx_sensitivity_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
     rx_overload_dbm: float
     description: str | None = None
 

@@ -16,6 +16,12 @@ from reportgen.inputs.checker import Checker
 
 MAX_COMPONENT_LOSS_DB: Final = 60.0
 POWER_RANGE_DBM: Final = (-60.0, 30.0)  # sanity bounds for transceiver powers
+# The receiver's lowest average receive power. IEEE 802.3 gives it as "average receive
+# power, min" (informative), not as the receiver sensitivity (stated in OMA). The earlier
+# key name is still accepted; giving both is refused. The model keeps the field name
+# Transceiver.rx_sensitivity_dbm for this value.
+RX_MIN_KEY: Final = "rx_min_average_dbm"
+RX_MIN_OLD_KEY: Final = "rx_sensitivity_dbm"
 
 
 def _catalog_id(check: Checker, key: Any, path: str) -> str | None:
@@ -72,17 +78,24 @@ def transceivers(check: Checker, value: Any) -> dict[str, Transceiver] | None:
         transceiver_id = _catalog_id(check, key, path)
         if not isinstance(entry, Mapping):
             check.problem(path, "a mapping with wavelength_nm, tx_min_dbm, tx_max_dbm, "
-                                "rx_sensitivity_dbm, rx_overload_dbm", entry)
+                                f"{RX_MIN_KEY}, rx_overload_dbm", entry)
             complete = False
             continue
         wavelength = check.get(entry, "wavelength_nm", f"{path}.wavelength_nm",
                                "a wavelength in whole nm", required=True)
         wavelength_nm = None if wavelength is None else check.wavelength(wavelength, f"{path}.wavelength_nm")
+        rx_min_key = RX_MIN_OLD_KEY if RX_MIN_OLD_KEY in entry and RX_MIN_KEY not in entry else RX_MIN_KEY
+        if RX_MIN_OLD_KEY in entry and RX_MIN_KEY in entry:
+            check.problem(f"{path}.{RX_MIN_OLD_KEY}", f"{RX_MIN_KEY} or its earlier name "
+                          f"{RX_MIN_OLD_KEY}, not both", entry[RX_MIN_OLD_KEY])
+            complete = False
+        keys = {"tx_min_dbm": "tx_min_dbm", "tx_max_dbm": "tx_max_dbm",
+                "rx_sensitivity_dbm": rx_min_key, "rx_overload_dbm": "rx_overload_dbm"}
         powers = {}
-        for name in ("tx_min_dbm", "tx_max_dbm", "rx_sensitivity_dbm", "rx_overload_dbm"):
+        for field, name in keys.items():  # model field, key as written
             raw = check.get(entry, name, f"{path}.{name}", f"a power from {low:g} to {high:g} dBm",
                             required=True)
-            powers[name] = None if raw is None else check.number(
+            powers[field] = None if raw is None else check.number(
                 raw, f"{path}.{name}", f"from {low:g} to {high:g} dBm", low, high)
         description = check.text(entry, "description", f"{path}.description")
         if powers["tx_min_dbm"] is not None and powers["tx_max_dbm"] is not None \
@@ -93,7 +106,7 @@ def transceivers(check: Checker, value: Any) -> dict[str, Transceiver] | None:
         if powers["rx_sensitivity_dbm"] is not None and powers["rx_overload_dbm"] is not None \
                 and powers["rx_sensitivity_dbm"] >= powers["rx_overload_dbm"]:
             check.problem(f"{path}.rx_overload_dbm",
-                          f"more than rx_sensitivity_dbm ({powers['rx_sensitivity_dbm']:g} dBm)",
+                          f"more than {rx_min_key} ({powers['rx_sensitivity_dbm']:g} dBm)",
                           entry["rx_overload_dbm"])
             complete = False
         if transceiver_id is None or wavelength_nm is None or None in powers.values():
