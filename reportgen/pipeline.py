@@ -19,7 +19,8 @@ from reportgen import __version__
 
 from reportgen.export.atomic import write_outputs
 from reportgen.export.results_csv import results_csv_bytes
-from reportgen.export.summary import json_bytes, summary_dict
+from reportgen.export import summary
+from reportgen.export.summary import json_bytes
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
@@ -134,18 +135,9 @@ def build(
 
 
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
-    """summary.json: the contract's keys plus applications and power per link."""
-    project = outcome.project
-    link_extras = {link.link_id: outcome.applications.link_json(link.link_id, reason_text)
-                   for link in project.links}
-    meta = {
-        "project": {"title": project.info.title, "job_number": project.info.job_number},
-        "limits": project.limits.id,
-        "reference_method": project.testing.reference_method.value,
-        "generated_at": now.isoformat(),
-        "generator": f"reportgen {version}",
-    }
-    return summary_dict(project, outcome.judgement, link_extras, meta)
+    """summary.json of a computed project (export.summary.summary_document)."""
+    return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
+                                    now=now, version=version, reason_text=reason_text)
 
 
 def render_report(outcome: Outcome, *, now: datetime, version: str,

@@ -2,9 +2,11 @@
 from __future__ import annotations
 
 import json
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
+from datetime import datetime
 from typing import Any, Final
 
+from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.judge import Judgement
 from reportgen.model import Project
 from reportgen.units import round_db
@@ -40,3 +42,21 @@ def json_bytes(document: Mapping[str, Any]) -> bytes:
     return (json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode()
 
 
+def summary_document(project: Project, judgement: Judgement, applications: ProjectApplications,
+                     *, now: datetime, version: str,
+                     reason_text: Callable[[Any], str]) -> dict[str, Any]:
+    """summary.json: the contract's keys plus applications and power per link.
+
+    ``reason_text`` words an application's reasons (the report's text catalogue, so
+    summary.json and the report say the same).
+    """
+    link_extras = {link.link_id: applications.link_json(link.link_id, reason_text)
+                   for link in project.links}
+    meta = {
+        "project": {"title": project.info.title, "job_number": project.info.job_number},
+        "limits": project.limits.id,
+        "reference_method": project.testing.reference_method.value,
+        "generated_at": now.isoformat(),
+        "generator": f"reportgen {version}",
+    }
+    return summary_dict(project, judgement, link_extras, meta)
