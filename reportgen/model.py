@@ -244,6 +244,9 @@ class Project:
     technicians: tuple[str, ...] = ()
     report: ReportOptions = field(default_factory=ReportOptions)
     result_files: tuple[str, ...] = ()  # results/*.csv read, in order (header-only files too)
+    # Every file of the project folder the inputs stage read, as project-relative paths
+    # with "/" separators, sorted: project.yaml, links.csv, results, a limit file, the logo.
+    files_read: tuple[str, ...] = ()
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
 
     def link(self, link_id: str) -> Link:

@@ -561,3 +561,11 @@ def test_results_loss_values_are_exact_floats(make_project):
     assert results["loss_db"].to_numpy().tolist() == [1.2, 1.05, 0.35]
     assert results["direction"].tolist() == ["ab", "ab", "ba"]
     assert results["strand"].to_numpy().dtype == np.int64
+
+
+def test_files_read_lists_every_project_file_the_inputs_stage_opened():
+    from reportgen.inputs.project import load_project as load
+    project = load(Path(__file__).resolve().parent.parent / "demo_project")
+    assert project.files_read == (
+        "assets/logo.svg", "links.csv", "project.yaml", "results/day1-building-a.csv",
+        "results/day2-campus.csv", "results/day2-retests.csv")

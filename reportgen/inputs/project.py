@@ -117,6 +117,7 @@ def load_project(project_dir: Path) -> Project:
         technicians=settings.technicians,
         report=settings.report,
         result_files=tuple(files),
+        files_read=_files_read(root, settings, files),
         applications=applications,
     )
 
@@ -348,3 +349,13 @@ def _wavelength_coverage(settings: Settings, links: Sequence[Link]) -> list[Inpu
                     f"{', '.join(map(str, defined))}", ", ".join(map(str, missing))))
     return problems
 
+
+def _files_read(root: Path, settings: Settings, result_files: list[str]) -> tuple[str, ...]:
+    """Project-relative paths of every file read (see ``Project.files_read``)."""
+    read = {"project.yaml", "links.csv", *result_files}
+    if settings.limits is not None and settings.limits.origin != "built-in":
+        read.add(settings.limits.origin)
+    logo = settings.info.contractor.logo if settings.info is not None else None
+    if logo is not None:
+        read.add(logo.path.relative_to(root).as_posix())
+    return tuple(sorted(read))
