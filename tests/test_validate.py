@@ -567,5 +567,8 @@ def test_files_read_lists_every_project_file_the_inputs_stage_opened():
     from reportgen.inputs.project import load_project as load
     project = load(Path(__file__).resolve().parent.parent / "demo_project")
     assert project.files_read == (
-        "assets/logo.svg", "links.csv", "project.yaml", "results/day1-building-a.csv",
+        "assets/logo.svg", "inspections/end-faces.csv",
+        "inspections/images/a-bb-03-s1-b-day1.png", "inspections/images/a-bb-03-s1-b-day2.png",
+        "inspections/images/cb-01-s1-a.png", "inspections/images/cb-01-s1-b.png",
+        "links.csv", "project.yaml", "references/references.csv", "results/day1-building-a.csv",
         "results/day2-campus.csv", "results/day2-retests.csv")

@@ -30,6 +30,7 @@ from reportgen.model import (
 )
 from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, enum_choices, match_enum
 from reportgen.inputs.project_yaml import Settings, check_project_yaml
+from reportgen.inputs.records import load_inspections, load_references
 from reportgen.units import ft_to_m
 from reportgen.inputs.results import EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
 from reportgen.inputs.results import OPTIONAL as RESULT_OPTIONAL
@@ -100,6 +101,12 @@ def load_project(project_dir: Path) -> Project:
         if frame is not None and len(frame):
             frames.append(frame)
 
+    record_files: list[str] = []
+    references, record_problems = load_references(root, settings.instruments, record_files)
+    problems += record_problems
+    inspections, record_problems = load_inspections(root, context.links, record_files)
+    problems += record_problems
+
     if problems:
         raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
@@ -117,8 +124,10 @@ def load_project(project_dir: Path) -> Project:
         technicians=settings.technicians,
         report=settings.report,
         result_files=tuple(files),
-        files_read=_files_read(root, settings, files),
+        files_read=_files_read(root, settings, files + record_files),
         applications=applications,
+        references=references,
+        inspections=inspections,
     )
 
 

@@ -70,6 +70,29 @@ def print_check_table(console: Console, outcome, show_all: bool = False) -> None
     totals = outcome.judgement.totals
     console.print(f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
                   f"{totals['incomplete']} incomplete")
+    print_findings(console, outcome.findings)
+
+
+def print_findings(console: Console, findings) -> None:
+    """Audit findings after the link table: severity, link, rule and message, then counts."""
+    from reportgen.report.messages import finding_text
+
+    if findings.items:
+        table = Table(title="Audit findings", title_justify="left", header_style="bold")
+        table.add_column("severity")
+        table.add_column("link")
+        table.add_column("rule")
+        table.add_column("finding")
+        for finding in findings.items:
+            severity = finding.severity.value
+            table.add_row(severity.upper() if severity == "error" else severity,
+                          plain(finding.link_id or "(project)"), finding.rule,
+                          plain(finding_text(finding)),
+                          style="bold" if severity == "error" else None)
+        console.print(table)
+    counts = findings.counts
+    console.print(f"Audit findings: {counts['error']} error, {counts['warning']} warning, "
+                  f"{counts['note']} note")
 
 
 def print_limit_sets(console: Console) -> None:

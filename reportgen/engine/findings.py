@@ -1,0 +1,594 @@
+"""Audit findings: what an auditor checks beyond the loss limit. Pure.
+
+A finding names a rule (``RULES``), its severity (``error`` blocks acceptance,
+``warning``, ``note``), the link it concerns (None: the whole project), the numbers its
+message words (``values``; the words are the report's, ``reportgen.report.messages``)
+and the evidence: the input rows and values it rests on. Each rule gives at most one
+finding per link (or one per instrument or reference row for project-wide rules), so a
+planted problem is reported once. Thresholds come from ``Testing.audit``
+(``testing.audit`` in project.yaml); their defaults and sources are listed in
+docs/project-format.md, "Audit findings".
+
+Rules over results work on the judged results frame as a whole (grouped, not row by
+row); rules over links, records and instruments loop over those (a project has few).
+"""
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import date, datetime
+from typing import Any, Final
+
+import numpy as np
+import pandas as pd
+
+from reportgen.engine.applications import ProjectApplications
+from reportgen.engine.judge import KEY, Judgement
+from reportgen.engine.power import PowerVerdict
+from reportgen.model import (
+    ApplicationVerdict,
+    InspectionResult,
+    InstrumentKind,
+    LinkEnd,
+    Plant,
+    Project,
+    ResultFlag,
+    Severity,
+)
+from reportgen.units import TOLERANCE_DB
+
+
+@dataclass(frozen=True)
+class Rule:
+    id: str  # our own short name
+    severity: Severity
+    thresholds: tuple[str, ...] = ()  # keys of testing.audit the rule uses
+    settings: tuple[str, ...] = ()  # other project.yaml keys it reads
+
+
+# Every rule, in the order findings are listed within a link.
+RULES: Final[tuple[Rule, ...]] = (
+    Rule("calibration-overdue", Severity.ERROR),
+    Rule("result-in-future", Severity.ERROR),
+    Rule("result-before-work", Severity.ERROR, settings=("project.work_started",)),
+    Rule("retest-order", Severity.ERROR),
+    Rule("ambiguous-retest", Severity.ERROR),
+    Rule("reference-method", Severity.ERROR, settings=("testing.required_reference_method",)),
+    Rule("application-not-supported", Severity.ERROR),
+    Rule("transceiver-too-weak", Severity.ERROR),
+    Rule("inspection-failed", Severity.ERROR),
+    Rule("transceiver-too-strong", Severity.WARNING),
+    Rule("within-uncertainty", Severity.WARNING, settings=("testing.uncertainty_db",)),
+    Rule("result-outside-period", Severity.WARNING, settings=("testing.period",)),
+    Rule("direction-asymmetry", Severity.WARNING, thresholds=("asymmetry_db",)),
+    Rule("implausibly-low-loss", Severity.WARNING,
+         thresholds=("rayleigh_db_um4_per_km", "low_loss_connection_db"),
+         settings=("testing.uncertainty_db",)),
+    Rule("repeated-readings", Severity.WARNING, thresholds=("repeat_count",)),
+    Rule("length-implausible", Severity.WARNING,
+         thresholds=("min_length_inside_m", "min_length_outside_m")),
+    Rule("length-mismatch", Severity.WARNING,
+         thresholds=("length_tolerance_percent", "length_tolerance_m")),
+    Rule("reference-missing", Severity.WARNING),
+    Rule("reference-stale", Severity.WARNING, thresholds=("reference_max_age_h",)),
+    Rule("cords-not-verified", Severity.WARNING, thresholds=("cord_check_max_db",)),
+    Rule("inspection-missing", Severity.WARNING),
+    Rule("calibration-unknown", Severity.NOTE),
+)
+RULE_BY_ID: Final[Mapping[str, Rule]] = {rule.id: rule for rule in RULES}
+_RULE_ORDER: Final[Mapping[str, int]] = {rule.id: at for at, rule in enumerate(RULES)}
+SEVERITIES: Final[tuple[Severity, ...]] = (Severity.ERROR, Severity.WARNING, Severity.NOTE)
+
+
+@dataclass(frozen=True)
+class Finding:
+    rule: str
+    severity: Severity
+    link_id: str | None  # None: the whole project
+    values: Mapping[str, Any]  # the numbers and ids the message words
+    evidence: tuple[Mapping[str, Any], ...] = ()  # rows: file, line and the values used
+
+    def to_json(self, message: str) -> dict[str, Any]:
+        """One element of summary.json's ``findings`` (dB values rounded as printed)."""
+        return {"rule": self.rule, "severity": self.severity.value, "link_id": self.link_id,
+                "message": message, "evidence": [_json_row(row) for row in self.evidence]}
+
+
+@dataclass(frozen=True)
+class Findings:
+    """Every finding of a project: project-wide first, then by link in links.csv order."""
+
+    items: tuple[Finding, ...]
+    _by_link: Mapping[str | None, tuple[Finding, ...]] = field(default_factory=dict, repr=False)
+
+    @property
+    def counts(self) -> dict[str, int]:
+        counts = {severity.value: 0 for severity in SEVERITIES}
+        for finding in self.items:
+            counts[finding.severity.value] += 1
+        return counts
+
+    @property
+    def has_errors(self) -> bool:
+        return any(f.severity is Severity.ERROR for f in self.items)
+
+    def for_link(self, link_id: str | None) -> tuple[Finding, ...]:
+        return self._by_link.get(link_id, ())
+
+
+def _json_row(row: Mapping[str, Any]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for key, value in row.items():
+        if isinstance(value, float):
+            value = round(value, 2) if key.endswith("_db") or key.endswith("_m") else value
+            value = None if value != value else value
+        elif isinstance(value, (datetime, date, pd.Timestamp)):
+            value = value.isoformat()
+        elif isinstance(value, tuple):
+            value = list(value)
+        elif isinstance(value, np.generic):
+            value = value.item()
+        out[key] = value
+    return out
+
+
+def find_all(project: Project, judgement: Judgement,
+             applications: ProjectApplications | None, *, today: date) -> Findings:
+    """Every rule over a judged (and assessed) project; ``today`` is the build date."""
+    audit = project.testing.audit
+    frame = judgement.results
+    judged = frame[frame["judged"].fillna(False).astype(bool)]
+    found: list[Finding] = []
+    found += _calibration(project, judged)
+    found += _chronology(project, frame, today)
+    found += _retests(frame)
+    found += _reference_method(project)
+    if applications is not None:
+        found += _applications(project, applications)
+    found += _within_uncertainty(judged)
+    found += _asymmetry(judged, audit.asymmetry_db)
+    found += _low_loss(project, judgement, judged)
+    found += _repeated(judged, audit.repeat_count)
+    found += _lengths(project, judged)
+    if project.references is not None:
+        found += _references(project, judged)
+    if project.inspections is not None:
+        found += _inspections(project)
+    return _ordered(project, found)
+
+
+def _ordered(project: Project, found: list[Finding]) -> Findings:
+    position = {link.link_id: at for at, link in enumerate(project.links)}
+    items = tuple(sorted(found, key=lambda f: (
+        -1 if f.link_id is None else position.get(f.link_id, len(position)),
+        _RULE_ORDER[f.rule])))
+    by_link: dict[str | None, list[Finding]] = {}
+    for finding in items:
+        by_link.setdefault(finding.link_id, []).append(finding)
+    return Findings(items, {k: tuple(v) for k, v in by_link.items()})
+
+
+def _finding(rule: str, link_id: str | None, values: Mapping[str, Any],
+             evidence: Iterable[Mapping[str, Any]] = ()) -> Finding:
+    return Finding(rule, RULE_BY_ID[rule].severity, link_id, dict(values), tuple(evidence))
+
+
+def _rows(frame: pd.DataFrame, columns: Sequence[str] = ("loss_db",)) -> list[dict[str, Any]]:
+    """Evidence rows: file, line, key and the named columns of every row of ``frame``."""
+    wanted = ["source_file", "source_line", "strand", "wavelength_nm", "direction", *columns]
+    wanted = list(dict.fromkeys(wanted))
+    rows = []
+    for values in frame[wanted].itertuples(index=False, name=None):
+        row = dict(zip(wanted, values))
+        row["file"] = row.pop("source_file")
+        row["line"] = int(row.pop("source_line"))
+        for key in ("strand", "wavelength_nm"):
+            row[key] = int(row[key])
+        if "tested_at" in row:
+            row["tested_at"] = pd.Timestamp(row["tested_at"]).to_pydatetime()
+        rows.append({"file": row.pop("file"), "line": row.pop("line"), **row})
+    return rows
+
+
+def _by_link(frame: pd.DataFrame) -> Iterable[tuple[str, pd.DataFrame]]:
+    """Rows of ``frame`` grouped by link, in order of first appearance."""
+    if frame.empty:
+        return ()
+    return frame.groupby("link_id", sort=False)
+
+
+# ------------------------------------------------------------------ instruments
+
+
+def _calibration(project: Project, judged: pd.DataFrame) -> list[Finding]:
+    """Judged results made with an instrument past its due date (error, per link);
+    instruments named by results without a due date (note, project-wide)."""
+    found: list[Finding] = []
+    due = {i.id: i.calibration_due for i in project.instruments if i.calibration_due is not None}
+    flagged = judged[judged["flags"].map(lambda flags: ResultFlag.CALIBRATION_OVERDUE in flags)]
+    if not flagged.empty:
+        days = flagged["tested_at"].dt.date
+        for link_id, rows in _by_link(flagged):
+            late: dict[str, list[date]] = {}
+            for ids, day in zip(rows["instrument"], days[rows.index]):
+                for name in ids:
+                    if name in due and day > due[name]:
+                        late.setdefault(name, []).append(day)
+            instruments = sorted(late)
+            found.append(_finding("calibration-overdue", link_id, {
+                "instruments": tuple(instruments),
+                "due": tuple(due[name] for name in instruments),
+                "results": len(rows),
+                "last_use": max(max(days) for days in late.values()),
+            }, _rows(rows, ("loss_db", "tested_at", "instrument"))))
+    named = {name for ids in pd.unique(judged["instrument"]) for name in ids} \
+        if not judged.empty else set()
+    for instrument in project.instruments:
+        if instrument.calibration_due is None and instrument.id in named:
+            found.append(_finding("calibration-unknown", None, {"instrument": instrument.id},
+                                  [{"instrument": instrument.id, "calibration_due": None}]))
+    return found
+
+
+# ------------------------------------------------------------------ chronology
+
+
+def _chronology(project: Project, frame: pd.DataFrame, today: date) -> list[Finding]:
+    """Results dated after the build day (error), before project.work_started (error),
+    outside testing.period (warning); every row counts, judged or not."""
+    if frame.empty:
+        return []
+    found: list[Finding] = []
+    day = frame["tested_at"].dt.normalize()
+    checks: list[tuple[str, pd.Series, dict[str, Any]]] = [
+        ("result-in-future", day > pd.Timestamp(today), {"today": today})]
+    started = project.info.work_started
+    if started is not None:
+        checks.append(("result-before-work", day < pd.Timestamp(started), {"started": started}))
+    testing = project.testing
+    if testing.period_start is not None or testing.period_end is not None:
+        outside = pd.Series(False, index=frame.index)
+        if testing.period_start is not None:
+            outside |= day < pd.Timestamp(testing.period_start)
+        if testing.period_end is not None:
+            outside |= day > pd.Timestamp(testing.period_end)
+        checks.append(("result-outside-period", outside,
+                       {"start": testing.period_start, "end": testing.period_end}))
+    for rule, mask, values in checks:
+        for link_id, rows in _by_link(frame[mask.fillna(False).to_numpy(dtype=bool)]):
+            found.append(_finding(rule, link_id, {
+                **values, "results": len(rows),
+                "first": rows["tested_at"].min().to_pydatetime(),
+                "last": rows["tested_at"].max().to_pydatetime(),
+            }, _rows(rows, ("loss_db", "tested_at"))))
+    return found
+
+
+def _retests(frame: pd.DataFrame) -> list[Finding]:
+    """Rows of one result (link, strand, wavelength, direction):
+
+    - ``ambiguous-retest``: two rows with the same time and different losses (which is
+      the retest cannot be told; the row read last is judged);
+    - ``retest-order``: in one file, a row below another of the same result is dated
+      before it (a retest cannot be older than what it replaces).
+    """
+    if frame.empty:
+        return []
+    found: list[Finding] = []
+    keyed = frame.assign(_order=np.arange(len(frame)))
+    same_time = keyed.groupby(KEY + ["tested_at"], sort=False)["loss_db"]
+    spread = same_time.transform("max") - same_time.transform("min")
+    ambiguous = keyed[(spread > TOLERANCE_DB).to_numpy()]
+    for link_id, rows in _by_link(ambiguous):
+        found.append(_finding("ambiguous-retest", link_id, {
+            "results": int(rows.groupby(KEY + ["tested_at"]).ngroups),
+            "low_db": float(rows["loss_db"].min()), "high_db": float(rows["loss_db"].max()),
+        }, _rows(rows, ("loss_db", "tested_at"))))
+    # within a file: the running latest time of earlier rows of the same result
+    in_file = keyed.sort_values(["source_file", "source_line"], kind="stable")
+    groups = in_file.groupby(KEY + ["source_file"], sort=False)["tested_at"]
+    before = groups.transform(lambda s: s.shift().cummax())
+    backwards = in_file[(in_file["tested_at"] < before).to_numpy()]
+    for link_id, rows in _by_link(backwards):
+        found.append(_finding("retest-order", link_id, {
+            "rows": len(rows), "file": rows["source_file"].iloc[0],
+            "line": int(rows["source_line"].iloc[0]),
+        }, _rows(rows, ("loss_db", "tested_at"))))
+    return found
+
+
+# ------------------------------------------------------------------ method
+
+
+def _reference_method(project: Project) -> list[Finding]:
+    """The reference method differs from the one the customer's specification requires
+    (project-wide), or a reference record states another method than testing.reference_method."""
+    testing = project.testing
+    found: list[Finding] = []
+    required = testing.required_reference_method
+    if required is not None and required is not testing.reference_method:
+        found.append(_finding("reference-method", None, {
+            "used": testing.reference_method.value, "required": required.value},
+            [{"setting": "testing.reference_method", "value": testing.reference_method.value},
+             {"setting": "testing.required_reference_method", "value": required.value}]))
+    other = [r for r in project.references or () if r.method is not testing.reference_method]
+    if other:
+        found.append(_finding("reference-method", None, {
+            "used": ", ".join(sorted({r.method.value for r in other})),
+            "required": testing.reference_method.value},
+            [{"file": r.source_file, "line": r.source_line, "instrument": r.instrument,
+              "method": r.method.value} for r in other]))
+    return found
+
+
+# ------------------------------------------------------------------ verdicts as findings
+
+
+def _applications(project: Project, assessed: ProjectApplications) -> list[Finding]:
+    """Listed applications the link does not support (error); transceiver power too weak or
+    without a fitting attenuator (error) or too strong with one (warning)."""
+    found: list[Finding] = []
+    for link in project.links:
+        failing = [a for a in assessed.for_link(link.link_id).assessments
+                   if a.verdict is ApplicationVerdict.NOT_SUPPORTED]
+        if failing:
+            found.append(_finding("application-not-supported", link.link_id, {
+                "applications": tuple(a.id for a in failing), "count": len(failing)},
+                [{"application": a.id, "reasons": tuple(r.kind.value for r in a.reasons),
+                  "worst_loss_db": a.worst_loss_db, "max_loss_db": a.max_loss_db,
+                  "least_loss_db": a.least_loss_db, "min_loss_db": a.min_loss_db}
+                 for a in failing]))
+        power = assessed.power.get(link.link_id)
+        if power is None or power.verdict is PowerVerdict.OK:
+            continue
+        rule = ("transceiver-too-strong" if power.verdict is PowerVerdict.TOO_STRONG
+                else "transceiver-too-weak")
+        found.append(_finding(rule, link.link_id, {
+            "transceiver": power.transceiver, "verdict": power.verdict.value,
+            "low_margin_db": power.low_margin_db, "high_margin_db": power.high_margin_db,
+            "attenuator_db": power.attenuator_db},
+            [{"transceiver": power.transceiver, "wavelength_nm": power.wavelength_nm,
+              "rx_min_dbm": power.rx_min_dbm, "rx_max_dbm": power.rx_max_dbm,
+              "sensitivity_dbm": power.rx_sensitivity_dbm,
+              "overload_dbm": power.rx_overload_dbm}]))
+    return found
+
+
+def _within_uncertainty(judged: pd.DataFrame) -> list[Finding]:
+    flagged = judged[judged["flags"].map(lambda flags: ResultFlag.WITHIN_UNCERTAINTY in flags)]
+    return [_finding("within-uncertainty", link_id, {
+        "results": len(rows), "worst_margin_db": float(rows["margin_db"].min())},
+        _rows(rows, ("loss_db", "limit_db", "margin_db"))) for link_id, rows in _by_link(flagged)]
+
+
+# ------------------------------------------------------------------ plausibility
+
+
+def _asymmetry(judged: pd.DataFrame, threshold_db: float) -> list[Finding]:
+    """|A→B − B→A| of one strand and wavelength above ``threshold_db`` (judged results)."""
+    pair_key = ["link_id", "strand", "wavelength_nm"]
+    ab = judged[judged["direction"] == "ab"]
+    ba = judged[judged["direction"] == "ba"]
+    if ab.empty or ba.empty:
+        return []
+    pairs = ab.merge(ba, on=pair_key, suffixes=("_ab", "_ba"))
+    pairs["difference_db"] = (pairs["loss_db_ab"] - pairs["loss_db_ba"]).abs()
+    over = pairs[pairs["difference_db"] > threshold_db + TOLERANCE_DB]
+    found = []
+    for link_id, rows in _by_link(over):
+        evidence = [{"file": a_file, "line": int(a_line), "line_ba": int(b_line),
+                     "file_ba": b_file, "strand": int(strand), "wavelength_nm": int(wl),
+                     "loss_ab_db": float(a), "loss_ba_db": float(b), "difference_db": float(d)}
+                    for a_file, a_line, b_file, b_line, strand, wl, a, b, d in rows[[
+                        "source_file_ab", "source_line_ab", "source_file_ba", "source_line_ba",
+                        "strand", "wavelength_nm", "loss_db_ab", "loss_db_ba",
+                        "difference_db"]].itertuples(index=False, name=None)]
+        found.append(_finding("direction-asymmetry", link_id, {
+            "pairs": len(rows), "worst_db": float(rows["difference_db"].max()),
+            "threshold_db": threshold_db}, evidence))
+    return found
+
+
+def low_loss_bound_db(length_km: np.ndarray | float, wavelength_nm: np.ndarray | int,
+                      connections: np.ndarray | int, rayleigh_db_um4_per_km: float,
+                      connection_db: float) -> np.ndarray | float:
+    """The least loss a link can plausibly show [dB]: Rayleigh scattering of its fiber,
+    ``rayleigh / λ[µm]⁴`` per km, plus ``connection_db`` per mated connection in the
+    measurement (end connections of the reference method and those between the ends)."""
+    wavelength_um = np.asarray(wavelength_nm, dtype=float) / 1000.0
+    return (rayleigh_db_um4_per_km / wavelength_um ** 4 * length_km
+            + connections * connection_db)
+
+
+def _low_loss(project: Project, judgement: Judgement, judged: pd.DataFrame) -> list[Finding]:
+    """Judged results below :func:`low_loss_bound_db` by more than the uncertainty:
+    a wrong reference, or a meter referenced through the link."""
+    if judged.empty:
+        return []
+    audit = project.testing.audit
+    budgets = judgement.budgets[["link_id", "wavelength_nm", "length_km", "end_connections",
+                                 "connections"]]
+    rows = judged.merge(budgets, on=["link_id", "wavelength_nm"], how="left")
+    rows.index = judged.index
+    bound = low_loss_bound_db(rows["length_km"].to_numpy(float), rows["wavelength_nm"].to_numpy(),
+                              (rows["end_connections"] + rows["connections"]).to_numpy(float),
+                              audit.rayleigh_db_um4_per_km, audit.low_loss_connection_db)
+    rows["bound_db"] = bound
+    low = rows[(rows["loss_db"] < rows["bound_db"] - project.testing.uncertainty_db
+                - TOLERANCE_DB).to_numpy()]
+    return [_finding("implausibly-low-loss", link_id, {
+        "results": len(group), "least_loss_db": float(group["loss_db"].min()),
+        "bound_db": float(group.loc[group["loss_db"].idxmin(), "bound_db"])},
+        _rows(group, ("loss_db", "bound_db"))) for link_id, group in _by_link(low)]
+
+
+def _repeated(judged: pd.DataFrame, count: int) -> list[Finding]:
+    """Readings identical to the last digit (0.01 dB) beyond what measurement spread makes
+    likely: ``count`` or more judged results of one link and wavelength with the same loss,
+    or a run of ``count`` or more consecutive results of one technician with the same loss."""
+    if judged.empty:
+        return []
+    found: list[Finding] = []
+    hundredths = np.round(judged["loss_db"].to_numpy(float) * 100).astype(np.int64)
+    keyed = judged.assign(_value=hundredths)
+    sizes = keyed.groupby(["link_id", "wavelength_nm", "_value"], sort=False)["_value"] \
+        .transform("size")
+    repeated = keyed[(sizes >= count).to_numpy()]
+    flagged: set[str] = set()
+    for link_id, rows in _by_link(repeated):
+        flagged.add(link_id)
+        found.append(_finding("repeated-readings", link_id, {
+            "results": len(rows), "loss_db": float(rows["loss_db"].iloc[0]), "count": count,
+            "technician": None}, _rows(rows, ("loss_db", "tested_at", "technician"))))
+    worked = keyed[keyed["technician"].fillna("").astype(str).str.strip() != ""]
+    if worked.empty:
+        return found
+    ordered = worked.sort_values(["technician", "tested_at"], kind="stable")
+    change = ((ordered["technician"] != ordered["technician"].shift())
+              | (ordered["_value"] != ordered["_value"].shift()))
+    run = change.cumsum()
+    run_size = run.map(run.value_counts())
+    for _, rows in ordered[(run_size >= count).to_numpy()].groupby(run[run_size >= count],
+                                                                   sort=True):
+        links = list(dict.fromkeys(rows["link_id"]))
+        if len(links) == 1 and links[0] in flagged:
+            continue  # already reported for the link
+        found.append(_finding("repeated-readings", links[0] if len(links) == 1 else None, {
+            "results": len(rows), "loss_db": float(rows["loss_db"].iloc[0]), "count": count,
+            "technician": str(rows["technician"].iloc[0])},
+            _rows(rows, ("link_id", "loss_db", "tested_at", "technician"))))
+    return found
+
+
+def _lengths(project: Project, judged: pd.DataFrame) -> list[Finding]:
+    """A documented length implausibly short for the plant (e.g. km written as m), and
+    measured lengths off the documented one by more than the tolerance."""
+    audit = project.testing.audit
+    found: list[Finding] = []
+    for link in project.links:
+        minimum = (audit.min_length_outside_m if link.plant is Plant.OUTSIDE
+                   else audit.min_length_inside_m)
+        if link.length_m < minimum - TOLERANCE_DB:
+            found.append(_finding("length-implausible", link.link_id, {
+                "length_m": link.length_m, "minimum_m": minimum, "plant": link.plant.value},
+                [{"file": "links.csv", "line": link.line, "length_m": link.length_m,
+                  "plant": link.plant.value, "fiber_type": link.fiber_type.value}]))
+    measured = judged[judged["measured_length_m"].notna()]
+    if measured.empty:
+        return found
+    documented = pd.Series({link.link_id: link.length_m for link in project.links})
+    rows = measured.assign(documented_m=measured["link_id"].map(documented).to_numpy())
+    rows["difference_m"] = (rows["measured_length_m"] - rows["documented_m"]).abs()
+    allowed = (rows["documented_m"] * audit.length_tolerance_percent / 100.0
+               + audit.length_tolerance_m)
+    off = rows[(rows["difference_m"] > allowed + 1e-6).to_numpy()]
+    for link_id, group in _by_link(off):
+        worst = group.loc[group["difference_m"].idxmax()]
+        found.append(_finding("length-mismatch", link_id, {
+            "measured_m": float(worst["measured_length_m"]),
+            "documented_m": float(worst["documented_m"]),
+            "difference_m": float(worst["difference_m"]),
+            "allowed_m": float(worst["documented_m"] * audit.length_tolerance_percent / 100.0
+                               + audit.length_tolerance_m),
+            "results": len(group)},
+            _rows(group, ("measured_length_m", "documented_m"))))
+    return found
+
+
+# ------------------------------------------------------------------ test-method records
+
+
+def _meter_rows(project: Project, judged: pd.DataFrame) -> pd.DataFrame:
+    """One row per judged result and power meter it names (``meter``: "" when it names none)."""
+    meters = {i.id for i in project.instruments if i.kind is InstrumentKind.POWER_METER}
+    codes, named = pd.factorize(judged["instrument"])
+    per_tuple = [tuple(name for name in ids if name in meters) or ("",) for ids in named]
+    lists = pd.Series([per_tuple[code] for code in codes], index=judged.index, dtype=object)
+    return judged.assign(meter=lists).explode("meter")
+
+
+def _references(project: Project, judged: pd.DataFrame) -> list[Finding]:
+    """Each judged result is tied to the latest reference of its meter and wavelength set
+    at or before it: none (warning), older than reference_max_age_h (warning). Test cords of
+    a reference in use not verified or above cord_check_max_db (warning, per reference)."""
+    if judged.empty:
+        return []
+    audit = project.testing.audit
+    refs = pd.DataFrame([{
+        "meter": r.instrument, "wavelength_nm": r.wavelength_nm,
+        "set_at": pd.Timestamp(r.set_at), "ref_at": pd.Timestamp(r.set_at), "ref": at}
+        for at, r in enumerate(project.references or ())],
+        columns=["meter", "wavelength_nm", "set_at", "ref_at", "ref"])
+    rows = _meter_rows(project, judged).reset_index(names="_row")
+    rows = rows[rows["tested_at"].notna()].sort_values("tested_at", kind="stable")
+    refs = refs.astype({"wavelength_nm": "int64", "set_at": "datetime64[ns]",
+                        "ref_at": "datetime64[ns]", "ref": "int64"}).sort_values("set_at")
+    tied = pd.merge_asof(rows, refs.rename(columns={"set_at": "tested_at"}), on="tested_at",
+                         by=["meter", "wavelength_nm"], direction="backward")
+    tied = tied.sort_values(["_row"], kind="stable")
+    found: list[Finding] = []
+    missing = tied[tied["ref"].isna()]
+    for link_id, group in _by_link(missing):
+        found.append(_finding("reference-missing", link_id, {
+            "results": int(group["_row"].nunique()),
+            "meters": tuple(sorted({m for m in group["meter"] if m})),
+        }, _rows(group, ("loss_db", "tested_at", "meter"))))
+    age_h = (tied["tested_at"] - tied["ref_at"]).dt.total_seconds() / 3600.0
+    stale = tied[(age_h > audit.reference_max_age_h + 1e-9).to_numpy()]
+    for link_id, group in _by_link(stale):
+        ages = (group["tested_at"] - group["ref_at"]).dt.total_seconds() / 3600.0
+        found.append(_finding("reference-stale", link_id, {
+            "results": int(group["_row"].nunique()), "age_h": float(ages.max()),
+            "max_age_h": audit.reference_max_age_h},
+            _rows(group.assign(reference_age_h=ages), ("loss_db", "tested_at", "meter",
+                                                       "reference_age_h"))))
+    used = sorted({int(ref) for ref in tied["ref"].dropna()})
+    for at in used:
+        reference = project.references[at]
+        check = reference.cord_check_db
+        if check is not None and check <= audit.cord_check_max_db + TOLERANCE_DB:
+            continue
+        results = int(tied.loc[tied["ref"] == at, "_row"].nunique())
+        found.append(_finding("cords-not-verified", None, {
+            "instrument": reference.instrument, "wavelength_nm": reference.wavelength_nm,
+            "set_at": reference.set_at, "cord_check_db": check,
+            "max_db": audit.cord_check_max_db, "results": results,
+            "cords": reference.cords},
+            [{"file": reference.source_file, "line": reference.source_line,
+              "instrument": reference.instrument, "cords": reference.cords,
+              "cord_check_db": check}]))
+    return found
+
+
+def _inspections(project: Project) -> list[Finding]:
+    """Every strand at both link ends needs a passing end-face inspection: the latest one
+    failed (error) or there is none (warning)."""
+    latest: dict[tuple[str, int, LinkEnd], Any] = {}
+    for inspection in sorted(project.inspections or (),
+                             key=lambda i: (i.inspected_at, i.source_file, i.source_line)):
+        latest[(inspection.link_id, inspection.strand, inspection.end)] = inspection
+    found: list[Finding] = []
+    for link in project.links:
+        failed, missing = [], []
+        for strand in range(1, link.strands + 1):
+            for end in LinkEnd:
+                last = latest.get((link.link_id, strand, end))
+                if last is None:
+                    missing.append({"strand": strand, "end": end.value})
+                elif last.result is InspectionResult.FAIL:
+                    failed.append({"file": last.source_file, "line": last.source_line,
+                                   "strand": strand, "end": end.value,
+                                   "inspected_at": last.inspected_at,
+                                   "result": last.result.value})
+        if failed:
+            found.append(_finding("inspection-failed", link.link_id, {
+                "ends": _ends_text(failed), "count": len(failed)}, failed))
+        if missing:
+            found.append(_finding("inspection-missing", link.link_id, {
+                "ends": _ends_text(missing), "count": len(missing)}, missing))
+    return found
+
+
+def _ends_text(rows: Sequence[Mapping[str, Any]]) -> tuple[tuple[int, str], ...]:
+    """(strand, end) pairs of the rows."""
+    return tuple((row["strand"], row["end"]) for row in rows)
