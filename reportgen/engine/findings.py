@@ -190,6 +190,13 @@ def _rows(frame: pd.DataFrame, columns: Sequence[str] = ("loss_db",)) -> list[di
     return rows
 
 
+def _has_flag(frame: pd.DataFrame, flag: ResultFlag) -> np.ndarray:
+    """Rows whose flags hold ``flag``, worked out once per distinct flags tuple (few)."""
+    codes, tuples = pd.factorize(frame["flags"])
+    has = np.array([flag in flags for flags in tuples] + [False], dtype=bool)
+    return has[codes]
+
+
 def _by_link(frame: pd.DataFrame) -> Iterable[tuple[str, pd.DataFrame]]:
     """Rows of ``frame`` grouped by link, in order of first appearance."""
     if frame.empty:
@@ -205,7 +212,7 @@ def _calibration(project: Project, judged: pd.DataFrame) -> list[Finding]:
     instruments named by results without a due date (note, project-wide)."""
     found: list[Finding] = []
     due = {i.id: i.calibration_due for i in project.instruments if i.calibration_due is not None}
-    flagged = judged[judged["flags"].map(lambda flags: ResultFlag.CALIBRATION_OVERDUE in flags)]
+    flagged = judged[_has_flag(judged, ResultFlag.CALIBRATION_OVERDUE)]
     if not flagged.empty:
         days = flagged["tested_at"].dt.date
         for link_id, rows in _by_link(flagged):
@@ -286,8 +293,9 @@ def _retests(frame: pd.DataFrame) -> list[Finding]:
         }, _rows(rows, ("loss_db", "tested_at"))))
     # within a file: the running latest time of earlier rows of the same result
     in_file = keyed.sort_values(["source_file", "source_line"], kind="stable")
-    groups = in_file.groupby(KEY + ["source_file"], sort=False)["tested_at"]
-    before = groups.transform(lambda s: s.shift().cummax())
+    by_file = KEY + ["source_file"]
+    in_file = in_file.assign(_before=in_file.groupby(by_file, sort=False)["tested_at"].shift())
+    before = in_file.groupby(by_file, sort=False)["_before"].cummax()
     backwards = in_file[(in_file["tested_at"] < before).to_numpy()]
     for link_id, rows in _by_link(backwards):
         found.append(_finding("retest-order", link_id, {
@@ -355,7 +363,7 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
 
 
 def _within_uncertainty(judged: pd.DataFrame) -> list[Finding]:
-    flagged = judged[judged["flags"].map(lambda flags: ResultFlag.WITHIN_UNCERTAINTY in flags)]
+    flagged = judged[_has_flag(judged, ResultFlag.WITHIN_UNCERTAINTY)]
     return [_finding("within-uncertainty", link_id, {
         "results": len(rows), "worst_margin_db": float(rows["margin_db"].min())},
         _rows(rows, ("loss_db", "limit_db", "margin_db"))) for link_id, rows in _by_link(flagged)]

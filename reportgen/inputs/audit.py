@@ -21,7 +21,7 @@ AUDIT_KEYS: Final[Mapping[str, tuple[str, float, float, bool, bool]]] = {
     "asymmetry_db": ("greater than 0 dB", 0.0, 100.0, True, False),
     "rayleigh_db_um4_per_km": ("from 0 to 2", 0.0, 2.0, False, False),
     "low_loss_connection_db": ("from 0 to 1 dB", 0.0, 1.0, False, False),
-    "repeat_count": ("a whole number from 3 to 1000", 3, 1000, False, True),
+    "repeat_count": ("from 3 to 1000, without decimals", 3, 1000, False, True),
     "min_length_inside_m": ("of 0 m or more", 0.0, math.inf, False, False),
     "min_length_outside_m": ("of 0 m or more", 0.0, math.inf, False, False),
     "length_tolerance_percent": ("of 0 % or more", 0.0, 1000.0, False, False),
@@ -80,7 +80,7 @@ def period(check: Checker, value: Any) -> tuple[bool, date | None, date | None]:
         valid &= days[key] is not None
     if valid and days["start"] and days["end"] and days["end"] < days["start"]:
         check.problem("testing.period.end", f"a date on or after the start ({days['start']})",
-                      value["end"])
+                      days["end"].isoformat())
         valid = False
     return valid, days["start"], days["end"]
 
