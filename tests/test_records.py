@@ -225,3 +225,40 @@ def test_the_demo_gives_exactly_the_findings_its_story_plants():
     assert {(rule, link) for rule, severity, link in found if severity == "warning"} == \
         planted_warnings
     assert outcome.project.references and outcome.project.inspections
+
+
+def test_findings_show_on_cover_action_list_sheet_and_appendix():
+    """A passing link measured with a meter past its calibration: the cover counts the error
+    and does not call the work ready, the action list and the sheet name it, the appendix
+    lists the rules."""
+    from datetime import date, datetime
+
+    from reportgen.engine.applications import assess_project
+    from reportgen.engine.findings import find_all
+    from reportgen.engine.judge import judge_project
+    from reportgen.model import Instrument, InstrumentKind
+    from reportgen.report import messages
+    from reportgen.report.render import build_report
+    from tests.builders import make_link, make_project
+
+    meter = Instrument("PM-1", InstrumentKind.POWER_METER, calibration_due=date(2030, 1, 10))
+    project = make_project(
+        [make_link("L1")],
+        [dict(wavelength_nm=w, direction=d, loss_db=1.0, instrument=("PM-1",))
+         for w in (850, 1300) for d in ("ab", "ba")], instruments=(meter,))
+    judgement = judge_project(project)
+    applications = assess_project(project, judgement)
+    findings = find_all(project, judgement, applications, today=date(2030, 2, 1))
+    html = build_report(project, judgement, now=datetime(2030, 2, 1), version="t",
+                        applications=applications, findings=findings).html
+    cover, rest = html.split('id="needs-action"', 1)
+    action, rest = rest.split('id="register"', 1)
+    sheet = rest.split('id="link-l1"', 1)[1].split("</section>", 1)[0]
+    message = ("Used after its calibration due date: PM-1 (due 2030-01-10), for 4 results "
+               "(last use 2030-01-15).")
+    assert "findings-tally" in cover and messages.msg("overall_errors_too", errors=1) not in cover
+    assert messages.msg("overall_blocked", links=1, errors=1) in cover
+    assert messages.msg("overall_all_pass", links=1) not in cover
+    assert message in action and 'href="#link-l1"' in action
+    assert message in sheet and "results/r.csv line 2, 3, 4, 5" in sheet
+    assert 'id="appx-audit"' in html and html.count('class="code">calibration-overdue<') == 1
