@@ -342,7 +342,8 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
         if failing:
             found.append(_finding("application-not-supported", link.link_id, {
                 "applications": tuple(a.id for a in failing), "count": len(failing)},
-                [{"application": a.id, "reasons": tuple(r.kind.value for r in a.reasons),
+                [{"file": "links.csv", "line": link.line, "application": a.id,
+                  "reasons": tuple(r.kind.value for r in a.reasons),
                   "worst_loss_db": a.worst_loss_db, "max_loss_db": a.max_loss_db,
                   "least_loss_db": a.least_loss_db, "min_loss_db": a.min_loss_db}
                  for a in failing]))
@@ -355,7 +356,8 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
             "transceiver": power.transceiver, "verdict": power.verdict.value,
             "low_margin_db": power.low_margin_db, "high_margin_db": power.high_margin_db,
             "attenuator_db": power.attenuator_db},
-            [{"transceiver": power.transceiver, "wavelength_nm": power.wavelength_nm,
+            [{"file": "links.csv", "line": link.line, "transceiver": power.transceiver,
+              "wavelength_nm": power.wavelength_nm,
               "rx_min_dbm": power.rx_min_dbm, "rx_max_dbm": power.rx_max_dbm,
               "sensitivity_dbm": power.rx_sensitivity_dbm,
               "overload_dbm": power.rx_overload_dbm}]))

@@ -72,6 +72,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "mark_sev_warning": "\u25c7",
     "mark_sev_note": "\u00b7",
     "findings_none_link": "No audit findings for this link.",
+    "sheet_errors": "audit findings blocking acceptance: {count}",
     "findings_project": "Whole project",
     "col_severity": "Severity",
     "col_finding": "Finding",
