@@ -125,8 +125,9 @@ PROJECT = click.argument("project", type=click.Path(path_type=Path))
                     "2 bad input.")
 @PROJECT
 @click.option("--all", "show_all", is_flag=True,
-              help="List every link, also in large projects (default: above 100 links only "
-                   "the links that fail or are incomplete).")
+              help="List every link and audit finding, also in large projects (default: above "
+                   "100 links only the links that fail or are incomplete; above 100 findings "
+                   "only the errors).")
 def check(project: Path, show_all: bool) -> None:
     """Validate and judge PROJECT, print a table of links and the audit findings; write nothing."""
     from reportgen import pipeline
