@@ -145,8 +145,11 @@ def test_instrument_without_due_date_is_a_project_note():
 
 
 @pytest.mark.parametrize("day, expected", [
-    ("2030-02-01T23:59", []),  # the build day itself
-    ("2030-02-02T00:01", [("result-in-future", "error", "L1")]),
+    # the build day and the next are accepted: a meter's local time may run ahead of UTC
+    # (up to UTC+14, common practice: the time zones in use span UTC-12 to UTC+14)
+    ("2030-02-02T23:59", []),
+    ("2030-02-03T00:01", [("result-in-future", "error", "L1")]),
+    ("2030-12-01T09:00", [("result-in-future", "error", "L1")]),  # ten months ahead
 ])
 def test_result_after_the_build_date(day, expected):
     project = project_of([dict(wavelength_nm=850, direction=d, loss_db=1.0, instrument=USED,

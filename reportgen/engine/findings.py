@@ -77,6 +77,7 @@ RULES: Final[tuple[Rule, ...]] = (
 )
 RULE_BY_ID: Final[Mapping[str, Rule]] = {rule.id: rule for rule in RULES}
 _RULE_ORDER: Final[Mapping[str, int]] = {rule.id: at for at, rule in enumerate(RULES)}
+FUTURE_SLACK_DAYS: Final = 1  # result-in-future: days after the build day still accepted (time zones)
 SEVERITIES: Final[tuple[Severity, ...]] = (Severity.ERROR, Severity.WARNING, Severity.NOTE)
 
 
@@ -241,14 +242,17 @@ def _calibration(project: Project, judged: pd.DataFrame) -> list[Finding]:
 
 
 def _chronology(project: Project, frame: pd.DataFrame, today: date) -> list[Finding]:
-    """Results dated after the build day (error), before project.work_started (error),
+    """Results dated after the build day and the next (error), before project.work_started (error),
     outside testing.period (warning); every row counts, judged or not."""
     if frame.empty:
         return []
     found: list[Finding] = []
     day = frame["tested_at"].dt.normalize()
+    # Times are compared as written (a meter's local time) with the build day in UTC: one day
+    # of slack keeps a result made today east of UTC from looking like tomorrow's.
     checks: list[tuple[str, pd.Series, dict[str, Any]]] = [
-        ("result-in-future", day > pd.Timestamp(today), {"today": today})]
+        ("result-in-future", day > pd.Timestamp(today) + pd.Timedelta(days=FUTURE_SLACK_DAYS),
+         {"today": today})]
     started = project.info.work_started
     if started is not None:
         checks.append(("result-before-work", day < pd.Timestamp(started), {"started": started}))

@@ -96,12 +96,10 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
         "informs. Thresholds are set under testing.audit in project.yaml; the value used here "
         "is shown with the default when it differs."
     ),
-    "audit_records": (
-        "References and end-face inspection records (folders references/ and inspections/) "
-        "were {state}."
-    ),
-    "audit_records_given": "given: the reference and inspection rules were applied",
-    "audit_records_absent": "not given: the reference and inspection rules were not applied",
+    "audit_references_given": "Reference records (references/) were given: the reference rules were applied.",
+    "audit_references_absent": "No reference records (references/) were given: the reference rules were not applied.",
+    "audit_inspections_given": "End-face inspection records (inspections/) were given: the inspection rules were applied.",
+    "audit_inspections_absent": "No end-face inspection records (inspections/) were given: the inspection rules were not applied.",
     "col_rule": "Rule",
     "col_checks": "What it checks",
     "col_thresholds": "Thresholds",
@@ -526,7 +524,7 @@ FINDING_TEXT: Final[Mapping[str, str]] = MappingProxyType({
 # "Audit findings" gives the same sources).
 RULE_TEXT: Final[Mapping[str, tuple[str, str]]] = MappingProxyType({
     "calibration-overdue": ("A judged result made with an instrument after its calibration due date.", "Calibration due dates in project.yaml instruments."),
-    "result-in-future": ("A result dated after the day the report was made.", "Cannot happen: a date or clock error."),
+    "result-in-future": ("A result dated more than a day after the day the report was made (a day allows for time zones).", "Cannot happen: a date or clock error."),
     "result-before-work": ("A result dated before project.work_started.", "Cannot belong to this installation."),
     "retest-order": ("In one file, a row dated before an earlier row of the same strand, wavelength and direction.", "A retest cannot be older than what it replaces."),
     "ambiguous-retest": ("Two rows of one result with the same time and different losses.", "Which row is the retest cannot be told."),
