@@ -311,6 +311,7 @@ class Inspection:
     image: InspectionImage | None
     source_file: str
     source_line: int
+    note: str | None = None
 
 
 @dataclass(frozen=True)

@@ -267,7 +267,8 @@ def _inspection_rows(root: Path, table: CsvTable, links: Mapping[str, Link] | No
         out.append(Inspection(link_id=link_id, strand=strand, end=end, result=result,
                               inspected_at=inspected_at, criteria=get["criteria"][row] or None,
                               technician=get["technician"][row] or None, image=image,
-                              source_file=table.file, source_line=line))
+                              source_file=table.file, source_line=line,
+                              note=get["note"][row] or None))
     return out, problems
 
 

@@ -83,7 +83,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "inspections_heading": "End-face inspections",
     "col_end": "End",
     "col_inspection": "Result",
-    "col_criteria": "Criteria",
+    "col_criteria_note": "Criteria; note",
     "col_picture": "Picture",
     "inspection_pass": "pass",
     "inspection_fail": "FAIL",

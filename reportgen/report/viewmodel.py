@@ -131,6 +131,7 @@ class InspectionView:
     image_uri: str  # data: URI of the downscaled picture, "" without one
     image_width: int
     image_height: int
+    note: str = ""
 
 
 @dataclass(frozen=True)
@@ -588,7 +589,7 @@ def _inspection_views(project: Project) -> dict[str, tuple[InspectionView, ...]]
             image_uri="" if image is None else
             f"data:{image.mime};base64,{base64.b64encode(image.data).decode('ascii')}",
             image_width=0 if image is None else image.width,
-            image_height=0 if image is None else image.height))
+            image_height=0 if image is None else image.height, note=i.note or ""))
     return {link_id: tuple(views) for link_id, views in by_link.items()}
 
 
