@@ -52,6 +52,22 @@ def test_valid_records_are_read(make_project):
     assert "pictures/l1.png" in project.files_read
 
 
+def test_a_large_picture_is_capped(make_project):
+    """A 2000 x 1500 picture of pure noise (the worst case for JPEG, 1.4 MB as a file) keeps at
+    most 240 px and 40 KB, the cap docs/project-format.md §11.2 states."""
+    import os
+
+    out = io.BytesIO()
+    Image.frombytes("RGB", (2000, 1500), os.urandom(2000 * 1500 * 3)).save(
+        out, format="JPEG", quality=60)
+    root = make_project({"inspections/a.csv": INSPECTIONS
+                         + "L1,1,a,pass,2030-01-15T07:00,,,big.jpg\n",
+                         "big.jpg": out.getvalue()})
+    image = load_project(root).inspections[0].image
+    assert (image.width, image.height) == (240, 180)  # 2000 x 1500 scaled by 240 / 2000
+    assert len(image.data) <= 40_000
+
+
 def test_no_record_folders_means_no_records(make_project):
     project = load_project(make_project())
     assert project.references is None and project.inspections is None

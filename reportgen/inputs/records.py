@@ -5,7 +5,8 @@ inspection row gives the end-face inspection of one strand at one link end, opti
 with a picture inside the project folder. Pictures are checked like the logo (inside the
 folder, .png/.jpg/.jpeg, at most ``MAX_IMAGE_BYTES``, content matching the ending), decoded
 with Pillow and downscaled to at most ``IMAGE_MAX_PX`` on the longer side, stored as
-JPEG: each picture adds at most about 20 KB to the report.
+JPEG (quality 80): each picture adds at most about 40 KB to the report (pure noise, the
+worst case; an end-face picture a few KB).
 Rows are checked one by one (record files are short); every problem is collected.
 """
 from __future__ import annotations
