@@ -208,3 +208,28 @@ def test_agreeing_verdicts_are_not_called_a_disagreement():
                        ReferenceMethod.ONE_CORD, transceivers={"sr": SR})
     assert assessed.power["L1"].verdict.value == "too-weak"
     assert assessed.transceiver_differences("L1") == ()
+
+
+def test_sheet_words_for_a_failing_link_an_end_allowance_and_uncertainty():
+    from datetime import datetime
+
+    from reportgen.report.render import build_report
+
+    # Two-cord. L1 (OM4, 150 m): cabling limit at 850 nm 0.15 × 2.0 + 1 × 0.75 = 1.05 dB (test
+    # limit set), 1.20 dB measured fails it; 10GBASE-SR: 1.20 + 0.75 = 1.95 ≤ 2.9 → every
+    # check met. L2 (OM4, 100 m): 25GBASE-SR allows 1.9 dB on OM4 (IEEE 802.3 cl. 112,
+    # verified, secondary); 1.00 + 0.75 = 1.75, within 0.2 dB of 1.9 → within uncertainty.
+    links = [_sr_link(), make_link("L2", fiber_type=FiberType.OM4, length_m=100,
+                                   applications=("25GBASE-SR",))]
+    rows = [dict(wavelength_nm=850, loss_db=1.20), dict(link_id="L2", wavelength_nm=850,
+                                                        loss_db=1.00)]
+    project = make_project(links, rows, limits=LIMITS, method=ReferenceMethod.TWO_CORD,
+                           uncertainty_db=0.2)
+    judgement = judge_project(project)
+    html = build_report(project, judgement, now=datetime(2030, 2, 1), version="9.9-test",
+                        applications=assess_project(project, judgement)).html
+    text = " ".join(html.replace("&#8202;", "").split())
+    assert "loss within the channel allowance; link fails its cabling limit" in text
+    assert "The two-cord reference leaves 1 of the 2 end connections out" in text
+    assert "1.20 + 0.75 = 1.95" in text
+    assert "supported, within uncertainty" in text

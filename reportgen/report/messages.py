@@ -227,8 +227,8 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
         "and direction at the wavelengths the application needs."
     ),
     "link_apps_end_allowance": (
-        "The {method} reference leaves {count} end connection(s) out of the measured loss; a "
-        "working channel has them. {added} dB ({count} \u00d7 {connection} dB, the limit set\u2019s "
+        "The {method} reference leaves {count} of the 2 end connections out of the measured "
+        "loss; a working channel has them. {added} dB ({count} \u00d7 {connection} dB, the limit set\u2019s "
         "connection allowance) is therefore added to the worst loss before it is compared with a "
         "maximum (channel loss, receive minimum); minimums (PON class minimum, overload) use the "
         "loss as measured."
