@@ -341,16 +341,23 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
         "every strand and direction of the link (worst loss) is compared with the maximum channel "
         "loss for the link\u2019s fiber type, and the documented length with the maximum length. "
         "Any failed check makes the application not-supported, with every reason listed; a needed "
-        "wavelength without a judged result leaves it untested."
+        "wavelength without a judged result leaves it untested. With a two- or three-cord "
+        "reference the measured loss lacks one or both end connections; the limit set\u2019s "
+        "connection allowance for each is added to the worst loss before the maximum is checked "
+        "(IEC 61280-4-1 / -4-2 reference methods). A compared loss within the measurement "
+        "uncertainty of its limit is marked \u201cwithin uncertainty\u201d."
     ),
     "appx_apps_pon": (
-        "PON loss classes also set a minimum: the lowest judged loss at each needed wavelength must "
-        "not fall below the class minimum, or the receivers may be overloaded."
+        "PON loss classes also set a minimum: the lowest judged loss at each needed wavelength, as "
+        "measured, must not fall below the class minimum, or the receivers may be overloaded. Each "
+        "class is checked at the wavelengths its standard names (GPON, ITU-T G.984.2: 1310 and "
+        "1490 nm; XG-PON and XGS-PON, G.987.2 / G.9807.1: 1270 and 1577 nm). Results at those "
+        "wavelengths have no cabling limit: they are shown as not judged and count only here."
     ),
     "appx_apps_power": (
         "Transceiver power. Received power = launched power \u2212 link loss (common practice). "
-        "The received power lies in the window [tx_min \u2212 worst loss, tx_max \u2212 least "
-        "loss], using the judged losses at the tested wavelength nearest the optic\u2019s (basis "
+        "The received power lies in the window [tx_min \u2212 (worst loss + end allowance), "
+        "tx_max \u2212 least loss], using the judged losses at the tested wavelength nearest the optic\u2019s (basis "
         "measured) or, when the link has no judged result, its limit (basis budget). Margin = "
         "lowest received power \u2212 receive minimum; headroom = overload \u2212 highest received "
         "power. Verdicts: ok; too-weak (margin below zero); too-strong (headroom below zero, an "
