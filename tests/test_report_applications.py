@@ -160,7 +160,7 @@ def test_project_section_matrix_and_power_list_in_the_front(hand_doc):
 def test_appendix_names_rules_and_sources(hand_doc):
     appendix = hand_doc.bodies[-1]
     section = appendix.split('id="appx-applications"')[1].split("</section>")[0]
-    assert "tx_min \u2212 worst loss, tx_max \u2212 least" in section
+    assert "tx_min \u2212 (worst loss + end allowance), tx_max \u2212 least" in section
     assert "IEEE 802.3 cl. 52" in section and "10GBASE-SR" in section
     assert "1.00, 2.00, 3.00, 5.00" in section  # the attenuators on offer
     # Only the fiber types in use: the OM1 row of 10GBASE-SR is not shown.
