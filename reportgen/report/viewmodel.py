@@ -112,7 +112,7 @@ class LinkView:
     worst_margin_db: float | None
     judged: int
     budgets: tuple[BudgetView, ...]
-    results: tuple[ResultView, ...]  # judged results
+    results: tuple[ResultView, ...]  # judged results and not-judged ones (no cabling limit)
     set_aside: tuple[ResultView, ...]  # superseded and invalid rows
     missing: tuple[MissingView, ...]
     failing: tuple[ResultView, ...]  # judged results that fail
@@ -235,7 +235,7 @@ class ApplicationRuleRow:
     family: str
     fiber_types: str
     test_wavelengths_nm: str
-    max_length_m: float
+    max_length_m: float | None  # None: the standard sets no reach
     min_loss_db: float | None
     max_loss_db: float
     source: str
