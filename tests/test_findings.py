@@ -231,7 +231,7 @@ def test_application_not_supported_is_an_error_on_its_link():
 
 def _optic(tx_min, tx_max, sensitivity, overload):
     return Transceiver("x", 850, tx_min_dbm=tx_min, tx_max_dbm=tx_max,
-                       rx_sensitivity_dbm=sensitivity, rx_overload_dbm=overload)
+                       rx_min_average_dbm=sensitivity, rx_overload_dbm=overload)
 
 
 def test_transceiver_too_weak_is_an_error():

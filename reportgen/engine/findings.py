@@ -139,20 +139,23 @@ def find_all(project: Project, judgement: Judgement,
     audit = project.testing.audit
     frame = judgement.results
     judged = frame[frame["judged"].fillna(False).astype(bool)]
+    # the latest valid measurement of each result, judged against the cabling limit or not
+    # (a wavelength the limit set lacks still counts for applications): the measurement rules
+    counted = frame[frame["counted"].fillna(False).astype(bool)] if "counted" in frame else judged
     found: list[Finding] = []
-    found += _calibration(project, judged)
+    found += _calibration(project, counted)
     found += _chronology(project, frame, today)
     found += _retests(frame)
     found += _reference_method(project)
     if applications is not None:
         found += _applications(project, applications)
     found += _within_uncertainty(judged)
-    found += _asymmetry(judged, audit.asymmetry_db)
+    found += _asymmetry(counted, audit.asymmetry_db)
     found += _low_loss(project, judgement, judged)
-    found += _repeated(judged, audit.repeat_count)
-    found += _lengths(project, judged)
+    found += _repeated(counted, audit.repeat_count)
+    found += _lengths(project, counted)
     if project.references is not None:
-        found += _references(project, judged)
+        found += _references(project, counted)
     if project.inspections is not None:
         found += _inspections(project)
     return _ordered(project, found)
@@ -363,7 +366,7 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
             [{"file": "links.csv", "line": link.line, "transceiver": power.transceiver,
               "wavelength_nm": power.wavelength_nm,
               "rx_min_dbm": power.rx_min_dbm, "rx_max_dbm": power.rx_max_dbm,
-              "sensitivity_dbm": power.rx_sensitivity_dbm,
+              "rx_min_average_dbm": power.rx_min_average_dbm,
               "overload_dbm": power.rx_overload_dbm}]))
     return found
 
