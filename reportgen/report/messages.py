@@ -133,6 +133,8 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "action_more": "\u2026 and {count} more on the link\u2019s sheet",
     # register (summary table)
     "register_heading": "Link register",
+    "register_errors": "audit findings block acceptance",
+    "register_errors_key": "{mark} after the verdict: audit findings of severity error block acceptance of the link (see its sheet).",
     "register_intro": "Every link in the order of the link list. Worst margin is the smallest margin of the judged results.",
     "col_link": "Link",
     "col_ends": "From \u2192 to",
