@@ -438,6 +438,12 @@ def test_latest_inspection_failed_is_an_error_and_a_later_pass_clears_it():
     assert found(_inspected(dict(end="a"), failed, cleaned)) == []
 
 
+def test_empty_record_folders_mean_nothing_was_recorded():
+    # a references/ or inspections/ folder without rows: the record rules run and find gaps
+    assert found(project_of(rows(), references=[])) == [("reference-missing", "warning", "L1")]
+    assert found(project_of(rows(), inspections=[])) == [("inspection-missing", "warning", "L1")]
+
+
 def test_records_rules_do_not_run_without_records():
     # no references/ and no inspections/ folder: nothing is said about them
     assert found(project_of(rows(), references=None, inspections=None)) == []

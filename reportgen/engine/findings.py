@@ -178,19 +178,19 @@ def _finding(rule: str, link_id: str | None, values: Mapping[str, Any],
 
 
 def _rows(frame: pd.DataFrame, columns: Sequence[str] = ("loss_db",)) -> list[dict[str, Any]]:
-    """Evidence rows: file, line, key and the named columns of every row of ``frame``."""
+    """Evidence rows: file, line, key and the named columns of every row of ``frame``
+    (one pass over the frame)."""
     wanted = ["source_file", "source_line", "strand", "wavelength_nm", "direction", *columns]
     wanted = list(dict.fromkeys(wanted))
+    times = "tested_at" in wanted
     rows = []
     for values in frame[wanted].itertuples(index=False, name=None):
         row = dict(zip(wanted, values))
-        row["file"] = row.pop("source_file")
-        row["line"] = int(row.pop("source_line"))
-        for key in ("strand", "wavelength_nm"):
-            row[key] = int(row[key])
-        if "tested_at" in row:
+        file, line = row.pop("source_file"), int(row.pop("source_line"))
+        row["strand"], row["wavelength_nm"] = int(row["strand"]), int(row["wavelength_nm"])
+        if times:
             row["tested_at"] = pd.Timestamp(row["tested_at"]).to_pydatetime()
-        rows.append({"file": row.pop("file"), "line": row.pop("line"), **row})
+        rows.append({"file": file, "line": line, **row})
     return rows
 
 
@@ -201,11 +201,43 @@ def _has_flag(frame: pd.DataFrame, flag: ResultFlag) -> np.ndarray:
     return has[codes]
 
 
-def _by_link(frame: pd.DataFrame) -> Iterable[tuple[str, pd.DataFrame]]:
-    """Rows of ``frame`` grouped by link, in order of first appearance."""
+class _Group:
+    """The rows of one link in a frame: columns as NumPy arrays (``group["loss_db"]``) and
+    the evidence rows, both cut from arrays made once for the whole frame."""
+
+    def __init__(self, columns: dict[str, np.ndarray], positions: np.ndarray,
+                 evidence: list[dict[str, Any]]) -> None:
+        self._columns = columns
+        self._positions = positions
+        self.evidence = evidence
+
+    def __len__(self) -> int:
+        return len(self._positions)
+
+    def __getitem__(self, column: str) -> np.ndarray:
+        return self._columns[column][self._positions]
+
+
+def _by_link(frame: pd.DataFrame, evidence: Sequence[str] | None = None
+             ) -> Iterable[tuple[str, _Group]]:
+    """Rows of ``frame`` grouped by link, in order of first appearance, each with its
+    evidence rows (``_rows`` of ``evidence`` columns; none when None)."""
     if frame.empty:
-        return ()
-    return frame.groupby("link_id", sort=False)
+        return []
+    codes, link_ids = pd.factorize(frame["link_id"])
+    order = np.argsort(codes, kind="stable")
+    bounds = np.flatnonzero(np.diff(codes[order])) + 1
+    columns = {name: frame[name].to_numpy() for name in frame.columns}
+    rows = _rows(frame, evidence) if evidence is not None else None
+    groups = []
+    for at, positions in enumerate(np.split(order, bounds)):
+        picked = [rows[p] for p in positions] if rows is not None else []
+        groups.append((str(link_ids[at]), _Group(columns, positions, picked)))
+    return groups
+
+
+def _time(value: Any) -> datetime:
+    return pd.Timestamp(value).to_pydatetime()
 
 
 # ------------------------------------------------------------------ instruments
@@ -218,20 +250,19 @@ def _calibration(project: Project, judged: pd.DataFrame) -> list[Finding]:
     due = {i.id: i.calibration_due for i in project.instruments if i.calibration_due is not None}
     flagged = judged[_has_flag(judged, ResultFlag.CALIBRATION_OVERDUE)]
     if not flagged.empty:
-        days = flagged["tested_at"].dt.date
-        for link_id, rows in _by_link(flagged):
-            late: dict[str, list[date]] = {}
-            for ids, day in zip(rows["instrument"], days[rows.index]):
-                for name in ids:
-                    if name in due and day > due[name]:
-                        late.setdefault(name, []).append(day)
-            instruments = sorted(late)
+        # one row per result and instrument it names; late where the day is after its due date
+        uses = flagged.assign(_day=flagged["tested_at"].dt.normalize()).explode("instrument")
+        uses = uses.assign(_due=pd.to_datetime(uses["instrument"].map(due)))
+        late = dict(_by_link(uses[(uses["_day"] > uses["_due"]).to_numpy()]))
+        for link_id, rows in _by_link(flagged, ("loss_db", "tested_at", "instrument")):
+            used = late[link_id]
+            instruments = tuple(sorted(set(used["instrument"])))
             found.append(_finding("calibration-overdue", link_id, {
-                "instruments": tuple(instruments),
+                "instruments": instruments,
                 "due": tuple(due[name] for name in instruments),
                 "results": len(rows),
-                "last_use": max(max(days) for days in late.values()),
-            }, _rows(rows, ("loss_db", "tested_at", "instrument"))))
+                "last_use": _time(used["_day"].max()).date(),
+            }, rows.evidence))
     named = {name for ids in pd.unique(judged["instrument"]) for name in ids} \
         if not judged.empty else set()
     for instrument in project.instruments:
@@ -269,12 +300,13 @@ def _chronology(project: Project, frame: pd.DataFrame, today: date) -> list[Find
         checks.append(("result-outside-period", outside,
                        {"start": testing.period_start, "end": testing.period_end}))
     for rule, mask, values in checks:
-        for link_id, rows in _by_link(frame[mask.fillna(False).to_numpy(dtype=bool)]):
+        for link_id, rows in _by_link(frame[mask.fillna(False).to_numpy(dtype=bool)],
+                                      ("loss_db", "tested_at")):
             found.append(_finding(rule, link_id, {
                 **values, "results": len(rows),
-                "first": rows["tested_at"].min().to_pydatetime(),
-                "last": rows["tested_at"].max().to_pydatetime(),
-            }, _rows(rows, ("loss_db", "tested_at"))))
+                "first": _time(rows["tested_at"].min()),
+                "last": _time(rows["tested_at"].max()),
+            }, rows.evidence))
     return found
 
 
@@ -293,22 +325,23 @@ def _retests(frame: pd.DataFrame) -> list[Finding]:
     same_time = keyed.groupby(KEY + ["tested_at"], sort=False)["loss_db"]
     spread = same_time.transform("max") - same_time.transform("min")
     ambiguous = keyed[(spread > TOLERANCE_DB).to_numpy()]
-    for link_id, rows in _by_link(ambiguous):
+    for link_id, rows in _by_link(ambiguous, ("loss_db", "tested_at")):
         found.append(_finding("ambiguous-retest", link_id, {
-            "results": int(rows.groupby(KEY + ["tested_at"]).ngroups),
+            "results": len(set(zip(rows["strand"], rows["wavelength_nm"], rows["direction"],
+                                   rows["tested_at"]))),
             "low_db": float(rows["loss_db"].min()), "high_db": float(rows["loss_db"].max()),
-        }, _rows(rows, ("loss_db", "tested_at"))))
+        }, rows.evidence))
     # within a file: the running latest time of earlier rows of the same result
     in_file = keyed.sort_values(["source_file", "source_line"], kind="stable")
     by_file = KEY + ["source_file"]
     in_file = in_file.assign(_before=in_file.groupby(by_file, sort=False)["tested_at"].shift())
     before = in_file.groupby(by_file, sort=False)["_before"].cummax()
     backwards = in_file[(in_file["tested_at"] < before).to_numpy()]
-    for link_id, rows in _by_link(backwards):
+    for link_id, rows in _by_link(backwards, ("loss_db", "tested_at")):
         found.append(_finding("retest-order", link_id, {
-            "rows": len(rows), "file": rows["source_file"].iloc[0],
-            "line": int(rows["source_line"].iloc[0]),
-        }, _rows(rows, ("loss_db", "tested_at"))))
+            "rows": len(rows), "file": str(rows["source_file"][0]),
+            "line": int(rows["source_line"][0]),
+        }, rows.evidence))
     return found
 
 
@@ -375,7 +408,8 @@ def _within_uncertainty(judged: pd.DataFrame) -> list[Finding]:
     flagged = judged[_has_flag(judged, ResultFlag.WITHIN_UNCERTAINTY)]
     return [_finding("within-uncertainty", link_id, {
         "results": len(rows), "worst_margin_db": float(rows["margin_db"].min())},
-        _rows(rows, ("loss_db", "limit_db", "margin_db"))) for link_id, rows in _by_link(flagged)]
+        rows.evidence)
+        for link_id, rows in _by_link(flagged, ("loss_db", "limit_db", "margin_db"))]
 
 
 # ------------------------------------------------------------------ plausibility
@@ -396,10 +430,11 @@ def _asymmetry(judged: pd.DataFrame, threshold_db: float) -> list[Finding]:
         evidence = [{"file": a_file, "line": int(a_line), "line_ba": int(b_line),
                      "file_ba": b_file, "strand": int(strand), "wavelength_nm": int(wl),
                      "loss_ab_db": float(a), "loss_ba_db": float(b), "difference_db": float(d)}
-                    for a_file, a_line, b_file, b_line, strand, wl, a, b, d in rows[[
-                        "source_file_ab", "source_line_ab", "source_file_ba", "source_line_ba",
-                        "strand", "wavelength_nm", "loss_db_ab", "loss_db_ba",
-                        "difference_db"]].itertuples(index=False, name=None)]
+                    for a_file, a_line, b_file, b_line, strand, wl, a, b, d in zip(*(
+                        rows[name] for name in (
+                            "source_file_ab", "source_line_ab", "source_file_ba",
+                            "source_line_ba", "strand", "wavelength_nm", "loss_db_ab",
+                            "loss_db_ba", "difference_db")))]
         found.append(_finding("direction-asymmetry", link_id, {
             "pairs": len(rows), "worst_db": float(rows["difference_db"].max()),
             "threshold_db": threshold_db}, evidence))
@@ -435,8 +470,8 @@ def _low_loss(project: Project, judgement: Judgement, judged: pd.DataFrame) -> l
                 - TOLERANCE_DB).to_numpy()]
     return [_finding("implausibly-low-loss", link_id, {
         "results": len(group), "least_loss_db": float(group["loss_db"].min()),
-        "bound_db": float(group.loc[group["loss_db"].idxmin(), "bound_db"])},
-        _rows(group, ("loss_db", "bound_db"))) for link_id, group in _by_link(low)]
+        "bound_db": float(group["bound_db"][group["loss_db"].argmin()])},
+        group.evidence) for link_id, group in _by_link(low, ("loss_db", "bound_db"))]
 
 
 def _repeated(judged: pd.DataFrame, count: int) -> list[Finding]:
@@ -452,11 +487,11 @@ def _repeated(judged: pd.DataFrame, count: int) -> list[Finding]:
         .transform("size")
     repeated = keyed[(sizes >= count).to_numpy()]
     flagged: set[str] = set()
-    for link_id, rows in _by_link(repeated):
+    for link_id, rows in _by_link(repeated, ("loss_db", "tested_at", "technician")):
         flagged.add(link_id)
         found.append(_finding("repeated-readings", link_id, {
-            "results": len(rows), "loss_db": float(rows["loss_db"].iloc[0]), "count": count,
-            "technician": None}, _rows(rows, ("loss_db", "tested_at", "technician"))))
+            "results": len(rows), "loss_db": float(rows["loss_db"][0]), "count": count,
+            "technician": None}, rows.evidence))
     worked = keyed[keyed["technician"].fillna("").astype(str).str.strip() != ""]
     if worked.empty:
         return found
@@ -499,16 +534,16 @@ def _lengths(project: Project, judged: pd.DataFrame) -> list[Finding]:
     allowed = (rows["documented_m"] * audit.length_tolerance_percent / 100.0
                + audit.length_tolerance_m)
     off = rows[(rows["difference_m"] > allowed + 1e-6).to_numpy()]
-    for link_id, group in _by_link(off):
-        worst = group.loc[group["difference_m"].idxmax()]
+    for link_id, group in _by_link(off, ("measured_length_m", "documented_m")):
+        worst = group["difference_m"].argmax()
+        documented = float(group["documented_m"][worst])
         found.append(_finding("length-mismatch", link_id, {
-            "measured_m": float(worst["measured_length_m"]),
-            "documented_m": float(worst["documented_m"]),
-            "difference_m": float(worst["difference_m"]),
-            "allowed_m": float(worst["documented_m"] * audit.length_tolerance_percent / 100.0
-                               + audit.length_tolerance_m),
-            "results": len(group)},
-            _rows(group, ("measured_length_m", "documented_m"))))
+            "measured_m": float(group["measured_length_m"][worst]),
+            "documented_m": documented,
+            "difference_m": float(group["difference_m"][worst]),
+            "allowed_m": documented * audit.length_tolerance_percent / 100.0
+            + audit.length_tolerance_m,
+            "results": len(group)}, group.evidence))
     return found
 
 
@@ -538,27 +573,27 @@ def _references(project: Project, judged: pd.DataFrame) -> list[Finding]:
         columns=["meter", "wavelength_nm", "set_at", "ref_at", "ref"])
     rows = _meter_rows(project, judged).reset_index(names="_row")
     rows = rows[rows["tested_at"].notna()].sort_values("tested_at", kind="stable")
-    refs = refs.astype({"wavelength_nm": "int64", "set_at": "datetime64[ns]",
+    rows = rows.astype({"meter": object, "wavelength_nm": "int64",
+                        "tested_at": "datetime64[ns]"})
+    refs = refs.astype({"meter": object, "wavelength_nm": "int64", "set_at": "datetime64[ns]",
                         "ref_at": "datetime64[ns]", "ref": "int64"}).sort_values("set_at")
     tied = pd.merge_asof(rows, refs.rename(columns={"set_at": "tested_at"}), on="tested_at",
                          by=["meter", "wavelength_nm"], direction="backward")
     tied = tied.sort_values(["_row"], kind="stable")
     found: list[Finding] = []
     missing = tied[tied["ref"].isna()]
-    for link_id, group in _by_link(missing):
+    for link_id, group in _by_link(missing, ("loss_db", "tested_at", "meter")):
         found.append(_finding("reference-missing", link_id, {
-            "results": int(group["_row"].nunique()),
+            "results": len(set(group["_row"])),
             "meters": tuple(sorted({m for m in group["meter"] if m})),
-        }, _rows(group, ("loss_db", "tested_at", "meter"))))
-    age_h = (tied["tested_at"] - tied["ref_at"]).dt.total_seconds() / 3600.0
-    stale = tied[(age_h > audit.reference_max_age_h + 1e-9).to_numpy()]
-    for link_id, group in _by_link(stale):
-        ages = (group["tested_at"] - group["ref_at"]).dt.total_seconds() / 3600.0
+        }, group.evidence))
+    tied = tied.assign(
+        reference_age_h=(tied["tested_at"] - tied["ref_at"]).dt.total_seconds() / 3600.0)
+    stale = tied[(tied["reference_age_h"] > audit.reference_max_age_h + 1e-9).to_numpy()]
+    for link_id, group in _by_link(stale, ("loss_db", "tested_at", "meter", "reference_age_h")):
         found.append(_finding("reference-stale", link_id, {
-            "results": int(group["_row"].nunique()), "age_h": float(ages.max()),
-            "max_age_h": audit.reference_max_age_h},
-            _rows(group.assign(reference_age_h=ages), ("loss_db", "tested_at", "meter",
-                                                       "reference_age_h"))))
+            "results": len(set(group["_row"])), "age_h": float(group["reference_age_h"].max()),
+            "max_age_h": audit.reference_max_age_h}, group.evidence))
     used = sorted({int(ref) for ref in tied["ref"].dropna()})
     for at in used:
         reference = project.references[at]
