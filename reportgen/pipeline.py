@@ -24,6 +24,7 @@ from reportgen.export.summary import json_bytes
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
+from reportgen.engine.otdr import OtdrAssessment, assess_otdr
 from reportgen.report.messages import PAGE_LABEL, reason_text
 from reportgen.model import Project
 from reportgen.inputs.project import load_project
@@ -43,6 +44,7 @@ class Outcome:
     project: Project
     judgement: Judgement
     applications: ProjectApplications  # applications and transceiver power budgets per link
+    otdr: OtdrAssessment | None = None  # OTDR events paired, averaged and judged
 
 
 @dataclass(frozen=True)
@@ -67,8 +69,10 @@ def compute(project: Project) -> Outcome:
     """Steps 2 and 3: judge every result, then assess applications and power budgets."""
     log.info("Step 2: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
-    log.info("Step 3: assessing applications and transceiver power budgets")
-    return Outcome(project, judgement, assess_project(project, judgement))
+    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces",
+             len(project.otdr))
+    applications = assess_project(project, judgement)
+    return Outcome(project, judgement, applications, assess_otdr(project))
 
 
 def default_out_dir(project_dir: Path) -> Path:
@@ -137,7 +141,8 @@ def build(
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
-                                    now=now, version=version, reason_text=reason_text)
+                                    now=now, version=version, reason_text=reason_text,
+                                    otdr=outcome.otdr)
 
 
 def render_report(outcome: Outcome, *, now: datetime, version: str,

@@ -17,6 +17,7 @@ import pandas as pd
 from reportgen.inputs.apptable import check_application_ids, load_applications
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.otdr import load_otdr
 from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_yaml
 from reportgen.model import (
     Component,
@@ -100,6 +101,9 @@ def load_project(project_dir: Path) -> Project:
         if frame is not None and len(frame):
             frames.append(frame)
 
+    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units)
+    problems += otdr_problems
+
     if problems:
         raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
@@ -117,8 +121,9 @@ def load_project(project_dir: Path) -> Project:
         technicians=settings.technicians,
         report=settings.report,
         result_files=tuple(files),
-        files_read=_files_read(root, settings, files),
+        files_read=tuple(sorted({*_files_read(root, settings, files), *otdr_files})),
         applications=applications,
+        otdr=otdr_traces,
     )
 
 
