@@ -107,8 +107,9 @@ def trace(direction, events, **kw):
                      group_index=1.5, **kw)
 
 
+# links.csv counts connections inside the link: the two end connections come on top
 LINK = make_link("L1", fiber_type=FiberType.OS2, plant=Plant.OUTSIDE, length_m=2000.0,
-                 connections=2, splices=1)
+                 connections=0, splices=1)
 
 
 def test_events_of_both_directions_are_paired_mirrored_and_averaged():
@@ -126,7 +127,9 @@ def test_events_of_both_directions_are_paired_mirrored_and_averaged():
     assert splice.loss_avg_db == pytest.approx(0.04)
     assert judged[0].loss_avg_db == pytest.approx((0.30 + 0.36) / 2)  # A's connector seen from both ends
     assert strand.length_m == pytest.approx(2000.0)
-    assert strand.findings == ()
+    assert strand.findings == ()  # length within 3 %, 2 end connections + 0 inside, 1 splice
+    other = make_link("L1", fiber_type=FiberType.OS2, length_m=2000.0, connections=1, splices=2)
+    assert assess_strand(other, [ab, ba], settings, 0.75, 0.3).findings == ("connection-count", "splice-count")
 
 
 def test_an_event_beyond_the_tolerance_is_not_paired():

@@ -131,3 +131,24 @@ def test_testing_otdr_values_are_checked(make_project):
         load_project(make_project({"project.yaml": yaml}))
     assert [(p.file, p.field) for p in caught.value.problems] == [
         ("project.yaml", "testing.otdr.splice_db"), ("project.yaml", "testing.otdr.polish")]
+
+
+def test_summary_json_carries_the_otdr_results(make_project, tmp_path):
+    import json
+
+    from reportgen.pipeline import build
+
+    root = make_project({"project.yaml": OTDR_YAML, "otdr/events.csv": EVENTS_CSV})
+    build(root, tmp_path / "out", report=False)
+    links = {entry["link_id"]: entry for entry in
+             json.loads((tmp_path / "out" / "summary.json").read_text())["links"]}
+    assert links["L1"]["otdr"] == []
+    (strand,) = links["L2"]["otdr"]
+    assert (strand["strand"], strand["wavelength_nm"], strand["directions"]) == (1, 1550, ["ab"])
+    # 1800 m end − 150 m launch cord − 150 m receive cord = 1500 m, links.csv's length
+    assert strand["length_m"] == 1500.0
+    # the table shows one end connection of two, and a splice links.csv does not list for L2
+    assert strand["findings"] == ["connection-count", "splice-count"]
+    kinds = [(e["kind"], e["position_m"], e["loss_ab_db"], e["verdict"]) for e in strand["events"]]
+    assert kinds == [("launch", -150.0, 0.0, "not-judged"), ("connector", 0.0, 0.21, "pass"),
+                     ("splice", 650.0, 0.05, "pass"), ("end", 1650.0, 0.0, "not-judged")]

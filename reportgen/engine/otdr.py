@@ -148,7 +148,7 @@ class StrandOtdr:
     length_m: float | None  # fiber length of the link measured (cords taken off)
     documented_length_m: float
     length_tolerance_m: float
-    end_to_end_loss_db: float | None  # mean of the two directions' event losses inside the link
+    end_to_end_loss_db: float | None  # the instruments' end-to-end loss, mean of both directions
     pair_tolerance_m: float
     verdict: str  # "pass" or "fail"
     findings: tuple[str, ...]  # "length-differs", "connection-count", "splice-count"
@@ -252,7 +252,7 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
         limit = None
         if kind in (OtdrEventKind.LAUNCH, OtdrEventKind.END) or not inside:
             verdict = "not-judged"
-            if not inside:
+            if not inside and kind not in (OtdrEventKind.LAUNCH, OtdrEventKind.END):
                 flags.append("in-cord")
         else:
             allowance = conn_allow if kind in JUDGED_AS_CONNECTION else splice_allow
@@ -261,8 +261,8 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
             if limit is not None and reflectance is not None and reflectance > limit + TOLERANCE_DB:
                 fails = True
             verdict = "fail" if fails else "pass"
-        lsa_ab = _lsa(ab, one_ab, tolerance, settings) if one_ab else None
-        lsa_ba = _lsa(ba, one_ba, tolerance, settings) if one_ba else None
+        lsa_ab = _lsa(ab, one_ab) if one_ab else None
+        lsa_ba = _lsa(ba, one_ba) if one_ba else None
         for lsa, table in ((lsa_ab, loss_ab), (lsa_ba, loss_ba)):
             if lsa is not None and table is not None and abs(lsa - table) > settings.lsa_threshold_db + TOLERANCE_DB:
                 flags.append("lsa-differs")
@@ -277,15 +277,15 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
     if length is not None and abs(length - link.length_m) > length_tol:
         findings.append("length-differs")
     judged = [e for e in events if e.verdict != "not-judged"]
-    if sum(e.kind in JUDGED_AS_CONNECTION for e in judged) != link.connections:
+    # links.csv counts the connections inside the link; the two end connections are measured
+    # too when a cord is there to show them (launch cord at the trace's start, receive at its end)
+    cords = _cords(first, settings)
+    expected_connections = link.connections + sum(1 for cord in cords if cord > 0)
+    if sum(e.kind in JUDGED_AS_CONNECTION for e in judged) != expected_connections:
         findings.append("connection-count")
     if sum(e.kind is OtdrEventKind.SPLICE for e in judged) != link.splices:
         findings.append("splice-count")
-    totals = []
-    for direction in (Direction.AB, Direction.BA):
-        losses = [e.loss_ab_db if direction is Direction.AB else e.loss_ba_db for e in judged]
-        if judged and all(v is not None for v in losses):
-            totals.append(sum(losses))  # type: ignore[arg-type]
+    totals = [t.total_loss_db for t in (ab, ba) if t and t.total_loss_db is not None]
     end_to_end = _mean(totals) if totals else None
     verdict = "fail" if any(e.verdict == "fail" for e in events) else "pass"
     ordered = tuple(t for t in (ab, ba) if t)
@@ -310,8 +310,7 @@ def _mean(values: Sequence[float]) -> float:
     return sum(values) / len(values)
 
 
-def _lsa(trace: OtdrTrace | None, item: tuple[float, OtdrEvent], tolerance: float,
-         settings: OtdrSettings) -> float | None:
+def _lsa(trace: OtdrTrace | None, item: tuple[float, OtdrEvent]) -> float | None:
     if trace is None or trace.samples_db is None or not trace.sample_spacing_m:
         return None
     event = item[1]
