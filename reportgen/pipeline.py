@@ -158,7 +158,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
 
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,
-                                   version=version, applications=outcome.applications)
+                                   version=version, applications=outcome.applications,
+                                   otdr=outcome.otdr)
 
     def meanwhile() -> dict[str, bytes]:
         made = alongside() if alongside is not None else {}

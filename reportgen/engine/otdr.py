@@ -245,7 +245,9 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
         else:
             avg = loss_ab if loss_ab is not None else loss_ba
             flags.append("one-way")
-        refls = [p[1].reflectance_db for p in (one_ab, one_ba) if p and p[1].reflectance_db is not None]
+        # a launch seen from one end is the other end's fiber end: show its own direction's value
+        refls = [p[1].reflectance_db for p in (one_ab, one_ba) if p and p[1].reflectance_db is not None
+                 and (not _end_like(p[1]) or p[1].kind is kind)]
         reflectance = max(refls) if refls else None
         inside = -tolerance <= x <= span + tolerance
         allowance = None
