@@ -49,6 +49,7 @@ trip, ``2·t``).
 """
 from __future__ import annotations
 
+import binascii
 import struct
 from dataclasses import dataclass, field, replace
 from typing import Final
@@ -163,25 +164,13 @@ class SorFile:
 # ------------------------------------------------------------------ CRC
 
 
-def _crc_table() -> tuple[int, ...]:
-    table = []
-    for byte in range(256):
-        crc = byte << 8
-        for _ in range(8):
-            crc = ((crc << 1) ^ 0x1021) if crc & 0x8000 else (crc << 1)
-        table.append(crc & 0xFFFF)
-    return tuple(table)
-
-
-_CRC_TABLE: Final = _crc_table()
-
-
 def crc16_ccitt(data: bytes, crc: int = 0xFFFF) -> int:
-    """CRC-16, polynomial 0x1021, initial 0xFFFF, not reflected, no final XOR."""
-    table = _CRC_TABLE
-    for byte in data:
-        crc = ((crc << 8) & 0xFFFF) ^ table[(crc >> 8) ^ byte]
-    return crc
+    """CRC-16, polynomial 0x1021, initial 0xFFFF, not reflected, no final XOR.
+
+    ``binascii.crc_hqx`` is this CRC (the CCITT polynomial, MSB first) with the initial value
+    given, computed in C.
+    """
+    return binascii.crc_hqx(data, crc)
 
 
 # ------------------------------------------------------------------ reading
