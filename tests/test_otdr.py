@@ -185,3 +185,20 @@ def test_lsa_disagreeing_with_the_instrument_is_flagged():
     clean = next(e for e in assess_strand(LINK, [honest], OtdrSettings(), 0.75, 0.3).events if e.kind is K.SPLICE)
     assert "lsa-differs" in flagged.flags and flagged.lsa_ab_db == pytest.approx(0.30, abs=0.03)
     assert "lsa-differs" not in clean.flags
+
+
+def test_events_inside_the_cords_are_shown_but_not_judged():
+    settings = OtdrSettings(launch_cord_m=300.0, receive_cord_m=300.0)
+    ab = trace(Direction.AB, [(0, K.LAUNCH, 0, -50), (120, K.SPLICE, 0.9, None),  # a bad splice in the cord
+                              (300, K.CONNECTOR, 0.4, -50), (1300, K.SPLICE, 0.1, None),
+                              (2300, K.CONNECTOR, 0.4, -50), (2600, K.END, 0, -14)])
+    strand = assess_strand(LINK, [ab], settings, 0.75, 0.3)
+    by_kind = [(round(e.position_m), e.kind, e.verdict, e.flags) for e in strand.events]
+    assert by_kind == [
+        (-300, K.LAUNCH, "not-judged", ("one-way",)),
+        (-180, K.SPLICE, "not-judged", ("one-way", "in-cord")),
+        (0, K.CONNECTOR, "pass", ("one-way",)),  # the link's first connector: judged
+        (1000, K.SPLICE, "pass", ("one-way",)),
+        (2000, K.CONNECTOR, "pass", ("one-way",)),  # the link's last connector: judged
+        (2300, K.END, "not-judged", ("one-way",)),
+    ]

@@ -152,3 +152,15 @@ def test_summary_json_carries_the_otdr_results(make_project, tmp_path):
     kinds = [(e["kind"], e["position_m"], e["loss_ab_db"], e["verdict"]) for e in strand["events"]]
     assert kinds == [("launch", -150.0, 0.0, "not-judged"), ("connector", 0.0, 0.21, "pass"),
                      ("splice", 650.0, 0.05, "pass"), ("end", 1650.0, 0.0, "not-judged")]
+
+
+def test_a_trace_file_linking_outside_the_project_is_refused(make_project, tmp_path):
+    outside = tmp_path / "elsewhere.sor"
+    outside.write_bytes(sor_bytes())
+    root = make_project()
+    (root / "otdr").mkdir()
+    (root / "otdr" / "a.sor").symlink_to(outside)
+    with pytest.raises(InputError) as caught:
+        load_project(root)
+    (problem,) = caught.value.problems
+    assert problem.file == "otdr/a.sor" and "symbolic link leading outside" in problem.expected

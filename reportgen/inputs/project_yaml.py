@@ -185,7 +185,11 @@ def _limit_set(check: Checker, written: str) -> tuple[LimitSet | None, str | Non
     if resolved is None:
         check.problem("testing.limits", expected + " (symbolic links are followed)", written)
         return None, None
-    if not resolved.is_file():
+    try:
+        is_file = resolved.is_file()
+    except OSError:  # a name the file system refuses, e.g. longer than its limit
+        is_file = False
+    if not is_file:
         close = difflib.get_close_matches(written.lower(), ids, n=1, cutoff=0.6)
         hint = f" (did you mean {close[0]}?)" if close else ""
         check.problem("testing.limits", expected + hint, written)
