@@ -72,7 +72,7 @@ def compute(project: Project) -> Outcome:
     log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces",
              len(project.otdr))
     applications = assess_project(project, judgement)
-    return Outcome(project, judgement, applications, assess_otdr(project))
+    return Outcome(project, judgement, applications, assess_otdr(project, judgement))
 
 
 def default_out_dir(project_dir: Path) -> Path:

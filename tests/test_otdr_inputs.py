@@ -164,3 +164,19 @@ def test_a_trace_file_linking_outside_the_project_is_refused(make_project, tmp_p
         load_project(root)
     (problem,) = caught.value.problems
     assert problem.file == "otdr/a.sor" and "symbolic link leading outside" in problem.expected
+
+
+@pytest.mark.parametrize("il_db, finding", [(1.05, False), (1.40, True)])
+def test_otdr_end_to_end_loss_is_compared_with_the_insertion_loss(make_project, il_db, finding):
+    from reportgen.engine.judge import judge_project
+    from reportgen.engine.otdr import assess_otdr
+
+    results = ("link_id,strand,wavelength_nm,direction,loss_db,tested_at,instrument\n"
+               f"L2,1,1310,ab,{il_db:.2f},2030-01-15T10:00,SRC-1\n")
+    # the trace's own end-to-end loss: 0.1 dB splice + 0.35 dB/km × 1.8 km = 0.73 dB;
+    # 1.05 − 0.73 = 0.32 dB is within 0.5 dB, 1.40 − 0.73 = 0.67 dB is not
+    project = load_project(make_project({"otdr/a.sor": sor_bytes(), "results/day1.csv": results}))
+    (strand,) = assess_otdr(project, judge_project(project)).strands
+    assert strand.end_to_end_loss_db == pytest.approx(0.73)
+    assert strand.insertion_loss_db == pytest.approx(il_db)
+    assert ("il-differs" in strand.findings) is finding

@@ -6,6 +6,7 @@ docs/project-format.md §11.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections import defaultdict
 from collections.abc import Sequence
@@ -14,6 +15,7 @@ from typing import Final
 
 import numpy as np
 
+from reportgen.engine.judge import Judgement
 from reportgen.model import (
     Direction,
     FiberCategory,
@@ -62,6 +64,12 @@ LSA_MIN_POINTS: Final = 8
 # by the fiber's excess length in a loose-tube cable (helix, about 0.5 to 2 %) and by slack
 # loops: testing.otdr.length_tolerance_pct of the documented length (default 3 %, common
 # practice), but never less than the pairing tolerance (the instrument's resolution).
+
+# OTDR end-to-end loss against the insertion-loss result of the same strand and wavelength
+# (mean of the judged results): both measure the same link, but the OTDR reads the end
+# connections from backscatter and the meter from a reference; a difference beyond
+# IL_AGREEMENT_DB is a finding (our choice, from memory of field practice: a few tenths of a dB).
+IL_AGREEMENT_DB: Final = 0.5
 
 JUDGED_AS_CONNECTION: Final = frozenset({OtdrEventKind.CONNECTOR, OtdrEventKind.REFLECTIVE})
 JUDGED_AS_SPLICE: Final = frozenset({OtdrEventKind.SPLICE, OtdrEventKind.BEND, OtdrEventKind.OTHER})
@@ -151,7 +159,8 @@ class StrandOtdr:
     end_to_end_loss_db: float | None  # the instruments' end-to-end loss, mean of both directions
     pair_tolerance_m: float
     verdict: str  # "pass" or "fail"
-    findings: tuple[str, ...]  # "length-differs", "connection-count", "splice-count"
+    findings: tuple[str, ...]  # "length-differs", "connection-count", "splice-count", "il-differs"
+    insertion_loss_db: float | None = None  # mean judged insertion loss, same strand and wavelength
 
 
 @dataclass(frozen=True)
@@ -162,18 +171,38 @@ class OtdrAssessment:
         return tuple(s for s in self.strands if s.link_id == link_id)
 
 
-def assess_otdr(project: Project) -> OtdrAssessment:
-    """Every OTDR strand and wavelength of the project, in links.csv order."""
+def assess_otdr(project: Project, judgement: Judgement | None = None) -> OtdrAssessment:
+    """Every OTDR strand and wavelength of the project, in links.csv order.
+
+    With ``judgement`` the OTDR end-to-end loss is compared with the insertion-loss results.
+    """
     settings = getattr(project.testing, "otdr", None) or OtdrSettings()
     groups: dict[tuple[str, int, int], list[OtdrTrace]] = defaultdict(list)
     for trace in getattr(project, "otdr", ()):
         groups[(trace.link_id, trace.strand, trace.wavelength_nm)].append(trace)
+    insertion_loss = _insertion_losses(judgement)
     strands = []
     for link in project.links:
         for key in sorted(k for k in groups if k[0] == link.link_id):
-            strands.append(assess_strand(link, groups[key], settings,
-                                         project.limits.connection_db, project.limits.splice_db))
+            strand = assess_strand(link, groups[key], settings,
+                                   project.limits.connection_db, project.limits.splice_db)
+            il = insertion_loss.get(key)
+            if il is not None and strand.end_to_end_loss_db is not None:
+                strand = dataclasses.replace(strand, insertion_loss_db=il)
+                if abs(strand.end_to_end_loss_db - il) > IL_AGREEMENT_DB + TOLERANCE_DB:
+                    strand = dataclasses.replace(strand, findings=(*strand.findings, "il-differs"))
+            strands.append(strand)
     return OtdrAssessment(tuple(strands))
+
+
+def _insertion_losses(judgement: Judgement | None) -> dict[tuple[str, int, int], float]:
+    """Mean judged insertion loss per (link, strand, wavelength)."""
+    if judgement is None or judgement.results.empty:
+        return {}
+    frame = judgement.results
+    judged = frame[frame["judged"].astype(bool)]
+    means = judged.groupby(["link_id", "strand", "wavelength_nm"])["loss_db"].mean()
+    return {(str(k[0]), int(k[1]), int(k[2])): float(v) for k, v in means.items()}
 
 
 def _cords(trace: OtdrTrace, settings: OtdrSettings) -> tuple[float, float]:

@@ -77,6 +77,7 @@ def otdr_json(otdr: OtdrAssessment, link_id: str) -> list[dict[str, Any]]:
             "length_m": round_length_m(strand.length_m),
             "documented_length_m": round_length_m(strand.documented_length_m),
             "end_to_end_loss_db": round_db(strand.end_to_end_loss_db),
+            "insertion_loss_db": round_db(strand.insertion_loss_db),
             "findings": list(strand.findings),
             "events": [
                 {

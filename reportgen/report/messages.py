@@ -436,6 +436,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr_finding_length-differs": "The measured fiber length differs from the documented length by more than allowed.",
     "otdr_finding_connection-count": "The number of connections found differs from the link's description.",
     "otdr_finding_splice-count": "The number of splices found differs from the link's description.",
+    "otdr_finding_il-differs": "The OTDR end-to-end loss differs from the insertion-loss result ({value} dB) by more than 0.5 dB.",
 })
 
 GLOSSARY: Final[tuple[tuple[str, str], ...]] = (

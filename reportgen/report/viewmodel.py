@@ -136,6 +136,7 @@ class OtdrStrandView:
     documented_length_m: float
     length_tolerance_m: float
     end_to_end_loss_db: float | None
+    insertion_loss_db: float | None
     pair_tolerance_m: float
     findings: tuple[str, ...]
     files: tuple[str, ...]
@@ -154,7 +155,7 @@ def _with_otdr(links: tuple[LinkView, ...], otdr: OtdrAssessment | None) -> tupl
         strands = tuple(
             OtdrStrandView(otdr_figure_key(view.anchor, s.strand, s.wavelength_nm), s.strand, s.wavelength_nm,
                            s.verdict, s.length_m, s.documented_length_m, s.length_tolerance_m,
-                           s.end_to_end_loss_db, s.pair_tolerance_m, s.findings,
+                           s.end_to_end_loss_db, s.insertion_loss_db, s.pair_tolerance_m, s.findings,
                            tuple(t.source_file for t in s.traces), s.events)
             for s in otdr.for_link(view.link_id))
         out.append(dataclasses.replace(view, otdr=strands) if strands else view)
