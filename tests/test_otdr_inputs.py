@@ -180,3 +180,11 @@ def test_otdr_end_to_end_loss_is_compared_with_the_insertion_loss(make_project, 
     assert strand.end_to_end_loss_db == pytest.approx(0.73)
     assert strand.insertion_loss_db == pytest.approx(il_db)
     assert ("il-differs" in strand.findings) is finding
+
+
+def test_a_trace_of_a_link_whose_row_is_wrong_adds_no_second_message(make_project):
+    links = "link_id,end_a,end_b,fiber_type,length_m,strands\nL1,Room 1,Room 2,OM4,120,2\nL2,Room 1,Hut 3,OS9,1500,1\n"
+    root = make_project({"links.csv": links, "otdr/a.sor": sor_bytes(), "results/day1.csv": None})
+    with pytest.raises(InputError) as caught:
+        load_project(root)
+    assert [(p.file, p.field) for p in caught.value.problems] == [("links.csv", "fiber_type")]

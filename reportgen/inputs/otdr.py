@@ -82,9 +82,15 @@ def otdr_settings(check: Checker, testing: Mapping[str, Any]) -> OtdrSettings | 
 # ------------------------------------------------------------------ the otdr/ folder
 
 
-def load_otdr(root: Path, links: Sequence[Link], units: LengthUnit | None
+def load_otdr(root: Path, links: Sequence[Link], units: LengthUnit | None,
+              all_link_ids: frozenset[str] | None = None
               ) -> tuple[tuple[OtdrTrace, ...], list[str], list[InputProblem]]:
-    """Every trace of ``otdr/``: (traces, files read, problems)."""
+    """Every trace of ``otdr/``: (traces, files read, problems).
+
+    ``all_link_ids``: every id written in links.csv (None when it could not be read). A trace of
+    a link whose row has problems of its own, or any trace when links.csv is unreadable, is
+    skipped without a further message: the links.csv problem is the one to fix.
+    """
     folder = root / OTDR_DIR
     if not folder.exists():
         return (), [], []
@@ -93,6 +99,7 @@ def load_otdr(root: Path, links: Sequence[Link], units: LengthUnit | None
     by_id = {link.link_id: link for link in links}
     problems: list[InputProblem] = []
     files: list[str] = []
+    known_elsewhere = (all_link_ids or frozenset()) - set(by_id)
     index: dict[str, tuple[str, int, Direction, int]] = {}
     if (folder / INDEX_FILE).is_file():
         files.append(f"{OTDR_DIR}/{INDEX_FILE}")
@@ -121,6 +128,10 @@ def load_otdr(root: Path, links: Sequence[Link], units: LengthUnit | None
         files.append(shown)
         traces += _event_table(path, shown, by_id, units, problems)
     problems += _duplicates(traces)
+    if all_link_ids is None:  # links.csv unreadable: it is the problem to report
+        return (), files, [p for p in problems if p.field not in ("link_id", "GenParams cable id", "strand")]
+    problems = [p for p in problems if not (p.field in ("link_id", "GenParams cable id")
+                                            and (p.found or "").strip() in known_elsewhere)]
     return tuple(traces), files, problems
 
 

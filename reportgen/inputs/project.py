@@ -101,7 +101,7 @@ def load_project(project_dir: Path) -> Project:
         if frame is not None and len(frame):
             frames.append(frame)
 
-    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units)
+    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids)
     problems += otdr_problems
 
     if problems:
