@@ -79,6 +79,7 @@ class ResultVerdict(StrEnum):
     FAIL = "fail"
     INVALID = "invalid"
     SUPERSEDED = "superseded"
+    NOT_JUDGED = "not-judged"  # no cabling limit at this wavelength (counted for applications)
 
 
 class LinkVerdict(StrEnum):
@@ -91,10 +92,11 @@ class ResultFlag(StrEnum):
     """Flags on a result row (``flags`` column of results.csv)."""
 
     WITHIN_UNCERTAINTY = "within-uncertainty"  # |margin| <= uncertainty_db
-    NEGATIVE_LOSS = "negative-loss"  # loss below -uncertainty_db: bad reference
+    NEGATIVE_LOSS = "negative-loss"  # loss below 0; below -uncertainty_db also invalid
     RETEST = "retest"  # judged row that superseded earlier rows of the same key
     CALIBRATION_OVERDUE = "calibration-overdue"  # an instrument used after its due date
     NOT_REQUIRED = "not-required"  # wavelength judged but not in the required set
+    NO_CABLING_LIMIT = "no-cabling-limit"  # the limit set has no attenuation here: not judged
 
 
 # Default required wavelengths per fiber category [nm] (common practice: the two
@@ -162,7 +164,7 @@ class Transceiver:
     wavelength_nm: int
     tx_min_dbm: float
     tx_max_dbm: float
-    rx_sensitivity_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
+    rx_min_average_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
     rx_overload_dbm: float
     description: str | None = None
 
@@ -324,7 +326,7 @@ class FiberLimits:
     """One row of an application entry: the limits on some fiber types."""
 
     fiber_types: tuple[FiberType, ...]
-    max_length_m: float
+    max_length_m: float | None  # None: the standard sets no reach (not checked)
     max_loss_db: float
     min_loss_db: float | None
     status: str  # "verified, secondary" / "derived" / "from memory", per value where mixed

@@ -425,7 +425,7 @@ def test_minimal_project_loads_with_defaults(make_project):
         InstrumentKind.LIGHT_SOURCE, "00417", date(2030, 3, 1))
     assert meter.kind is InstrumentKind.POWER_METER
     assert project.components["split-1x8"].loss_db == 10.5
-    assert project.transceivers["sr"].rx_sensitivity_dbm == -9.9
+    assert project.transceivers["sr"].rx_min_average_dbm == -9.9
     assert project.result_files == ("results/day1.csv",)
 
 
@@ -570,7 +570,8 @@ def test_files_read_lists_every_project_file_the_inputs_stage_opened():
                    for wl in (1310, 1550) for d in ("ab", "ba"))
     assert project.files_read == (
         "assets/logo.svg", "links.csv", *traces, "project.yaml", "results/day1-building-a.csv",
-        "results/day2-campus.csv", "results/day2-retests.csv")
+        "results/day2-campus.csv", "results/day2-retests.csv",
+        "results/day3-pon-1490.csv")
 
 
 def test_a_limit_file_name_too_long_for_the_file_system_is_a_clear_problem(make_project):

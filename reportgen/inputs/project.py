@@ -82,7 +82,8 @@ def load_project(project_dir: Path) -> Project:
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
-                      instruments=settings.instruments, units=settings.units)
+                      instruments=settings.instruments, units=settings.units,
+                      applications=applications)
     frames: list[pd.DataFrame] = []
     files: list[str] = []
     for path in _result_files(root, problems):

@@ -180,6 +180,7 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
     )
     env.filters.update(
         db=messages.format_db,
+        status=messages.customer_status,
         dbm=messages.format_dbm,
         km=messages.format_km,
         length=functools.partial(messages.format_length, unit=length_unit),

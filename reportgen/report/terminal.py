@@ -119,7 +119,7 @@ def print_applications(console: Console) -> None:
         table.add_column(column, justify=justify, no_wrap=column == "id")
     for row in rows:
         table.add_row(row["id"], row["fiber_types"], row["test_wavelengths_nm"],
-                      f"{row['max_length_m']:,.0f}", _optional_db(row["min_loss_db"]),
+                      "none set" if row["max_length_m"] is None else f"{row['max_length_m']:,.0f}", _optional_db(row["min_loss_db"]),
                       _optional_db(row["max_loss_db"]))
     console.print(table)
     console.print("Sources:")
