@@ -436,7 +436,7 @@ def test_results_frame_has_the_model_columns_and_dtypes(make_project):
         "source_file": "str", "source_line": "int64", "link_id": "str", "strand": "int64",
         "wavelength_nm": "int64", "direction": "str", "loss_db": "float64",
         "tested_at": "datetime64[ns]", "tested_at_text": "str", "instrument": "object",
-        "technician": "str", "measured_length_m": "float64", "note": "str",
+        "technician": "str", "measured_length_m": "float64", "note": "str", "source": "str",
     }
     row = results.iloc[0]
     assert (row.source_file, row.source_line, row.link_id, row.strand, row.wavelength_nm) == (

@@ -232,6 +232,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         "technician": pd.Series(column["technician"], dtype="str"),
         "measured_length_m": measured_m,
         "note": pd.Series(column["note"], dtype="str"),
+        "source": table.file + ":" + pd.Series(table.lines, dtype="str"),
     }, columns=list(RESULT_COLUMNS))
     return frame, []
 
@@ -244,7 +245,7 @@ def empty_results() -> pd.DataFrame:
         "strand": np.zeros(0, np.int64), "wavelength_nm": np.zeros(0, np.int64), "direction": text,
         "loss_db": np.zeros(0, np.float64), "tested_at": np.zeros(0, "datetime64[ns]"),
         "tested_at_text": text, "instrument": pd.Series([], dtype=object), "technician": text,
-        "measured_length_m": np.zeros(0, np.float64), "note": text,
+        "measured_length_m": np.zeros(0, np.float64), "note": text, "source": text,
     }, columns=list(RESULT_COLUMNS))
 
 
