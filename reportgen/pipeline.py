@@ -134,6 +134,37 @@ def build(
     return BuildResult(out_dir, outcome, tuple(outputs))
 
 
+def write_imported(project: Project, out_dir: Path) -> tuple[str, ...]:
+    """``reportgen import --write``: the imported links as links.csv and each imported results
+    file as results/NAME.csv in ``out_dir`` (each file atomically; other files left alone)."""
+    from reportgen.export.atomic import write_files
+    from reportgen.export.contract_csv import links_csv_bytes, results_rows_csv_bytes
+
+    out_dir = Path(out_dir)
+    links = {link.link_id: link for link in project.links}
+    imported_links = [links[link_id] for source in project.imports if source.kind == "links"
+                      for link_id in source.link_ids]
+    results: dict[str, bytes] = {}
+    for source in project.imports:
+        if source.kind != "results":
+            continue
+        prefix = f"{source.file}[{source.sheet}]:" if source.sheet is not None else f"{source.file}:"
+        rows = project.results[project.results["source"].str.startswith(prefix)]
+        stem = Path(source.file).stem + (f"-{source.sheet}" if source.sheet is not None else "")
+        name = f"{stem}.csv"
+        if name in results:
+            name = f"{stem}-{source.entry}.csv"
+        results[name] = results_rows_csv_bytes(rows)
+    written = []
+    if imported_links:
+        write_files(out_dir, {"links.csv": links_csv_bytes(imported_links)})
+        written.append("links.csv")
+    if results:
+        write_files(out_dir / "results", results)
+        written += [f"results/{name}" for name in results]
+    return tuple(written)
+
+
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
