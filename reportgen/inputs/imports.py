@@ -520,7 +520,7 @@ def _sheet_grid(path: Path, shown: str, profile: Profile, sheet: str | None
     numbers: list[int] = []
     for index in range(profile.skip_rows, len(cells)):
         row = cells[index]
-        if all(cell == "" or cell is None for cell in row):
+        if not any(map(_cell_text, row)):  # blank, also cells holding only spaces
             continue
         if header is None:
             header, header_number = [_cell_text(cell) for cell in row], index + 1

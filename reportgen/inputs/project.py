@@ -99,7 +99,8 @@ def load_project(project_dir: Path) -> Project:
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
-                      instruments=settings.instruments, units=settings.units)
+                      instruments=settings.instruments, units=settings.units,
+                      links_from=_links_from(root, sources))
     frames: list[pd.DataFrame] = []
     files: list[str] = []
     for path in _result_files(root, problems):
@@ -179,6 +180,17 @@ def _result_files(root: Path, problems: list[InputProblem]) -> list[Path]:
          if path.suffix.lower() == ".csv" and not path.name.startswith((".", "~$"))
          and (path.is_file() or not is_inside(root, path))),
         key=lambda path: path.name)
+
+
+def _links_from(root: Path, sources: Sequence[ImportSource]) -> str:
+    """Where the links were read, as a results message names it: links.csv, or the files
+    imported as links (with links.csv when it is there too)."""
+    files = [source.file for source in sources if source.kind == "links"]
+    if not files:
+        return LINKS_FILE
+    if (root / LINKS_FILE).is_file():
+        files.insert(0, LINKS_FILE)
+    return "the links of " + ", ".join(dict.fromkeys(files))
 
 
 def _imported_table(entry: importing.Entry, path: Path, shown: str

@@ -41,6 +41,7 @@ class Context:
     limits: LimitSet | None
     instruments: tuple[Instrument, ...] | None
     units: LengthUnit | None
+    links_from: str = "links.csv"  # where the links were read, as messages name it
 
 
 class _Collector:
@@ -125,7 +126,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         defined = np.array([link_id in context.all_link_ids for link_id in unique_ids], dtype=bool)
         unknown = ~empty_id & ~defined[id_codes] if len(id_codes) else empty_id
         hints = _link_hints(unique_ids, defined, context.all_link_ids)
-        out.add(unknown, "link_id", lambda row: f"a link_id defined in links.csv{hints[id_codes[row]]}",
+        out.add(unknown, "link_id", lambda row: f"a link_id defined in {context.links_from}{hints[id_codes[row]]}",
                 link_ids)
     links = context.links or {}
     unique_links = [links.get(link_id) for link_id in unique_ids]

@@ -1,0 +1,334 @@
+"""imports: in project.yaml: files as they come, read through the user's profiles.
+
+The main check: one set of invented measurements written twice, once as the project format's
+own CSV files (links.csv, results/*.csv) and once the way spreadsheets and meters write them
+(an .xlsx link schedule with a title row, a cp1252 semicolon export with decimal commas, split
+date and time, "A->B" directions and one loss column per wavelength, an .ods sheet). Both
+folders must give the same verdicts and margins, row by row. Everything here is invented.
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+from pathlib import Path
+
+import openpyxl
+import pandas as pd
+import pytest
+
+from reportgen.cli import main
+from reportgen.engine.judge import judge_project
+from reportgen.errors import InputError
+from reportgen.export.results_csv import results_csv_bytes
+from reportgen.inputs.project import load_project
+
+PROJECT_YAML = """\
+project:
+  title: Test hall import (invented)
+  contractor: {name: Example Cabling Works (invented)}
+testing:
+  limits: tia-568.3-d
+  reference_method: one-cord
+  directions: both
+"""
+
+# link_id, end_a, end_b, fiber_type, plant, length_m, strands, connections, splices
+LINKS = [
+    ("T-01", "Hall 1 rack A", "Hall 2 rack B", "OM4", "inside", 82.5, 2, 2, 0),
+    ("T-02", "Hall 1 rack A", "Yard cabinet 3", "OS2", "outside", 1240, 1, 0, 2),
+]
+# link_id, strand, direction, date, time, {wavelength_nm: loss_db}
+DAY1 = [
+    ("T-01", 1, "ab", "2030-11-14", "09:30", {850: 1.84, 1300: 1.02}),
+    ("T-01", 1, "ba", "2030-11-14", "09:34", {850: 1.79, 1300: 0.98}),
+    ("T-01", 2, "ab", "2030-11-14", "09:40", {850: 3.61, 1300: 1.10}),  # fails at 850 nm
+    ("T-01", 2, "ba", "2030-11-14", "09:44", {850: 1.88, 1300: 1.05}),
+    ("T-02", 1, "ab", "2030-11-14", "10:05", {1310: 1.234, 1550: 1.12}),
+    ("T-02", 1, "ba", "2030-11-14", "10:09", {1310: 1.25, 1550: 1.1}),
+]
+DAY2 = [  # a retest of T-01 strand 2 after cleaning
+    ("T-01", 2, "ab", "2030-11-15", "08:15:30", {850: 1.9, 1300: 1.07}),
+]
+WAVELENGTHS = (850, 1300, 1310, 1550)
+
+
+def _write_native(root: Path, *, links: bool = True, days=(("day1", DAY1), ("day2", DAY2))) -> None:
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "project.yaml").write_text(PROJECT_YAML, encoding="utf-8")
+    if links:
+        lines = ["link_id,end_a,end_b,fiber_type,plant,length_m,strands,connections,splices"]
+        lines += [",".join(map(str, link)) for link in LINKS]
+        (root / "links.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    (root / "results").mkdir(exist_ok=True)
+    for name, day in days:
+        lines = ["link_id,strand,wavelength_nm,direction,loss_db,tested_at,technician"]
+        for link_id, strand, direction, date, time, losses in day:
+            for wavelength, loss in losses.items():
+                lines.append(f"{link_id},{strand},{wavelength},{direction},{loss},{date}T{time},"
+                             "Ö. Example")
+        (root / "results" / f"{name}.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+METER_PROFILE = """\
+as: results
+delimiter: ";"
+decimal: ","
+encoding: cp1252
+skip_rows: 2
+columns:
+  link_id: "Cable ID"
+  strand: ["Fibre", "Fibre No."]
+  direction: "Direction"
+  tested_date: "Date"
+  tested_time: "Time"
+  technician: "Operator"
+values:
+  direction: {ab: ["A->B", "A>B"], ba: ["B->A", "B>A"]}
+date_format: ["%d.%m.%Y", "%Y-%m-%d"]
+wide:
+  loss_db:
+    "Loss 850 nm": {wavelength_nm: 850}
+    "Loss 1300 nm": {wavelength_nm: 1300}
+    "Loss 1310 nm": {wavelength_nm: 1310}
+    "Loss 1550 nm": {wavelength_nm: 1550}
+"""
+SCHEDULE_PROFILE = """\
+as: links
+skip_rows: 1
+columns:
+  link_id: Link
+  end_a: From
+  end_b: To
+  fiber_type: Fibre
+  plant: Plant
+  length_m: "Length (m)"
+  strands: Strands
+  connections: "Mated pairs"
+  splices: Splices
+"""
+IMPORTS = """\
+imports:
+  - files: "schedule/links.xlsx"
+    sheet: Links
+    profile: profiles/schedule.yaml
+  - files: "exports/*.csv"
+    profile: profiles/meter.yaml
+  - files: "exports/*.ods"
+    profile: profiles/meter.yaml
+"""
+ARROWS = {"ab": "A->B", "ba": "B->A"}
+HEADER = ["Cable ID", "Fibre No.", "Direction", "Date", "Time", "Operator",
+          *(f"Loss {wavelength} nm" for wavelength in WAVELENGTHS), "Temperature (°C)"]
+
+
+def _wide_rows(day):
+    for link_id, strand, direction, date, time, losses in day:
+        yield link_id, strand, direction, dt.date.fromisoformat(date), time, losses
+
+
+def _write_imported(root: Path, extra: str = "") -> None:
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "project.yaml").write_text(PROJECT_YAML + IMPORTS + extra, encoding="utf-8")
+    (root / "profiles").mkdir()
+    (root / "profiles" / "meter.yaml").write_text(METER_PROFILE, encoding="utf-8")
+    (root / "profiles" / "schedule.yaml").write_text(SCHEDULE_PROFILE, encoding="utf-8")
+
+    # the link schedule: a merged title row, the header, numbers as numbers, trailing blank rows
+    (root / "schedule").mkdir()
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Notes"
+    sheet.append(["This sheet is not read"])
+    sheet = book.create_sheet("Links")
+    sheet.append(["Link schedule, test hall (invented)"])
+    sheet.merge_cells("A1:D1")
+    sheet.append(["Link", "From", "To", "Fibre", "Plant", "Length (m)", "Strands", "Mated pairs",
+                  "Splices", "Installer remark"])
+    for link in LINKS:
+        sheet.append([*link, "ok"])
+    sheet.append([" ", None, None])  # a row of blanks at the end
+    book.save(root / "schedule" / "links.xlsx")
+
+    # day 1: the meter's export, cp1252, semicolons, decimal commas, dates as 14.11.2030
+    (root / "exports").mkdir()
+    lines = ["Export of an invented meter", "Unit;T-series", ";".join(HEADER)]
+    for link_id, strand, direction, date, time, losses in _wide_rows(DAY1):
+        cells = [f"{losses[w]}".replace(".", ",") if w in losses else "" for w in WAVELENGTHS]
+        lines.append(";".join([link_id, str(strand), ARROWS[direction], date.strftime("%d.%m.%Y"),
+                               time, "Ö. Example", *cells, "21,5"]))
+    (root / "exports" / "day1.csv").write_bytes(("\r\n".join(lines) + "\r\n").encode("cp1252"))
+
+    # day 2: the same layout saved as an .ods sheet (numbers and dates as the sheet stores them)
+    rows = [["Export of an invented meter"] + [None] * (len(HEADER) - 1), [None] * len(HEADER), HEADER]
+    for link_id, strand, direction, date, time, losses in _wide_rows(DAY2):
+        rows.append([link_id, strand, ARROWS[direction], date, time, "Ö. Example",
+                     *(losses.get(w) for w in WAVELENGTHS), 20.0])
+    pd.DataFrame(rows).to_excel(root / "exports" / "day2.ods", engine="odf", header=False, index=False)
+
+
+KEY = ["link_id", "strand", "wavelength_nm", "direction", "tested_at"]
+COMPARED = [*KEY, "loss_db", "limit_db", "margin_db", "verdict", "flags"]
+
+
+def _judged(root: Path):
+    project = load_project(root)
+    return project, judge_project(project)
+
+
+def test_imported_files_judge_exactly_like_the_native_folder(tmp_path):
+    _write_native(tmp_path / "native")
+    _write_imported(tmp_path / "imported")
+    native, native_judgement = _judged(tmp_path / "native")
+    imported, imported_judgement = _judged(tmp_path / "imported")
+
+    a = native_judgement.results[COMPARED].sort_values(KEY).reset_index(drop=True)
+    b = imported_judgement.results[COMPARED].sort_values(KEY).reset_index(drop=True)
+    assert len(a) == 2 * len(DAY1) + 2 * len(DAY2) == len(b)
+    for row_a, row_b in zip(a.itertuples(index=False), b.itertuples(index=False)):
+        assert row_a == row_b
+    assert [(link.link_id, link.verdict) for link in native_judgement.links] == \
+        [(link.link_id, link.verdict) for link in imported_judgement.links]
+    # the same links; only the place they were read differs (links.csv line 2, sheet row 3)
+    assert [dataclasses.replace(link, line=0) for link in native.links] == \
+        [dataclasses.replace(link, line=0) for link in imported.links]
+    assert [link.line for link in imported.links] == [3, 4]
+
+    # One margin worked by hand (ANSI/TIA-568.3-D values as our limit file cites them: 0.75 dB per
+    # mated connector pair, OM4 3.0 dB/km at 850 nm): T-01 has 2 mated pairs plus the 2 of a
+    # one-cord reference and 82.5 m: limit 4 x 0.75 + 0.0825 x 3.0 = 3.2475 dB; 1.84 dB measured.
+    first = b[(b.link_id == "T-01") & (b.strand == 1) & (b.wavelength_nm == 850) & (b.direction == "ab")]
+    assert first["margin_db"].item() == pytest.approx(3.2475 - 1.84)
+    # the retest rule across files: the 2030-11-15 row of day2.ods supersedes the failing one
+    retested = b[(b.link_id == "T-01") & (b.strand == 2) & (b.wavelength_nm == 850) & (b.direction == "ab")]
+    assert sorted(retested["verdict"]) == ["pass", "superseded"]
+
+
+def test_imported_rows_name_their_file_and_row_as_evidence(tmp_path):
+    _write_imported(tmp_path)
+    project, judgement = _judged(tmp_path)
+    sources = project.results["source"].tolist()
+    # day1.csv: two lines skipped, the header on line 3, data from line 4; one line per strand
+    # and direction becomes one row per filled loss column
+    assert sources[:3] == ["exports/day1.csv:4", "exports/day1.csv:4", "exports/day1.csv:5"]
+    assert sources[-1] == "exports/day2.ods[Sheet1]:4"
+    text = results_csv_bytes(judgement.results).decode()
+    assert text.splitlines()[0].endswith(",source_file,source_line,source")
+    assert text.splitlines()[1].endswith(",exports/day1.csv,4,exports/day1.csv:4")
+    assert project.files_read == ("exports/day1.csv", "exports/day2.ods", "profiles/meter.yaml",
+                                  "profiles/schedule.yaml", "project.yaml", "schedule/links.xlsx")
+    schedule, day1, day2 = project.imports
+    assert (schedule.file, schedule.sheet, schedule.rows_read, schedule.link_ids) == (
+        "schedule/links.xlsx", "Links", 2, ("T-01", "T-02"))
+    assert schedule.unmapped == ("Installer remark",)
+    assert (day1.rows_read, day1.rows_made, day1.unmapped) == (6, 12, ("Temperature (°C)",))
+    assert ("loss_db", "wide: Loss 850 nm, Loss 1300 nm, Loss 1310 nm, Loss 1550 nm") in day1.mapping
+
+
+def test_retest_rule_spans_native_and_imported_rows(tmp_path):
+    # the native results/ folder holds day 1; the retest of day 2 comes from the .ods export
+    _write_imported(tmp_path)
+    yaml = PROJECT_YAML + IMPORTS.replace('  - files: "exports/*.csv"\n    profile: profiles/meter.yaml\n', "")
+    _write_native(tmp_path, links=False, days=(("day1", DAY1),))
+    (tmp_path / "project.yaml").write_text(yaml, encoding="utf-8")
+    project, judgement = _judged(tmp_path)
+    rows = judgement.results
+    retest = rows[(rows.link_id == "T-01") & (rows.strand == 2) & (rows.wavelength_nm == 850)
+                  & (rows.direction == "ab")]
+    assert list(zip(retest["source"], retest["verdict"])) == [
+        ("results/day1.csv:6", "superseded"), ("exports/day2.ods[Sheet1]:4", "pass")]
+
+
+def test_import_command_shows_the_mapping_and_writes_contract_files(tmp_path, capsys):
+    _write_imported(tmp_path / "imported")
+    out = tmp_path / "normalised"
+    assert main(["import", str(tmp_path / "imported"), "--write", str(out)]) == 0
+    shown = capsys.readouterr().out
+    assert "imports[2]: exports/day1.csv — profile profiles/meter.yaml, as results" in shown
+    assert "6 rows read → 12 results rows" in shown
+    assert "columns not mapped (ignored): Temperature (°C)" in shown
+    assert sorted(path.relative_to(out).as_posix() for path in out.rglob("*.csv")) == [
+        "links.csv", "results/day1.csv", "results/day2-Sheet1.csv"]
+    # the written files with a plain project.yaml build to the same verdicts as the native folder
+    (out / "project.yaml").write_text(PROJECT_YAML, encoding="utf-8")
+    _write_native(tmp_path / "native")
+    _, written = _judged(out)
+    _, native = _judged(tmp_path / "native")
+    compared = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "margin_db", "verdict"]
+    assert written.results[compared].sort_values(compared[:4] + ["verdict"]).values.tolist() == \
+        native.results[compared].sort_values(compared[:4] + ["verdict"]).values.tolist()
+
+
+def _problems(root: Path) -> list[str]:
+    with pytest.raises(InputError) as caught:
+        load_project(root)
+    return [str(problem) for problem in caught.value.problems]
+
+
+def test_bad_profile_keys_get_a_did_you_mean_all_in_one_run(tmp_path):
+    _write_imported(tmp_path)
+    (tmp_path / "profiles" / "meter.yaml").write_text(
+        METER_PROFILE.replace("delimiter:", "delimeter:").replace("  technician:", "  technican:")
+        .replace("decimal: \",\"", "decimal: \";\""), encoding="utf-8")
+    (tmp_path / "profiles" / "schedule.yaml").write_text(SCHEDULE_PROFILE.replace("as: links", "as: link"),
+                                                         encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "profiles/schedule.yaml, as: expected one of results, links (got 'link')",
+        "profiles/meter.yaml, delimeter: expected one of the keys as, delimiter, decimal, encoding, "
+        "skip_rows, columns, values, date_format, wide, constants; did you mean delimiter?",
+        "profiles/meter.yaml, decimal: expected one of \".\" or \",\" (got ';')",
+        "profiles/meter.yaml, columns.technican: expected one of our fields link_id, wavelength_nm, "
+        "loss_db, tested_at, strand, direction, instrument, technician, note, length, length_m, "
+        "length_ft, tested_date, tested_time; did you mean technician?",
+        "links.csv: expected a file links.csv in the project folder (not found)",
+    ]
+
+
+def test_header_value_and_date_problems_name_the_cell(tmp_path):
+    _write_imported(tmp_path)
+    (tmp_path / "profiles" / "schedule.yaml").write_text(
+        SCHEDULE_PROFILE.replace("Mated pairs", "Mated pair"), encoding="utf-8")
+    export = tmp_path / "exports" / "day1.csv"
+    text = export.read_bytes().decode("cp1252").replace("B->A", "BA", 1).replace("14.11.2030", "2030/11/14", 1)
+    text = text.replace("3,61", "3,6x")
+    export.write_bytes(text.encode("cp1252"))
+    assert _problems(tmp_path) == [
+        'schedule/links.xlsx, sheet Links, row 2, connections: expected a column headed "Mated pair" '
+        '(columns.connections in profiles/schedule.yaml); closest headers present: "Mated pairs"',
+        'exports/day1.csv, line 4, "Date" (tested_date): expected a date written as %d.%m.%Y or '
+        "%Y-%m-%d (date_format in profiles/meter.yaml) (got '2030/11/14')",
+        'exports/day1.csv, line 5, "Direction" (direction): expected one of the spellings under '
+        "values.direction in profiles/meter.yaml: A->B, A>B, B->A, B>A (got 'BA')",
+        'exports/day1.csv, line 6, "Loss 850 nm" (loss_db): expected a loss in dB, a number of at '
+        "most 100 (got '3.6x')",
+    ]
+
+
+def test_imported_rows_get_the_native_checks(tmp_path):
+    # an unknown link and a strand the link does not have: the messages of results/*.csv rows,
+    # placed at the spreadsheet's row and header
+    _write_imported(tmp_path)
+    rows = [["Title"] + [None] * (len(HEADER) - 1), [None] * len(HEADER), HEADER,
+            ["T-09", 1, "A->B", dt.date(2030, 11, 15), "08:00", "", 1.5, None, None, None, None],
+            ["T-01", 3, "B>A", dt.date(2030, 11, 15), "08:00", "", 1.5, None, None, None, None]]
+    pd.DataFrame(rows).to_excel(tmp_path / "exports" / "day2.ods", engine="odf", header=False, index=False)
+    assert _problems(tmp_path) == [
+        "exports/day2.ods, sheet Sheet1, row 4, \"Cable ID\" (link_id): expected a link_id defined in "
+        "the links of schedule/links.xlsx (got 'T-09')",
+        "exports/day2.ods, sheet Sheet1, row 5, \"Fibre No.\" (strand): expected a strand from 1 to 2 "
+        "for link T-01 (got '3')",
+    ]
+
+
+def test_entries_need_files_and_an_existing_sheet(tmp_path):
+    _write_imported(tmp_path, extra="  - files: \"nothing/*.csv\"\n    profile: profiles/meter.yaml\n"
+                                    "    shet: A\n")
+    (tmp_path / "project.yaml").write_text(
+        (tmp_path / "project.yaml").read_text(encoding="utf-8").replace("sheet: Links", "sheet: Link"),
+        encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "project.yaml, imports[4].shet: expected one of the keys files, sheet, profile; did you mean sheet?",
+        "project.yaml, imports[4].files: expected a pattern matching at least one file in the project "
+        "folder (none matched) (got 'nothing/*.csv')",
+        "schedule/links.xlsx, sheet: expected a sheet of this file: Notes, Links; did you mean Links? "
+        "(got 'Link')",
+    ]
