@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
+import zipfile
 from pathlib import Path
 
 import openpyxl
@@ -146,8 +147,10 @@ def _write_imported(root: Path, extra: str = "") -> None:
                   "Splices", "Installer remark"])
     for link in LINKS:
         sheet.append([*link, "ok"])
+    sheet["F3"] = "=80+2.5"  # T-01's length as a formula: read as the value the file saved
     sheet.append([" ", None, None])  # a row of blanks at the end
     book.save(root / "schedule" / "links.xlsx")
+    _save_cached_value(root / "schedule" / "links.xlsx", "82.5")
 
     # day 1: the meter's export, cp1252, semicolons, decimal commas, dates as 14.11.2030
     (root / "exports").mkdir()
@@ -164,6 +167,19 @@ def _write_imported(root: Path, extra: str = "") -> None:
         rows.append([link_id, strand, ARROWS[direction], date, time, "Ö. Example",
                      *(losses.get(w) for w in WAVELENGTHS), 20.0])
     pd.DataFrame(rows).to_excel(root / "exports" / "day2.ods", engine="odf", header=False, index=False)
+
+
+def _save_cached_value(path: Path, value: str) -> None:
+    """Store ``value`` as the formula's last computed value, as a spreadsheet program saves it
+    (openpyxl writes formulas without one)."""
+    with zipfile.ZipFile(path) as archive:
+        parts = {name: archive.read(name) for name in archive.namelist()}
+    sheet = "xl/worksheets/sheet2.xml"
+    assert parts[sheet].count(b"<v></v>") == 1
+    parts[sheet] = parts[sheet].replace(b"<v></v>", f"<v>{value}</v>".encode())
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
+        for name, data in parts.items():
+            archive.writestr(name, data)
 
 
 KEY = ["link_id", "strand", "wavelength_nm", "direction", "tested_at"]
@@ -332,3 +348,24 @@ def test_entries_need_files_and_an_existing_sheet(tmp_path):
         "schedule/links.xlsx, sheet: expected a sheet of this file: Notes, Links; did you mean Links? "
         "(got 'Link')",
     ]
+
+
+def test_a_misspelt_imports_key_is_reported(tmp_path):
+    _write_imported(tmp_path)
+    yaml = (tmp_path / "project.yaml").read_text(encoding="utf-8").replace("imports:", "import:")
+    (tmp_path / "project.yaml").write_text(yaml, encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "project.yaml, import: expected a key the format knows (did you mean imports?)",
+        "links.csv: expected a file links.csv in the project folder (not found)",
+    ]
+
+
+def test_decimal_commas_without_the_profile_saying_so_get_a_hint(tmp_path):
+    _write_imported(tmp_path)
+    profile = tmp_path / "profiles" / "meter.yaml"
+    profile.write_text(METER_PROFILE.replace('decimal: ","\n', ""), encoding="utf-8")
+    problems = _problems(tmp_path)
+    assert len(problems) == 12  # every filled loss cell of day1.csv (6 lines x 2 wavelengths)
+    assert problems[0] == (
+        'exports/day1.csv, line 4, "Loss 850 nm" (loss_db): expected a loss in dB, a number of at most '
+        '100 (for decimal commas write decimal: "," in profiles/meter.yaml) (got \'1,84\')')

@@ -29,7 +29,7 @@ from typing import Any, Final
 import numpy as np
 
 from reportgen.errors import InputProblem
-from reportgen.inputs.checker import Checker, match_enum
+from reportgen.inputs.checker import DECIMAL_HINT, Checker, match_enum
 from reportgen.inputs.csvread import CsvTable
 from reportgen.inputs.files import as_written, clip, is_inside, read_bytes, read_yaml, shown_path
 from reportgen.model import Direction, ImportSource
@@ -320,12 +320,20 @@ def check_profile(data: Any, root: Path, shown: str, kinds: Mapping[str, Columns
                    constants=constants), []
 
 
-def check_imports(value: Any, root: Path, kinds: Mapping[str, Columns]
+def check_imports(data: Any, root: Path, kinds: Mapping[str, Columns]
                   ) -> tuple[list[Entry], list[InputProblem], list[str]]:
-    """The ``imports:`` list of project.yaml: entries, problems, and the profiles read."""
+    """The ``imports:`` list of the parsed project.yaml ``data``: entries, problems, and the
+    profiles read. A top-level key that looks like a misspelt ``imports`` is a problem."""
     check = Checker(root, "project.yaml")
-    if value is None:
+    if not isinstance(data, Mapping):
         return [], [], []
+    for key in data:
+        if isinstance(key, str) and key != "imports" and difflib.get_close_matches(
+                key.lower(), ["imports"], n=1, cutoff=0.8) and "imports" not in data:
+            check.problem(clip(key), "a key the format knows (did you mean imports?)")
+    value = data.get("imports")
+    if value is None:
+        return [], check.problems, []
     if not isinstance(value, list):
         check.problem("imports", "a list of entries, each with files and profile", value)
         return [], check.problems, []
@@ -560,8 +568,10 @@ class ImportedTable:
                 continue
             labels = [self.wide_labels[problem.line - 1] if name == self.wide_field and positions
                       and problem.line else self.labels.get(name, name) for name in names]
+            expected = problem.expected.replace(
+                DECIMAL_HINT, f' (for decimal commas write decimal: "," in {self.source.profile})')
             out.append(dataclasses.replace(problem, line=number, field=" / ".join(labels) or None,
-                                           sheet=self.sheet))
+                                           expected=expected, sheet=self.sheet))
         unique = list(dict.fromkeys(out))
         return sorted(unique, key=lambda problem: problem.line or 0)
 

@@ -80,7 +80,7 @@ def load_project(project_dir: Path) -> Project:
             settings, setting_problems = check_project_yaml(data, root)
             problems += setting_problems
     entries, import_problems, profiles_read = importing.check_imports(
-        data.get("imports") if isinstance(data, Mapping) else None, root, IMPORT_KINDS)
+        data, root, IMPORT_KINDS)
     problems += import_problems
     link_entries = [entry for entry in entries if entry.profile.kind == "links"]
     result_entries = [entry for entry in entries if entry.profile.kind == "results"]
