@@ -369,3 +369,19 @@ def test_decimal_commas_without_the_profile_saying_so_get_a_hint(tmp_path):
     assert problems[0] == (
         'exports/day1.csv, line 4, "Loss 850 nm" (loss_db): expected a loss in dB, a number of at most '
         '100 (for decimal commas write decimal: "," in profiles/meter.yaml) (got \'1,84\')')
+
+
+def test_the_report_names_the_sheet_and_row_of_an_imported_result(tmp_path):
+    from reportgen.report.messages import msg
+    from reportgen.report.viewmodel import build_view
+
+    _write_imported(tmp_path)
+    project, judgement = _judged(tmp_path)
+    view = build_view(project, judgement, now=dt.datetime(2030, 12, 1, tzinfo=dt.timezone.utc),
+                      version="test")
+    t01 = next(link for link in view.links if link.link_id == "T-01")
+    places = {(r.source_file, r.source_sheet, r.source_line) for r in t01.results}
+    assert ("exports/day2.ods", "Sheet1", 4) in places
+    assert ("exports/day1.csv", None, 4) in places
+    assert msg("source_sheet_row", file="exports/day2.ods", sheet="Sheet1", line=4) == \
+        "exports/day2.ods, sheet Sheet1, row 4"

@@ -165,6 +165,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "direction_ba": "B\u2192A",
     "direction_any": "either",
     "source_row": "{file} line {line}",
+    "source_sheet_row": "{file}, sheet {sheet}, row {line}",
     "diagram_heading": "Loss build-up",
     "diagram_caption": (
         "Steps: the loss the limit set allows, added up along the link (positions not to scale). "
