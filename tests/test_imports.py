@@ -385,3 +385,26 @@ def test_the_report_names_the_sheet_and_row_of_an_imported_result(tmp_path):
     assert ("exports/day1.csv", None, 4) in places
     assert msg("source_sheet_row", file="exports/day2.ods", sheet="Sheet1", line=4) == \
         "exports/day2.ods, sheet Sheet1, row 4"
+
+
+def test_tab_separated_text_with_detected_delimiter_and_constants(tmp_path):
+    # no delimiter, no encoding in the profile: tabs are detected, UTF-8 with a byte-order mark
+    _write_native(tmp_path, days=())
+    (tmp_path / "profiles").mkdir()
+    (tmp_path / "profiles" / "otdr-a.yaml").write_text(
+        "as: results\ncolumns:\n  link_id: Link\n  loss_db: [\"Loss [dB]\", \"Loss (dB)\"]\n"
+        "  tested_at: When\nconstants: {wavelength_nm: 1310, direction: ba}\n", encoding="utf-8")
+    (tmp_path / "project.yaml").write_text(
+        PROJECT_YAML + "imports:\n  - {files: \"in/*.txt\", profile: profiles/otdr-a.yaml}\n",
+        encoding="utf-8")
+    (tmp_path / "in").mkdir()
+    (tmp_path / "in" / "a.txt").write_bytes(
+        "\ufeffLink\tLoss (dB)\tWhen\nT-02\t1.3\t2030-11-16T11:00\n".encode("utf-8"))
+    project = load_project(tmp_path)
+    row = project.results.iloc[0]
+    assert (row.link_id, row.wavelength_nm, row.direction, row.loss_db, row.source) == (
+        "T-02", 1310, "ba", 1.3, "in/a.txt:2")
+    (tmp_path / "in" / "a.txt").write_bytes("Link\tLoss (dB)\tWhen\nT-02\t1.3\t16.11.2030 \xe9\n"
+                                            .encode("cp1252"))
+    assert _problems(tmp_path) == [
+        "in/a.txt, line 2: expected text in utf-8 (encoding in profiles/otdr-a.yaml) (got 'byte 0xE9')"]

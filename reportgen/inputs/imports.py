@@ -458,9 +458,10 @@ def _text_grid(path: Path, shown: str, profile: Profile) -> tuple[Grid | None, l
     try:
         text = data.decode(profile.encoding)
     except UnicodeDecodeError as error:
+        shown_encoding = "utf-8" if profile.encoding == "utf-8-sig" else profile.encoding
         line = data.count(b"\n", 0, error.start) + 1
         bad = data[error.start:error.start + 1].hex().upper()
-        return None, [InputProblem(shown, line, None, f"text in {profile.encoding} (encoding in "
+        return None, [InputProblem(shown, line, None, f"text in {shown_encoding} (encoding in "
                                    f"{profile.path})", f"byte 0x{bad}")]
     offset = 0
     for _ in range(profile.skip_rows):
