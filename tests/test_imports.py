@@ -408,3 +408,19 @@ def test_tab_separated_text_with_detected_delimiter_and_constants(tmp_path):
                                             .encode("cp1252"))
     assert _problems(tmp_path) == [
         "in/a.txt, line 2: expected text in utf-8 (encoding in profiles/otdr-a.yaml) (got 'byte 0xE9')"]
+
+
+def test_a_tab_delimiter_and_a_header_given_twice(tmp_path):
+    _write_native(tmp_path, days=())
+    (tmp_path / "profiles").mkdir()
+    (tmp_path / "profiles" / "p.yaml").write_text(
+        'as: results\ndelimiter: "\\t"\ncolumns: {link_id: Link, loss_db: Loss, tested_at: When}\n'
+        "constants: {wavelength_nm: 1310}\n", encoding="utf-8")
+    (tmp_path / "project.yaml").write_text(
+        PROJECT_YAML + "imports:\n  - {files: \"in.tsv\", profile: profiles/p.yaml}\n", encoding="utf-8")
+    (tmp_path / "in.tsv").write_text("Link\tLoss\tWhen\tLoss\nT-02\t1.3\t2030-11-16\t1.4\n", encoding="utf-8")
+    assert _problems(tmp_path) == [
+        'in.tsv, line 1, "Loss": expected a header the profile reads to appear once (found in '
+        "columns 2, 4; profiles/p.yaml cannot tell which is meant)"]
+    (tmp_path / "in.tsv").write_text("Link\tLoss\tWhen\tLoss 2\nT-02\t1.3\t2030-11-16\t1.4\n", encoding="utf-8")
+    assert load_project(tmp_path).results["loss_db"].tolist() == [1.3]

@@ -137,12 +137,11 @@ def check_profile(data: Any, root: Path, shown: str, kinds: Mapping[str, Columns
     columns_of = kinds.get(kind or "", None)
     fields = (*columns_of.fields, *(SPLIT_DATE if kind == "results" else ())) if columns_of else ()
 
-    delimiter = check.text(data, "delimiter", "delimiter")
-    if delimiter is not None and len(delimiter) != 1:
-        raw = str(data.get("delimiter"))
-        delimiter = raw if len(raw) == 1 else None  # a tab survives only untrimmed
-        if delimiter is None:
-            check.problem("delimiter", 'one character, e.g. ";" or "\\t"', data.get("delimiter"))
+    delimiter = data.get("delimiter")  # not trimmed: a tab is a delimiter
+    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1
+                                  or delimiter in ('"', "\n", "\r")):
+        check.problem("delimiter", 'one character, e.g. ";" or "\\t" (a tab)', delimiter)
+        delimiter = None
     decimal = check.text(data, "decimal", "decimal") or "."
     if decimal not in (".", ","):
         check.problem("decimal", 'one of "." or ","', decimal)
@@ -587,10 +586,20 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
     profile = entry.profile
     where = {"file": grid.file, "sheet": grid.sheet}
     index: dict[str, int] = {}
+    twice: dict[str, list[int]] = {}
     for position, name in enumerate(grid.header):
         if name:
             index.setdefault(name, position)
+            twice.setdefault(name, []).append(position + 1)
     problems: list[InputProblem] = []
+    wanted = {header for headers in profile.columns.values() for header in headers}
+    wanted |= {header for header, _ in profile.wide}
+    for name in sorted(wanted & {name for name, at in twice.items() if len(at) > 1}):
+        problems.append(InputProblem(
+            grid.file, grid.header_number, f'"{clip(name)}"',
+            "a header the profile reads to appear once (found in columns "
+            + ", ".join(map(str, twice[name])) + f"; {profile.path} cannot tell which is meant)",
+            sheet=grid.sheet))
 
     def missing(headers: Sequence[str], name: str, key: str) -> None:
         present = [header for header in index]
