@@ -232,6 +232,17 @@ RESULT_COLUMNS: Final[tuple[str, ...]] = (
 
 
 @dataclass(frozen=True)
+class InputFile:
+    """A file of the project folder the inputs stage read, as the report's appendix lists it."""
+
+    path: str  # project-relative, "/" separators
+    size_bytes: int
+    sha256: str  # hex digest of the bytes read
+    results: int = 0  # result rows read from it
+    links: int = 0  # links read from it
+
+
+@dataclass(frozen=True)
 class ImportSource:
     """One file read through an ``imports:`` entry of project.yaml (what ``reportgen import`` shows)."""
 
@@ -267,6 +278,7 @@ class Project:
     # with "/" separators, sorted: project.yaml, links.csv, results, a limit file, the logo.
     files_read: tuple[str, ...] = ()
     imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
+    input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
 
     def link(self, link_id: str) -> Link:

@@ -424,3 +424,19 @@ def test_a_tab_delimiter_and_a_header_given_twice(tmp_path):
         "columns 2, 4; profiles/p.yaml cannot tell which is meant)"]
     (tmp_path / "in.tsv").write_text("Link\tLoss\tWhen\tLoss 2\nT-02\t1.3\t2030-11-16\t1.4\n", encoding="utf-8")
     assert load_project(tmp_path).results["loss_db"].tolist() == [1.3]
+
+
+def test_every_file_read_is_listed_with_size_checksum_and_rows(tmp_path):
+    import hashlib
+
+    _write_imported(tmp_path)
+    project, _ = _judged(tmp_path)
+    listed = {f.path: f for f in project.input_files}
+    assert tuple(listed) == project.files_read
+    export = (tmp_path / "exports" / "day1.csv").read_bytes()
+    day1 = listed["exports/day1.csv"]
+    # SHA-256 of the bytes (FIPS 180-4, via Python's hashlib, not our code)
+    assert (day1.size_bytes, day1.sha256, day1.results, day1.links) == (
+        len(export), hashlib.sha256(export).hexdigest(), 12, 0)
+    assert (listed["schedule/links.xlsx"].links, listed["exports/day2.ods"].results) == (2, 2)
+    assert listed["profiles/meter.yaml"].results == 0

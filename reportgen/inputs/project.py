@@ -8,6 +8,7 @@ within a CSV file by line). The folder is only read, never written.
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Final
@@ -29,6 +30,7 @@ from reportgen.model import (
     Project,
     Transceiver,
     ImportSource,
+    InputFile,
 )
 from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, enum_choices, match_enum
 from reportgen.inputs.project_yaml import Settings, check_project_yaml
@@ -137,6 +139,7 @@ def load_project(project_dir: Path) -> Project:
         raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
     results = pd.concat(frames, ignore_index=True) if frames else empty_results()
+    files_read = _files_read(root, settings, [*files, *profiles_read, *(source.file for source in sources)])
     return Project(
         root=root,
         info=settings.info,
@@ -150,8 +153,8 @@ def load_project(project_dir: Path) -> Project:
         technicians=settings.technicians,
         report=settings.report,
         result_files=tuple(files),
-        files_read=_files_read(root, settings, [*files, *profiles_read,
-                                                 *(source.file for source in sources)]),
+        files_read=files_read,
+        input_files=_input_files(root, files_read, results, links, sources),
         imports=tuple(sorted(sources, key=lambda source: source.entry)),
         applications=applications,
     )
@@ -444,6 +447,23 @@ def _wavelength_coverage(settings: Settings, links: Sequence[Link]) -> list[Inpu
                     f"only wavelengths that limit set {limits.id} defines for {fiber.value}{outside}: "
                     f"{', '.join(map(str, defined))}", ", ".join(map(str, missing))))
     return problems
+
+
+def _input_files(root: Path, files_read: Sequence[str], results: pd.DataFrame, links: Sequence[Link],
+                 sources: Sequence[ImportSource]) -> tuple[InputFile, ...]:
+    """Every file read with its size, SHA-256 and the rows it gave (the report's appendix)."""
+    per_file = results["source_file"].value_counts().to_dict() if len(results) else {}
+    imported_links: dict[str, int] = {}
+    for source in sources:
+        imported_links[source.file] = imported_links.get(source.file, 0) + len(source.link_ids)
+    native_links = len(links) - sum(imported_links.values())
+    listed = []
+    for shown in files_read:
+        data = (root / shown).read_bytes()  # read and checked above; hashed as it is now
+        count = native_links if shown == LINKS_FILE else imported_links.get(shown, 0)
+        listed.append(InputFile(shown, len(data), hashlib.sha256(data).hexdigest(),
+                                results=int(per_file.get(shown, 0)), links=count))
+    return tuple(listed)
 
 
 def _files_read(root: Path, settings: Settings, result_files: list[str]) -> tuple[str, ...]:

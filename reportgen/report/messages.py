@@ -349,6 +349,17 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # appendix
     "appendix_heading": "Appendix",
     "instruments_heading": "Test instruments",
+    "files_heading": "Input files",
+    "files_intro": (
+        "The files of the project folder this report was made from, with their size and SHA-256 "
+        "checksum: a file whose checksum is the same is the same file, byte for byte. The last "
+        "columns count the results and links each file gave; every result on a link sheet names "
+        "its file and line (or sheet and row)."),
+    "col_file": "File",
+    "col_size_bytes": "Size (bytes)",
+    "col_sha256": "SHA-256",
+    "col_results": "Results",
+    "col_links": "Links",
     "instruments_none": "No instruments are listed in project.yaml.",
     "col_id": "Id",
     "col_kind": "Kind",
@@ -424,6 +435,7 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("channel loss", "The insertion loss an application allows between its transmitter and receiver, connections included."),
     ("power budget", "Launch power minus link loss, compared with the receiver\u2019s window from sensitivity (weakest usable) to overload (strongest tolerated)."),
     ("attenuator", "A passive part that adds a fixed loss, fitted at the receiver when the light would otherwise be too strong."),
+    ("SHA-256", "A checksum computed from every byte of a file (FIPS 180-4): a copy with the same checksum is the same file; any change gives a different one."),
 )
 
 SAFETY: Final[tuple[str, ...]] = (

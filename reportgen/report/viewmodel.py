@@ -240,6 +240,17 @@ class ApplicationsView:
 
 
 @dataclass(frozen=True)
+class InputFileView:
+    """A file the report was made from (appendix): path, size, SHA-256 and rows it gave."""
+
+    path: str
+    size_bytes: int
+    sha256: str
+    results: int
+    links: int
+
+
+@dataclass(frozen=True)
 class ReportView:
     """Everything the templates may use, and nothing else."""
 
@@ -279,6 +290,7 @@ class ReportView:
     generated_at: datetime
     version: str
     apps: ApplicationsView | None = None  # None when applications were not assessed
+    input_files: tuple[InputFileView, ...] = ()  # every file read, by path
 
 
 def slugify(text: str) -> str:
@@ -541,4 +553,6 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         components=components, paper=project.report.paper.value,
         generated_at=now, version=version,
         apps=None if assessed is None else build_applications_view(project, assessed, anchors),
+        input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
+                                        results=f.results, links=f.links) for f in project.input_files),
     )
