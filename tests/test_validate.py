@@ -567,5 +567,6 @@ def test_files_read_lists_every_project_file_the_inputs_stage_opened():
     from reportgen.inputs.project import load_project as load
     project = load(Path(__file__).resolve().parent.parent / "demo_project")
     assert project.files_read == (
-        "assets/logo.svg", "links.csv", "project.yaml", "results/day1-building-a.csv",
-        "results/day2-campus.csv", "results/day2-retests.csv")
+        "assets/logo.svg", "exports/retests-2026-04-16.csv", "links.csv",
+        "profiles/handheld-meter.yaml", "project.yaml", "results/day1-building-a.csv",
+        "results/day2-campus.csv")

@@ -4,6 +4,8 @@ from __future__ import annotations
 from collections.abc import Iterator
 from contextlib import contextmanager
 
+import pandas as pd
+from rich import box
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
@@ -191,17 +193,22 @@ def print_imports(console: Console, outcome, rows: int = 5) -> None:
                               link.fiber_type.value, f"{link.length_m:g} m", str(link.strands))
         else:
             table = Table(title=plain(f"first {rows} results as judged"), title_justify="left",
-                          header_style="bold")
-            for name in ("row" if source.sheet is not None else "line", "link", "strand", "nm", "dir", "loss", "tested_at", "limit",
-                         "margin", "verdict"):
-                table.add_column(name, justify="right" if name in ("loss", "limit", "margin") else "left")
+                          header_style="bold", box=box.SIMPLE_HEAD, padding=(0, 1), pad_edge=False,
+                          collapse_padding=True)
             mine = judged[judged["source_file"] == source.file]
             if source.sheet is not None:
                 mine = mine[mine["source"].str.startswith(f"{source.file}[{source.sheet}]:")]
+            link_width = min(16, max([4, *mine["link_id"].head(rows).str.len()]))
+            for name, width in (("row" if source.sheet is not None else "line", 4), ("link", link_width),
+                                ("s", 1), ("nm", 4), ("dir", 3), ("loss", 5), ("tested", 16),
+                                ("limit", 5), ("margin", 6), ("verdict", 10)):
+                table.add_column(name, justify="right" if name in ("loss", "limit", "margin") else "left",
+                                 min_width=width, no_wrap=True)
             for row in mine.head(rows).itertuples(index=False):
                 table.add_row(str(row.source_line), plain(row.link_id), str(row.strand),
                               str(row.wavelength_nm), row.direction, format_db(row.loss_db),
-                              plain(row.tested_at_text), _db_or_blank(row.limit_db),
+                              pd.Timestamp(row.tested_at).strftime("%Y-%m-%d %H:%M"),
+                              _db_or_blank(row.limit_db),
                               _db_or_blank(row.margin_db), str(row.verdict))
         console.print(table)
         console.print()
