@@ -440,3 +440,12 @@ def test_every_file_read_is_listed_with_size_checksum_and_rows(tmp_path):
         len(export), hashlib.sha256(export).hexdigest(), 12, 0)
     assert (listed["schedule/links.xlsx"].links, listed["exports/day2.ods"].results) == (2, 2)
     assert listed["profiles/meter.yaml"].results == 0
+
+
+def test_import_command_without_imports_and_refusing_an_input_folder(tmp_path, capsys):
+    _write_native(tmp_path)
+    assert main(["import", str(tmp_path)]) == 0
+    assert "project.yaml has no imports: entries" in capsys.readouterr().out
+    assert main(["import", str(tmp_path), "--write", str(tmp_path / "results" / "x")]) == 2
+    assert "is the project folder or one of its input folders" in capsys.readouterr().err
+    assert not (tmp_path / "results" / "x").exists()
