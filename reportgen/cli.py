@@ -175,6 +175,8 @@ def import_(project: Path, rows: int, write_dir: Path | None) -> None:
     if write_dir is not None:
         pipeline.check_out_dir(project, write_dir)
     outcome = pipeline.compute(pipeline.validate_only(project))
+    if write_dir is not None:
+        pipeline.check_out_dir_holds_no_input(outcome.project, write_dir)
     print_imports(_stdout(), outcome, rows=rows)
     if write_dir is not None:
         written = pipeline.write_imported(outcome.project, write_dir)

@@ -90,6 +90,17 @@ def check_out_dir(project_dir: Path, out_dir: Path) -> None:
         raise ReportgenError(f"output folder {out_dir} exists and is not a folder")
 
 
+def check_out_dir_holds_no_input(project: Project, out_dir: Path) -> None:
+    """Refuse an output folder holding a file the project reads (an imported export, say): the
+    next run could read its outputs back, or overwrite evidence."""
+    out_real = Path(out_dir).resolve()
+    for shown in project.files_read:
+        if out_real in (project.root / shown).resolve().parents:
+            raise ReportgenError(
+                f"output folder {out_dir} holds {shown}, a file the project reads; choose another "
+                "with -o (default: PROJECT/report)")
+
+
 def build_now(now: datetime | None) -> datetime:
     """The report's clock: given, else SOURCE_DATE_EPOCH (reproducible builds), else now."""
     if now is not None:
@@ -114,6 +125,7 @@ def build(
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
     project = validate_only(project_dir)
+    check_out_dir_holds_no_input(project, out_dir)
     outcome = compute(project)
     now = build_now(now)
 

@@ -449,3 +449,26 @@ def test_import_command_without_imports_and_refusing_an_input_folder(tmp_path, c
     assert main(["import", str(tmp_path), "--write", str(tmp_path / "results" / "x")]) == 2
     assert "is the project folder or one of its input folders" in capsys.readouterr().err
     assert not (tmp_path / "results" / "x").exists()
+
+
+def test_outputs_never_go_into_a_folder_holding_imported_files(tmp_path, capsys):
+    _write_imported(tmp_path / "p")
+    before = sorted(path.name for path in (tmp_path / "p" / "exports").iterdir())
+    assert main(["build", str(tmp_path / "p"), "--data-only", "-o", str(tmp_path / "p" / "exports")]) == 2
+    assert main(["import", str(tmp_path / "p"), "--write", str(tmp_path / "p" / "schedule")]) == 2
+    err = capsys.readouterr().err
+    assert "holds exports/day1.csv, a file the project reads" in err
+    assert "holds schedule/links.xlsx, a file the project reads" in err
+    assert sorted(path.name for path in (tmp_path / "p" / "exports").iterdir()) == before
+
+
+def test_a_glob_over_the_whole_folder_does_not_read_the_default_output_folder(tmp_path):
+    _write_imported(tmp_path)
+    yaml = (tmp_path / "project.yaml").read_text(encoding="utf-8").replace('"exports/*.csv"', '"**/day1.csv"')
+    (tmp_path / "project.yaml").write_text(yaml, encoding="utf-8")
+    (tmp_path / "report").mkdir()
+    (tmp_path / "report" / "day1.csv").write_text("not an export\n", encoding="utf-8")
+    project = load_project(tmp_path)
+    assert "report/day1.csv" not in project.files_read
+    assert [source.file for source in project.imports] == [
+        "schedule/links.xlsx", "exports/day1.csv", "exports/day2.ods"]

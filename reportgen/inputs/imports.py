@@ -47,6 +47,7 @@ SPREADSHEET_SUFFIXES: Final = (".xlsx", ".xlsm", ".xls", ".ods")
 TEXT_SUFFIXES: Final = (".csv", ".txt", ".tsv")
 DETECTED_DELIMITERS: Final = (",", ";", "\t", "|")
 MAX_SKIP_ROWS: Final = 10_000
+OUTPUT_FOLDER: Final = "report"  # the default output folder (docs §1): never read as input
 TIME_FORMATS: Final = ("%H:%M:%S", "%H:%M")
 
 
@@ -375,7 +376,7 @@ def check_imports(data: Any, root: Path, kinds: Mapping[str, Columns]
 
 def _matched(check: Checker, root: Path, pattern: str, path: str) -> tuple[Path, ...] | None:
     """Files the glob ``pattern`` matches inside the project folder, sorted; hidden and lock files
-    (``.x``, ``~$x``) skipped."""
+    (``.x``, ``~$x``) and the default output folder ``report/`` skipped."""
     if Path(pattern).is_absolute() or ".." in Path(pattern).parts:
         check.problem(path, "a file pattern relative to the project folder, e.g. exports/*.csv", pattern)
         return None
@@ -388,6 +389,8 @@ def _matched(check: Checker, root: Path, pattern: str, path: str) -> tuple[Path,
     files = []
     for candidate in found:
         if candidate.name.startswith((".", "~$")) or not candidate.is_file():
+            continue
+        if candidate.relative_to(root).parts[0] == OUTPUT_FOLDER:  # written by reportgen, never read
             continue
         if not is_inside(root, candidate):
             check.problem(path, "files inside the project folder; "
@@ -664,8 +667,7 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
     # decimal commas
     if profile.decimal == ",":
         for name in NUMBER_FIELDS & set(texts):
-            texts[name] = [text.replace(",", ".") if "," in text and "." not in text else text
-                           for text in texts[name]]
+            texts[name] = _decimal_points(texts[name])
 
     # dates and times
     formats = profile.date_formats
@@ -713,8 +715,7 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
     if wide_columns:
         wide_texts = [column(position) for _, position, _ in wide_columns]
         if profile.decimal == "," and profile.wide_field in NUMBER_FIELDS:
-            wide_texts = [[text.replace(",", ".") if "," in text and "." not in text else text
-                           for text in cells] for cells in wide_texts]
+            wide_texts = [_decimal_points(cells) for cells in wide_texts]
         filled = np.array([[text != "" for text in cells] for cells in wide_texts], dtype=bool).reshape(
             len(wide_columns), n)
         rows_at, columns_at = np.nonzero(filled.T)  # row by row, columns in profile order
@@ -745,6 +746,12 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
                           unmapped=unmapped)
     return ImportedTable(table, source, grid.sheet, table_numbers, labels, wide_labels,
                          profile.wide_field, mapping_problems, settled), []
+
+
+def _decimal_points(cells: list[str]) -> list[str]:
+    """Numbers written with a decimal comma (``decimal: ","``) with a point instead; a cell that
+    also holds a point is left as written (the usual number check then refuses it)."""
+    return [text.replace(",", ".") if "," in text and "." not in text else text for text in cells]
 
 
 def source_texts(file: str, sheet: str | None, numbers: np.ndarray) -> list[str]:
