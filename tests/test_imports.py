@@ -472,3 +472,16 @@ def test_a_glob_over_the_whole_folder_does_not_read_the_default_output_folder(tm
     assert "report/day1.csv" not in project.files_read
     assert [source.file for source in project.imports] == [
         "schedule/links.xlsx", "exports/day1.csv", "exports/day2.ods"]
+
+
+def test_a_spreadsheet_that_would_unpack_too_large_is_not_read(tmp_path, monkeypatch):
+    from reportgen.inputs import imports
+
+    _write_imported(tmp_path)
+    with zipfile.ZipFile(tmp_path / "schedule" / "links.xlsx") as archive:
+        unpacked = sum(member.file_size for member in archive.infolist())
+    monkeypatch.setattr(imports, "MAX_UNPACKED_BYTES", unpacked - 1)  # one byte too many
+    problems = _problems(tmp_path)
+    assert problems[0].startswith("schedule/links.xlsx: expected a spreadsheet of at most ")
+    assert "unpacked; this one unpacks to" in problems[0]
+    assert not any(problem.startswith("schedule/links.xlsx, sheet") for problem in problems)

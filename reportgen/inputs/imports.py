@@ -20,6 +20,7 @@ import csv
 import dataclasses
 import difflib
 import io
+import zipfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import date, datetime, time, timedelta
@@ -31,7 +32,8 @@ import numpy as np
 from reportgen.errors import InputProblem
 from reportgen.inputs.checker import DECIMAL_HINT, Checker, match_enum
 from reportgen.inputs.csvread import CsvTable
-from reportgen.inputs.files import as_written, clip, is_inside, read_bytes, read_yaml, shown_path
+from reportgen.inputs.files import (MAX_FILE_BYTES, as_written, clip, is_inside, read_bytes, read_yaml,
+                                    shown_path, size_in_mb)
 from reportgen.model import Direction, ImportSource
 
 ENTRY_KEYS: Final = ("files", "sheet", "profile")
@@ -47,6 +49,9 @@ SPREADSHEET_SUFFIXES: Final = (".xlsx", ".xlsm", ".xls", ".ods")
 TEXT_SUFFIXES: Final = (".csv", ".txt", ".tsv")
 DETECTED_DELIMITERS: Final = (",", ";", "\t", "|")
 MAX_SKIP_ROWS: Final = 10_000
+# largest spreadsheet read, unpacked (a zip packs a sheet some 10-20 times): a guard against
+# a small file that would unpack to gigabytes
+MAX_UNPACKED_BYTES: Final = 4 * MAX_FILE_BYTES
 OUTPUT_FOLDER: Final = "report"  # the default output folder (docs §1): never read as input
 TIME_FORMATS: Final = ("%H:%M:%S", "%H:%M")
 
@@ -510,6 +515,11 @@ def _sheet_grid(path: Path, shown: str, profile: Profile, sheet: str | None
     data, problems = read_bytes(path, shown)
     if data is None:
         return None, problems
+    unpacked = _unpacked_size(data)
+    if unpacked > MAX_UNPACKED_BYTES:
+        return None, [InputProblem(shown, None, None,
+                                   f"a spreadsheet of at most {size_in_mb(MAX_UNPACKED_BYTES)} MB unpacked; "
+                                   f"this one unpacks to {size_in_mb(unpacked)} MB")]
     try:
         book = python_calamine.CalamineWorkbook.from_filelike(io.BytesIO(data))
         names = list(book.sheet_names)
@@ -542,6 +552,16 @@ def _sheet_grid(path: Path, shown: str, profile: Profile, sheet: str | None
         return None, [InputProblem(shown, None, None, "a header row naming the columns (the sheet has no "
                                    "non-empty row after the rows skipped)", sheet=name)]
     return Grid(shown, name, header, header_number, rows, numbers), []
+
+
+def _unpacked_size(data: bytes) -> int:
+    """Total size of the members of a zip container (.xlsx, .ods), as its directory states; 0 for
+    other files (.xls) or an unreadable directory (the reader then reports the damage)."""
+    try:
+        with zipfile.ZipFile(io.BytesIO(data)) as archive:
+            return sum(member.file_size for member in archive.infolist())
+    except (zipfile.BadZipFile, OSError, ValueError):
+        return 0
 
 
 @dataclass
