@@ -16,6 +16,8 @@ from pathlib import Path
 import openpyxl
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from reportgen.cli import main
 from reportgen.engine.judge import judge_project
@@ -485,3 +487,53 @@ def test_a_spreadsheet_that_would_unpack_too_large_is_not_read(tmp_path, monkeyp
     assert problems[0].startswith("schedule/links.xlsx: expected a spreadsheet of at most ")
     assert "unpacked; this one unpacks to" in problems[0]
     assert not any(problem.startswith("schedule/links.xlsx, sheet") for problem in problems)
+
+
+# Fuzzing the import route (see tests/test_fuzz.py for the native files): any profile value and
+# any cell must end in a loaded project or an InputError naming a file, never in a crash.
+_SCALARS = st.one_of(st.none(), st.booleans(), st.integers(-5, 10**6), st.floats(allow_nan=True),
+                     st.text(max_size=12), st.lists(st.text(max_size=6), max_size=3),
+                     st.dictionaries(st.text(max_size=6), st.text(max_size=6), max_size=2))
+
+
+@pytest.fixture(scope="module")
+def imported_template(tmp_path_factory):
+    root = tmp_path_factory.mktemp("template") / "p"
+    _write_imported(root)
+    return root
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(key=st.sampled_from(["as", "delimiter", "decimal", "encoding", "skip_rows", "columns", "values",
+                            "date_format", "wide", "constants", "columns.strand", "values.direction",
+                            "wide.loss_db", "constants.note"]),
+       value=_SCALARS, cell=st.text(max_size=10), column=st.integers(0, len(HEADER) - 1))
+def test_fuzzed_profiles_and_cells_end_in_a_result_or_clear_problems(tmp_path_factory, imported_template,
+                                                                    key, value, cell, column):
+    import shutil
+
+    import yaml
+
+    root = tmp_path_factory.mktemp("fuzz") / "p"
+    shutil.copytree(imported_template, root)
+    profile = yaml.safe_load(METER_PROFILE)
+    section, _, name = key.partition(".")
+    if name:
+        profile[section] = dict(profile.get(section) or {})
+        profile[section][name] = value
+    else:
+        profile[section] = value
+    (root / "profiles" / "meter.yaml").write_text(yaml.safe_dump(profile, allow_unicode=True),
+                                                  encoding="utf-8")
+    export = root / "exports" / "day1.csv"
+    lines = export.read_bytes().decode("cp1252").split("\r\n")
+    cells = lines[4].split(";")
+    cells[column] = cell.replace(";", ",")
+    lines[4] = ";".join(cells)
+    export.write_bytes("\r\n".join(lines).encode("cp1252", errors="replace"))
+    try:
+        project = load_project(root)
+    except InputError as error:
+        assert error.problems and all(problem.file for problem in error.problems)
+    else:
+        assert len(project.results) > 0
