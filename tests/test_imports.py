@@ -537,3 +537,13 @@ def test_fuzzed_profiles_and_cells_end_in_a_result_or_clear_problems(tmp_path_fa
         assert error.problems and all(problem.file for problem in error.problems)
     else:
         assert len(project.results) > 0
+
+
+def test_an_unclosed_quote_in_an_export_is_refused_at_its_line(tmp_path):
+    _write_imported(tmp_path)
+    export = tmp_path / "exports" / "day1.csv"
+    text = export.read_bytes().decode("cp1252").replace("Ö. Example", '"Ö. Example', 1)
+    export.write_bytes(text.encode("cp1252"))
+    assert _problems(tmp_path) == [
+        'exports/day1.csv, line 4: expected a closing quote " for the cell opened on this line '
+        "(otherwise every line after it would be read as part of that cell)"]

@@ -505,6 +505,11 @@ def _text_grid(path: Path, shown: str, profile: Profile) -> tuple[Grid | None, l
     if header is None:
         return None, [InputProblem(shown, None, None, "a header row naming the columns (the file has no "
                                    "non-empty line after the lines skipped)")]
+    if rows and any("\n" in cell or "\r" in cell for cell in rows[-1]) and body.count('"') % 2:
+        # a quote never closed reads as one cell to the end of the file: refuse, as for native CSV
+        return None, [InputProblem(shown, numbers[-1], None,
+                                   'a closing quote " for the cell opened on this line (otherwise every '
+                                   "line after it would be read as part of that cell)")]
     return Grid(shown, None, header, header_number, rows, numbers), []
 
 
