@@ -299,6 +299,18 @@ def test_bad_profile_keys_get_a_did_you_mean_all_in_one_run(tmp_path):
         "length_ft, tested_date, tested_time; did you mean technician?",
         "links.csv: expected a file links.csv in the project folder (not found)",
     ]
+    # a links profile with a mistake: no "links.csv not found" beside its own problem
+    (tmp_path / "profiles" / "meter.yaml").write_text(METER_PROFILE, encoding="utf-8")
+    (tmp_path / "profiles" / "schedule.yaml").write_text(SCHEDULE_PROFILE.replace("  to:", "  tto:")
+                                                         .replace("end_b: To", "end_bb: To"),
+                                                         encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "profiles/schedule.yaml, columns.end_bb: expected one of our fields link_id, end_a, end_b, "
+        "fiber_type, length, length_m, length_ft, plant, strands, connections, splices, components, "
+        "applications, transceiver, notes; did you mean end_b?",
+        "profiles/schedule.yaml, columns: expected a mapping for end_b (under columns, wide or "
+        "constants): a links row needs it",
+    ]
 
 
 def test_header_value_and_date_problems_name_the_cell(tmp_path):

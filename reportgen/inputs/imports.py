@@ -326,22 +326,27 @@ def check_profile(data: Any, root: Path, shown: str, kinds: Mapping[str, Columns
 
 
 def check_imports(data: Any, root: Path, kinds: Mapping[str, Columns]
-                  ) -> tuple[list[Entry], list[InputProblem], list[str]]:
-    """The ``imports:`` list of the parsed project.yaml ``data``: entries, problems, and the
-    profiles read. A top-level key that looks like a misspelt ``imports`` is a problem."""
+                  ) -> tuple[list[Entry], list[InputProblem], list[str], tuple[str, ...]]:
+    """The ``imports:`` list of the parsed project.yaml ``data``: the usable entries, problems,
+    the profiles read, and per entry the kind (``as:``) its profile declares, usable or not
+    ("" when unknown), so that a broken links entry neither brings a "links.csv not found" nor
+    has every imported result's link_id refused. A top-level key that looks like a misspelt
+    ``imports`` is a problem."""
     check = Checker(root, "project.yaml")
     if not isinstance(data, Mapping):
-        return [], [], []
+        return [], [], [], ()
     for key in data:
         if isinstance(key, str) and key != "imports" and difflib.get_close_matches(
                 key.lower(), ["imports"], n=1, cutoff=0.8) and "imports" not in data:
             check.problem(clip(key), "a key the format knows (did you mean imports?)")
     value = data.get("imports")
     if value is None:
-        return [], check.problems, []
+        return [], check.problems, [], ()
     if not isinstance(value, list):
         check.problem("imports", "a list of entries, each with files and profile", value)
-        return [], check.problems, []
+        return [], check.problems, [], ()
+    kind_of: dict[Path, str] = {}  # profile -> the kind it declares
+    declared: list[str] = []
     problems: list[InputProblem] = []
     profiles: dict[Path, Profile | None] = {}
     read: list[str] = []
@@ -365,18 +370,21 @@ def check_imports(data: Any, root: Path, kinds: Mapping[str, Columns]
                 if resolved not in profiles:
                     shown = shown_path(root, resolved)
                     read.append(shown)
-                    data, yaml_problems = read_yaml(resolved, shown)
+                    profile_data, yaml_problems = read_yaml(resolved, shown)
                     checked = None
-                    if data is not None or not yaml_problems:
-                        checked, profile_problems = check_profile(data, root, shown, kinds)
+                    kind = profile_data.get("as") if isinstance(profile_data, Mapping) else None
+                    kind_of[resolved] = kind.strip() if isinstance(kind, str) else ""
+                    if profile_data is not None or not yaml_problems:
+                        checked, profile_problems = check_profile(profile_data, root, shown, kinds)
                         yaml_problems += profile_problems
                     problems += yaml_problems
                     profiles[resolved] = checked
                 profile = profiles[resolved]
+                declared.append(kind_of[resolved])
         files = _matched(check, root, pattern, f"{path}.files") if pattern is not None else None
         if profile is not None and files is not None:
             entries.append(Entry(number, pattern, sheet, profile, files))
-    return entries, check.problems + problems, read
+    return entries, check.problems + problems, read, tuple(declared)
 
 
 def _matched(check: Checker, root: Path, pattern: str, path: str) -> tuple[Path, ...] | None:

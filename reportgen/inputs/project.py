@@ -81,18 +81,20 @@ def load_project(project_dir: Path) -> Project:
         if data is not None or not yaml_problems:  # None with problems: unreadable or bad syntax
             settings, setting_problems = check_project_yaml(data, root)
             problems += setting_problems
-    entries, import_problems, profiles_read = importing.check_imports(
-        data, root, IMPORT_KINDS)
+    entries, import_problems, profiles_read, declared = importing.check_imports(data, root, IMPORT_KINDS)
     problems += import_problems
     link_entries = [entry for entry in entries if entry.profile.kind == "links"]
     result_entries = [entry for entry in entries if entry.profile.kind == "results"]
     sources: list[ImportSource] = []
 
-    links, all_link_ids, link_problems = _load_links(root, settings, required=not link_entries)
+    links, all_link_ids, link_problems = _load_links(root, settings,
+                                                      required="links" not in declared)
     if link_entries:
         links, all_link_ids, imported_problems = _import_links(root, link_entries, settings, links,
                                                                all_link_ids, sources)
         link_problems += imported_problems
+    if declared.count("links") > len(link_entries):  # an entry of links could not be used
+        all_link_ids = None  # which link_ids exist is unknown: results are not checked against them
     problems += _wavelength_coverage(settings, links)
     problems += link_problems
     applications = load_applications()
