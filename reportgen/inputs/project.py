@@ -273,7 +273,8 @@ def _printable(problem: InputProblem) -> InputProblem:
     column names and ids come from the folder); ``found`` is shown quoted and escaped anyway."""
     return dataclasses.replace(problem, file=printable(problem.file),
                                field=None if problem.field is None else printable(problem.field),
-                               expected=printable(problem.expected))
+                               expected=printable(problem.expected),
+                               sheet=None if problem.sheet is None else printable(problem.sheet))
 
 
 def _by_line(problems: list[InputProblem]) -> list[InputProblem]:
