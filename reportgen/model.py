@@ -148,7 +148,7 @@ class Testing:
         default_factory=lambda: dict(DEFAULT_WAVELENGTHS_NM)
     )
     attenuators_db: tuple[float, ...] = DEFAULT_ATTENUATORS_DB
-    otdr: OtdrSettings | None = None  # testing.otdr; None: defaults (docs §11)
+    otdr: OtdrSettings | None = None  # testing.otdr; None: defaults (docs §12)
 
 
 @dataclass(frozen=True)
@@ -213,7 +213,9 @@ class Link:
 #   wavelength_nm (int), direction (str: "ab"/"ba"), loss_db (float),
 #   tested_at (pandas Timestamp, naive; tz-aware inputs converted to UTC),
 #   tested_at_text (str, as written), instrument (tuple of instrument ids, () when none),
-#   technician (str or ""), measured_length_m (float or NaN), note (str or "")
+#   technician (str or ""), measured_length_m (float or NaN), note (str or ""),
+#   source (str: "file:line", for a spreadsheet row "file[sheet]:row"; imported rows name the
+#   original file and its row or line)
 RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "source_file",
     "source_line",
@@ -228,7 +230,35 @@ RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "technician",
     "measured_length_m",
     "note",
+    "source",
 )
+
+
+@dataclass(frozen=True)
+class InputFile:
+    """A file of the project folder the inputs stage read, as the report's appendix lists it."""
+
+    path: str  # project-relative, "/" separators
+    size_bytes: int
+    sha256: str  # hex digest of the bytes read
+    results: int = 0  # result rows read from it
+    links: int = 0  # links read from it
+
+
+@dataclass(frozen=True)
+class ImportSource:
+    """One file read through an ``imports:`` entry of project.yaml (what ``reportgen import`` shows)."""
+
+    entry: int  # 1-based position in imports:
+    profile: str  # project-relative path of the profile
+    kind: str  # "results" or "links"
+    file: str  # project-relative path of the file read
+    sheet: str | None  # the sheet read, for a spreadsheet
+    rows_read: int  # data rows of the file (blank rows not counted)
+    rows_made: int  # rows they became (a wide layout makes several per row)
+    mapping: tuple[tuple[str, str], ...]  # (our field, their header or "constant: value"), in field order
+    unmapped: tuple[str, ...]  # headers of the file no mapping uses, in file order
+    link_ids: tuple[str, ...] = ()  # links made (kind "links")
 
 
 @dataclass(frozen=True)
@@ -250,6 +280,8 @@ class Project:
     # Every file of the project folder the inputs stage read, as project-relative paths
     # with "/" separators, sorted: project.yaml, links.csv, results, a limit file, the logo.
     files_read: tuple[str, ...] = ()
+    imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
+    input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
     otdr: tuple[OtdrTrace, ...] = field(default=(), compare=False, repr=False)  # otdr/ traces
 
@@ -393,7 +425,7 @@ class Polish(StrEnum):
 
 @dataclass(frozen=True)
 class OtdrSettings:
-    """``testing.otdr`` of project.yaml; None means "use the default" (docs §11)."""
+    """``testing.otdr`` of project.yaml; None means "use the default" (docs §12)."""
 
     launch_cord_m: float = 0.0
     receive_cord_m: float = 0.0

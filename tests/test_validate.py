@@ -436,7 +436,7 @@ def test_results_frame_has_the_model_columns_and_dtypes(make_project):
         "source_file": "str", "source_line": "int64", "link_id": "str", "strand": "int64",
         "wavelength_nm": "int64", "direction": "str", "loss_db": "float64",
         "tested_at": "datetime64[ns]", "tested_at_text": "str", "instrument": "object",
-        "technician": "str", "measured_length_m": "float64", "note": "str",
+        "technician": "str", "measured_length_m": "float64", "note": "str", "source": "str",
     }
     row = results.iloc[0]
     assert (row.source_file, row.source_line, row.link_id, row.strand, row.wavelength_nm) == (
@@ -569,9 +569,9 @@ def test_files_read_lists_every_project_file_the_inputs_stage_opened():
     traces = tuple(f"otdr/{link}-s1-{wl}-{d}.sor" for link in ("CB-01", "CB-03", "CB-07")
                    for wl in (1310, 1550) for d in ("ab", "ba"))
     assert project.files_read == (
-        "assets/logo.svg", "links.csv", *traces, "project.yaml", "results/day1-building-a.csv",
-        "results/day2-campus.csv", "results/day2-retests.csv",
-        "results/day3-pon-1490.csv")
+        "assets/logo.svg", "exports/retests-2026-04-16.csv", "links.csv", *traces,
+        "profiles/handheld-meter.yaml", "project.yaml", "results/day1-building-a.csv",
+        "results/day2-campus.csv", "results/day3-pon-1490.csv")
 
 
 def test_a_limit_file_name_too_long_for_the_file_system_is_a_clear_problem(make_project):

@@ -2,7 +2,7 @@
 each loss re-measured from the trace by least squares, the length cross-checked.
 
 Pure: no I/O, no words. Every number's basis is stated beside it; the input contract is
-docs/project-format.md §11.
+docs/project-format.md §12.
 """
 from __future__ import annotations
 

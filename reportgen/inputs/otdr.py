@@ -1,5 +1,5 @@
 """OTDR inputs: ``testing.otdr`` of project.yaml, trace files ``otdr/**/*.sor``, the optional
-``otdr/index.csv`` and event tables ``otdr/*.csv`` (docs/project-format.md §11).
+``otdr/index.csv`` and event tables ``otdr/*.csv`` (docs/project-format.md §12).
 
 Which link, strand and direction a trace file belongs to: its row of ``otdr/index.csv`` when
 the index names it; else its GenParams: cable id = ``link_id`` of links.csv, fiber id = the

@@ -165,6 +165,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "direction_ba": "B\u2192A",
     "direction_any": "either",
     "source_row": "{file} line {line}",
+    "source_sheet_row": "{file}, sheet {sheet}, row {line}",
     "diagram_heading": "Loss build-up",
     "diagram_caption": (
         "Steps: the loss the limit set allows, added up along the link (positions not to scale). "
@@ -384,6 +385,17 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # appendix
     "appendix_heading": "Appendix",
     "instruments_heading": "Test instruments",
+    "files_heading": "Input files",
+    "files_intro": (
+        "The files of the project folder this report was made from, with their size and SHA-256 "
+        "checksum: a file whose checksum is the same is the same file, byte for byte. The last "
+        "columns count the results and links each file gave; every result on a link sheet names "
+        "its file and line (or sheet and row)."),
+    "col_file": "File",
+    "col_size_bytes": "Size (bytes)",
+    "col_sha256": "SHA-256",
+    "col_results": "Results",
+    "col_links": "Links",
     "instruments_none": "No instruments are listed for this project.",
     "col_id": "Id",
     "col_kind": "Kind",
@@ -503,6 +515,7 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("power budget", "Launch power minus link loss, compared with the receiver\u2019s window from its lowest average receive power (weakest usable) to overload (strongest tolerated)."),
     ("end allowance", "The allowance of the end connections a two- or three-cord reference leaves out of the measured loss, added before an application\u2019s maximum channel loss is checked."),
     ("attenuator", "A passive part that adds a fixed loss, fitted at the receiver when the light would otherwise be too strong."),
+    ("SHA-256", "A checksum computed from every byte of a file (FIPS 180-4): a copy with the same checksum is the same file; any change gives a different one."),
 )
 
 SAFETY: Final[tuple[str, ...]] = (

@@ -235,6 +235,8 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
                 ("appx-limits", "limits_heading", 2)]
     if apps is not None:
         entries.append(("appx-applications", "appx_apps_heading", 2))
+    if view.input_files:
+        entries.append(("appx-files", "files_heading", 2))
     entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
 

@@ -75,8 +75,9 @@ class ResultView:
     instruments: tuple[str, ...]
     tested_at: datetime
     source_file: str
-    source_line: int
+    source_line: int  # line of a text file, or row of a spreadsheet's sheet
     note: str
+    source_sheet: str | None = None  # the sheet, for a row imported from a spreadsheet
 
 
 @dataclass(frozen=True)
@@ -298,6 +299,17 @@ class ApplicationsView:
 
 
 @dataclass(frozen=True)
+class InputFileView:
+    """A file the report was made from (appendix): path, size, SHA-256 and rows it gave."""
+
+    path: str
+    size_bytes: int
+    sha256: str
+    results: int
+    links: int
+
+
+@dataclass(frozen=True)
 class ReportView:
     """Everything the templates may use, and nothing else."""
 
@@ -344,6 +356,7 @@ class ReportView:
     # values this report uses (allowances, attenuation of the project's fiber types, rows of
     # the application table shown) whose status is "from memory"
     unconfirmed_values: int = 0
+    input_files: tuple[InputFileView, ...] = ()  # every file read, by path
 
 
 def slugify(text: str) -> str:
@@ -388,7 +401,7 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
         return by_link
     columns = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "limit_db",
                "margin_db", "verdict", "judged", "flags", "technician", "instrument", "tested_at",
-               "source_file", "source_line", "note"]
+               "source_file", "source_line", "note", "source"]
     for row in frame[columns].itertuples(index=False):
         by_link.setdefault(row.link_id, []).append(ResultView(
             strand=int(row.strand), wavelength_nm=int(row.wavelength_nm),
@@ -397,9 +410,16 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
             verdict=str(row.verdict), judged=bool(row.judged), flags=tuple(row.flags), technician=_text(row.technician),
             instruments=tuple(row.instrument), tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
             source_file=str(row.source_file), source_line=int(row.source_line),
-            note=_text(row.note),
+            note=_text(row.note), source_sheet=_sheet(str(row.source_file), str(row.source)),
         ))
     return by_link
+
+
+def _sheet(file: str, source: str) -> str | None:
+    """The sheet named in a ``source`` cell written ``file[sheet]:row``; None for ``file:line``."""
+    if source.startswith(file + "[") and "]:" in source:
+        return source[len(file) + 1:source.rindex("]:")]
+    return None
 
 
 def _text(value: Any) -> str:
@@ -623,6 +643,8 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         components=components, paper=project.report.paper.value,
         generated_at=now, version=version,
         apps=apps,
+        input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
+                                        results=f.results, links=f.links) for f in project.input_files),
     )
 
 
