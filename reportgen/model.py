@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 from datetime import date, datetime
 from enum import StrEnum
 from pathlib import Path
-from typing import Final
+from typing import Any, Final
 
 import pandas as pd
 
@@ -181,6 +181,7 @@ class Testing:
     required_reference_method: ReferenceMethod | None = None  # the customer's specification
     period_start: date | None = None  # testing.period: results expected within these days
     period_end: date | None = None
+    otdr: OtdrSettings | None = None  # testing.otdr; None: defaults (docs §12)
 
 
 @dataclass(frozen=True)
@@ -245,7 +246,9 @@ class Link:
 #   wavelength_nm (int), direction (str: "ab"/"ba"), loss_db (float),
 #   tested_at (pandas Timestamp, naive; tz-aware inputs converted to UTC),
 #   tested_at_text (str, as written), instrument (tuple of instrument ids, () when none),
-#   technician (str or ""), measured_length_m (float or NaN), note (str or "")
+#   technician (str or ""), measured_length_m (float or NaN), note (str or ""),
+#   source (str: "file:line", for a spreadsheet row "file[sheet]:row"; imported rows name the
+#   original file and its row or line)
 RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "source_file",
     "source_line",
@@ -260,6 +263,7 @@ RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "technician",
     "measured_length_m",
     "note",
+    "source",
 )
 
 
@@ -317,6 +321,33 @@ class Inspection:
 
 
 @dataclass(frozen=True)
+class InputFile:
+    """A file of the project folder the inputs stage read, as the report's appendix lists it."""
+
+    path: str  # project-relative, "/" separators
+    size_bytes: int
+    sha256: str  # hex digest of the bytes read
+    results: int = 0  # result rows read from it
+    links: int = 0  # links read from it
+
+
+@dataclass(frozen=True)
+class ImportSource:
+    """One file read through an ``imports:`` entry of project.yaml (what ``reportgen import`` shows)."""
+
+    entry: int  # 1-based position in imports:
+    profile: str  # project-relative path of the profile
+    kind: str  # "results" or "links"
+    file: str  # project-relative path of the file read
+    sheet: str | None  # the sheet read, for a spreadsheet
+    rows_read: int  # data rows of the file (blank rows not counted)
+    rows_made: int  # rows they became (a wide layout makes several per row)
+    mapping: tuple[tuple[str, str], ...]  # (our field, their header or "constant: value"), in field order
+    unmapped: tuple[str, ...]  # headers of the file no mapping uses, in file order
+    link_ids: tuple[str, ...] = ()  # links made (kind "links")
+
+
+@dataclass(frozen=True)
 class Project:
     """A validated project folder: everything one report needs."""
 
@@ -335,9 +366,12 @@ class Project:
     # Every file of the project folder the inputs stage read, as project-relative paths
     # with "/" separators, sorted: project.yaml, links.csv, results, a limit file, the logo.
     files_read: tuple[str, ...] = ()
+    imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
+    input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
     references: tuple[Reference, ...] | None = None  # None: the project has no references/ folder
     inspections: tuple[Inspection, ...] | None = None  # None: no inspections/ folder
+    otdr: tuple[OtdrTrace, ...] = field(default=(), compare=False, repr=False)  # otdr/ traces
 
     def link(self, link_id: str) -> Link:
         for link in self.links:
@@ -455,3 +489,71 @@ class ApplicationTable:
 
     def __contains__(self, application_id: object) -> bool:
         return application_id in self.ids
+
+
+# ------------------------------------------------------------ OTDR (tier 2)
+
+
+class OtdrEventKind(StrEnum):
+    LAUNCH = "launch"
+    CONNECTOR = "connector"
+    SPLICE = "splice"
+    BEND = "bend"
+    REFLECTIVE = "reflective"
+    END = "end"
+    OTHER = "other"
+
+
+class Polish(StrEnum):
+    """Connector end-face polish, which sets the reflectance expected of a connection."""
+
+    UPC = "upc"
+    APC = "apc"
+
+
+@dataclass(frozen=True)
+class OtdrSettings:
+    """``testing.otdr`` of project.yaml; None means "use the default" (docs §12)."""
+
+    launch_cord_m: float = 0.0
+    receive_cord_m: float = 0.0
+    connection_db: float | None = None  # tighter than the limit set's connection allowance
+    splice_db: float | None = None
+    polish: Polish = Polish.UPC
+    reflectance_db: float | None = None  # limit for the polish; default by polish and fiber
+    pair_tolerance_m: float | None = None  # fixed pairing tolerance instead of the formula
+    lsa_threshold_db: float = 0.10
+    length_tolerance_pct: float = 3.0
+
+
+@dataclass(frozen=True)
+class OtdrEvent:
+    """One event of one trace, position from where that trace starts (cords included) [m]."""
+
+    position_m: float
+    kind: OtdrEventKind
+    loss_db: float
+    reflectance_db: float | None = None
+
+
+@dataclass(frozen=True)
+class OtdrTrace:
+    """One OTDR measurement: a .sor file, or the rows of an event table of one key."""
+
+    source_file: str
+    source_line: int | None  # first row of an event table; None for a trace file
+    link_id: str
+    strand: int
+    wavelength_nm: int
+    direction: Direction
+    events: tuple[OtdrEvent, ...]
+    pulse_ns: float | None = None
+    group_index: float | None = None
+    sample_spacing_m: float | None = None  # distance between two trace points
+    samples_db: Any = field(default=None, compare=False, repr=False)  # numpy array [dB] or None
+    total_loss_db: float | None = None
+    tested_at: str = ""
+    instrument: str = ""
+    technician: str = ""
+    launch_cord_m: float | None = None  # per-trace override of testing.otdr
+    receive_cord_m: float | None = None

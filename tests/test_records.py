@@ -54,7 +54,7 @@ def test_valid_records_are_read(make_project):
 
 def test_a_large_picture_is_capped(make_project):
     """A 2000 x 1500 picture of pure noise (the worst case for JPEG, 1.4 MB as a file) keeps at
-    most 240 px and 40 KB, the cap docs/project-format.md §11.2 states."""
+    most 240 px and 40 KB, the cap docs/project-format.md §13.2 states."""
     import os
 
     out = io.BytesIO()

@@ -45,6 +45,7 @@ class Context:
     # The application table: a wavelength the limit set lacks is accepted for a link when an
     # application the link lists needs it (a PON class at 1490 nm), not judged by the cabling limit.
     applications: ApplicationTable | None = None
+    links_from: str = "links.csv"  # where the links were read, as messages name it
 
 
 def application_wavelengths_nm(link: Link, limits: LimitSet,
@@ -149,7 +150,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         defined = np.array([link_id in context.all_link_ids for link_id in unique_ids], dtype=bool)
         unknown = ~empty_id & ~defined[id_codes] if len(id_codes) else empty_id
         hints = _link_hints(unique_ids, defined, context.all_link_ids)
-        out.add(unknown, "link_id", lambda row: f"a link_id defined in links.csv{hints[id_codes[row]]}",
+        out.add(unknown, "link_id", lambda row: f"a link_id defined in {context.links_from}{hints[id_codes[row]]}",
                 link_ids)
     links = context.links or {}
     unique_links = [links.get(link_id) for link_id in unique_ids]
@@ -264,6 +265,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         "technician": pd.Series(column["technician"], dtype="str"),
         "measured_length_m": measured_m,
         "note": pd.Series(column["note"], dtype="str"),
+        "source": table.file + ":" + pd.Series(table.lines, dtype="str"),
     }, columns=list(RESULT_COLUMNS))
     return frame, []
 
@@ -276,7 +278,7 @@ def empty_results() -> pd.DataFrame:
         "strand": np.zeros(0, np.int64), "wavelength_nm": np.zeros(0, np.int64), "direction": text,
         "loss_db": np.zeros(0, np.float64), "tested_at": np.zeros(0, "datetime64[ns]"),
         "tested_at_text": text, "instrument": pd.Series([], dtype=object), "technician": text,
-        "measured_length_m": np.zeros(0, np.float64), "note": text,
+        "measured_length_m": np.zeros(0, np.float64), "note": text, "source": text,
     }, columns=list(RESULT_COLUMNS))
 
 

@@ -221,6 +221,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "direction_ba": "B\u2192A",
     "direction_any": "either",
     "source_row": "{file} line {line}",
+    "source_sheet_row": "{file}, sheet {sheet}, row {line}",
     "diagram_heading": "Loss build-up",
     "diagram_caption": (
         "Steps: the loss the limit set allows, added up along the link (positions not to scale). "
@@ -440,6 +441,17 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # appendix
     "appendix_heading": "Appendix",
     "instruments_heading": "Test instruments",
+    "files_heading": "Input files",
+    "files_intro": (
+        "The files of the project folder this report was made from, with their size and SHA-256 "
+        "checksum: a file whose checksum is the same is the same file, byte for byte. The last "
+        "columns count the results and links each file gave; every result on a link sheet names "
+        "its file and line (or sheet and row)."),
+    "col_file": "File",
+    "col_size_bytes": "Size (bytes)",
+    "col_sha256": "SHA-256",
+    "col_results": "Results",
+    "col_links": "Links",
     "instruments_none": "No instruments are listed for this project.",
     "col_id": "Id",
     "col_kind": "Kind",
@@ -504,6 +516,38 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "safety_heading": "Safety",
     "glossary_heading": "Terms used",
     "footer_left": "{title}",
+    # OTDR results on a link sheet
+    "otdr_heading": "OTDR: events along the fiber",
+    "otdr_strand": "Strand {strand}, {wavelength} nm",
+    "otdr_length": "Fiber length measured {measured}, documented {documented} (allowed difference {tolerance}).",
+    "otdr_length_missing": "The trace shows no fiber end: length not measured.",
+    "otdr_total": "End-to-end loss by the instrument: {value} dB.",
+    "otdr_files": "Source: {files}",
+    "otdr_caption": "Both directions on one distance axis from end A (from B mirrored); each vertical stroke spans the lowest and highest sample of its pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails.",
+    "col_event_no": "No.",
+    "col_position": "Position",
+    "col_event": "Event",
+    "col_loss_ab": "Loss A→B",
+    "col_loss_ba": "Loss B→A",
+    "col_loss_avg": "Average",
+    "col_lsa": "Re-measured (LSA)",
+    "col_reflectance": "Reflectance",
+    "col_allowance_short": "Allowed",
+    "otdr_kind_launch": "launch",
+    "otdr_kind_connector": "connection",
+    "otdr_kind_splice": "splice",
+    "otdr_kind_bend": "bend",
+    "otdr_kind_reflective": "reflective event",
+    "otdr_kind_end": "fiber end",
+    "otdr_kind_other": "other",
+    "otdr_flag_negative-average": "negative average",
+    "otdr_flag_one-way": "seen from one end only",
+    "otdr_flag_in-cord": "inside a test cord",
+    "otdr_flag_lsa-differs": "trace disagrees with the instrument's table",
+    "otdr_finding_length-differs": "The measured fiber length differs from the documented length by more than allowed.",
+    "otdr_finding_connection-count": "The number of connections found differs from the link's description.",
+    "otdr_finding_splice-count": "The number of splices found differs from the link's description.",
+    "otdr_finding_il-differs": "The OTDR end-to-end loss differs from the insertion-loss result ({value} dB) by more than 0.5 dB.",
 })
 
 GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
@@ -517,6 +561,9 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("splice", "A permanent joint of two fibers, fused or mechanical."),
     ("strand", "One fiber of a link, numbered from 1."),
     ("OTDR", "Optical time-domain reflectometer: shows loss and reflections along a fiber from one end."),
+    ("reflectance", "The share of light a connection sends back, in dB: the more negative, the better."),
+    ("bidirectional average", "The mean of an event's losses measured from both ends; it cancels the apparent gain or extra loss where two fibers of slightly different backscatter meet."),
+    ("LSA", "Least-squares approximation: straight lines fitted to the trace before and after an event; the step between them is the event's loss."),
     ("OM1\u2013OM5, OS1, OS1a, OS2", "Multimode (OM) and single-mode (OS) fiber categories of ISO/IEC 11801."),
     ("within uncertainty", "A result closer to its limit than the stated measurement uncertainty."),
     ("superseded", "An earlier test of the same strand, wavelength and direction, replaced by a later one."),
@@ -524,6 +571,7 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("power budget", "Launch power minus link loss, compared with the receiver\u2019s window from its lowest average receive power (weakest usable) to overload (strongest tolerated)."),
     ("end allowance", "The allowance of the end connections a two- or three-cord reference leaves out of the measured loss, added before an application\u2019s maximum channel loss is checked."),
     ("attenuator", "A passive part that adds a fixed loss, fitted at the receiver when the light would otherwise be too strong."),
+    ("SHA-256", "A checksum computed from every byte of a file (FIPS 180-4): a copy with the same checksum is the same file; any change gives a different one."),
 )
 
 SAFETY: Final[tuple[str, ...]] = (
@@ -712,6 +760,8 @@ def format_length(length_m: float, unit: str = "m") -> str:
 
     value = m_to_ft(length_m) if unit == "ft" else length_m
     text = f"{value:.0f}" if abs(value - round(value)) < 0.05 else f"{value:.1f}"
+    if text.startswith("-") and float(text) == 0:  # never "-0 m"
+        text = text[1:]
     return f"{text}\u00a0{unit}"
 
 

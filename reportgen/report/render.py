@@ -45,8 +45,10 @@ from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.findings import Findings
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
+from reportgen.report.otdr_figure import trace_svg
+from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view
+from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -238,6 +240,8 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
         entries.append(("appx-applications", "appx_apps_heading", 2))
     if view.rules:
         entries.append(("appx-audit", "audit_heading", 2))
+    if view.input_files:
+        entries.append(("appx-files", "files_heading", 2))
     entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
 
@@ -260,6 +264,16 @@ def power_diagrams(project: Project, judgement: Judgement, view: ReportView,
         budget = judgement.budget_table.get(link.link_id, power.wavelength_nm)
         out[link_view.anchor] = Markup(power_level_svg(power, level_steps(budget)))
     return out
+
+
+def otdr_figures(project: Project, view: ReportView, otdr: OtdrAssessment | None) -> dict[str, Markup]:
+    """The OTDR trace figure (inline SVG) of every strand and wavelength, by figure key."""
+    if otdr is None:
+        return {}
+    anchors = {link.link_id: link.anchor for link in view.links}
+    settings = project.testing.otdr
+    return {otdr_figure_key(anchors[s.link_id], s.strand, s.wavelength_nm): Markup(trace_svg(s, settings))
+            for s in otdr.strands}
 
 
 class _LossDiagrams(Mapping[str, Markup]):
@@ -291,7 +305,8 @@ class _Renderer:
     """Renders the parts of one report from one view model."""
 
     def __init__(self, env: jinja2.Environment, view: ReportView,
-                 power_svgs: Mapping[str, Markup] | None = None) -> None:
+                 power_svgs: Mapping[str, Markup] | None = None,
+                 otdr_svgs: Mapping[str, Markup] | None = None) -> None:
         self.env = env
         self.view = view
         self.template = env.get_template(TEMPLATE_MAIN)
@@ -303,6 +318,7 @@ class _Renderer:
                        "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
             "toc": toc_entries(view),
             "power_diagrams": dict(power_svgs or {}),
+            "otdr_figures": dict(otdr_svgs or {}),
         }
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
@@ -326,6 +342,7 @@ def build_report(
     version: str,
     applications: ProjectApplications | None = None,
     findings: Findings | None = None,
+    otdr: OtdrAssessment | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
 
@@ -334,9 +351,10 @@ def build_report(
     budget sections.
     """
     view = build_view(project, judgement, now=now, version=version, assessed=applications,
-                      findings=findings)
+                      findings=findings, otdr=otdr)
     env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications))
+    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications),
+                         otdr_figures(project, view, otdr))
     makers: list[Callable[[], str]] = [
         functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
         for index, chunk in enumerate(chunk_links(view.links))]

@@ -37,6 +37,7 @@ from reportgen.model import (
     ResultVerdict,
     Severity,
 )
+from reportgen.engine.otdr import OtdrAssessment, PairedEvent
 from reportgen.engine.power import PowerBudget
 from reportgen.report import messages
 
@@ -84,8 +85,9 @@ class ResultView:
     instruments: tuple[str, ...]
     tested_at: datetime
     source_file: str
-    source_line: int
+    source_line: int  # line of a text file, or row of a spreadsheet's sheet
     note: str
+    source_sheet: str | None = None  # the sheet, for a row imported from a spreadsheet
 
 
 @dataclass(frozen=True)
@@ -175,6 +177,7 @@ class LinkView:
     set_aside: tuple[ResultView, ...]  # superseded and invalid rows
     missing: tuple[MissingView, ...]
     failing: tuple[ResultView, ...]  # judged results that fail
+    otdr: tuple[OtdrStrandView, ...] = ()  # OTDR results per strand and wavelength
     findings: tuple[FindingView, ...] = ()  # audit findings of the link, errors first
     inspections: tuple[InspectionView, ...] = ()  # end-face inspections by strand, end, time
 
@@ -185,6 +188,44 @@ class LinkView:
     @property
     def needs_action(self) -> bool:
         return self.verdict != LinkVerdict.PASS.value or bool(self.errors)
+
+
+@dataclass(frozen=True)
+class OtdrStrandView:
+    """One strand at one wavelength measured by OTDR (engine.otdr.StrandOtdr, for the sheet)."""
+
+    figure_key: str  # key of its figure in the renderer's ``otdr_figures``
+    strand: int
+    wavelength_nm: int
+    verdict: str  # "pass" or "fail"
+    length_m: float | None
+    documented_length_m: float
+    length_tolerance_m: float
+    end_to_end_loss_db: float | None
+    insertion_loss_db: float | None
+    pair_tolerance_m: float
+    findings: tuple[str, ...]
+    files: tuple[str, ...]
+    events: tuple[PairedEvent, ...]  # numbered from 1 in the figure and the table
+
+
+def otdr_figure_key(anchor: str, strand: int, wavelength_nm: int) -> str:
+    return f"{anchor}-s{strand}-{wavelength_nm}"
+
+
+def _with_otdr(links: tuple[LinkView, ...], otdr: OtdrAssessment | None) -> tuple[LinkView, ...]:
+    if otdr is None or not otdr.strands:
+        return links
+    out = []
+    for view in links:
+        strands = tuple(
+            OtdrStrandView(otdr_figure_key(view.anchor, s.strand, s.wavelength_nm), s.strand, s.wavelength_nm,
+                           s.verdict, s.length_m, s.documented_length_m, s.length_tolerance_m,
+                           s.end_to_end_loss_db, s.insertion_loss_db, s.pair_tolerance_m, s.findings,
+                           tuple(t.source_file for t in s.traces), s.events)
+            for s in otdr.for_link(view.link_id))
+        out.append(dataclasses.replace(view, otdr=strands) if strands else view)
+    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -322,6 +363,17 @@ class ApplicationsView:
 
 
 @dataclass(frozen=True)
+class InputFileView:
+    """A file the report was made from (appendix): path, size, SHA-256 and rows it gave."""
+
+    path: str
+    size_bytes: int
+    sha256: str
+    results: int
+    links: int
+
+
+@dataclass(frozen=True)
 class ReportView:
     """Everything the templates may use, and nothing else."""
 
@@ -373,6 +425,7 @@ class ReportView:
     # values this report uses (allowances, attenuation of the project's fiber types, rows of
     # the application table shown) whose status is "from memory"
     unconfirmed_values: int = 0
+    input_files: tuple[InputFileView, ...] = ()  # every file read, by path
 
 
 def slugify(text: str) -> str:
@@ -417,7 +470,7 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
         return by_link
     columns = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "limit_db",
                "margin_db", "verdict", "judged", "flags", "technician", "instrument", "tested_at",
-               "source_file", "source_line", "note"]
+               "source_file", "source_line", "note", "source"]
     for row in frame[columns].itertuples(index=False):
         by_link.setdefault(row.link_id, []).append(ResultView(
             strand=int(row.strand), wavelength_nm=int(row.wavelength_nm),
@@ -426,9 +479,16 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
             verdict=str(row.verdict), judged=bool(row.judged), flags=tuple(row.flags), technician=_text(row.technician),
             instruments=tuple(row.instrument), tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
             source_file=str(row.source_file), source_line=int(row.source_line),
-            note=_text(row.note),
+            note=_text(row.note), source_sheet=_sheet(str(row.source_file), str(row.source)),
         ))
     return by_link
+
+
+def _sheet(file: str, source: str) -> str | None:
+    """The sheet named in a ``source`` cell written ``file[sheet]:row``; None for ``file:line``."""
+    if source.startswith(file + "[") and "]:" in source:
+        return source[len(file) + 1:source.rindex("]:")]
+    return None
 
 
 def _text(value: Any) -> str:
@@ -640,7 +700,8 @@ def _rule_views(audit: AuditSettings, findings: Findings) -> tuple[RuleView, ...
 
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
                assessed: ProjectApplications | None = None,
-               findings: Findings | None = None) -> ReportView:
+               findings: Findings | None = None,
+               otdr: OtdrAssessment | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
 
     ``assessed`` (applications.assess_project) adds the applications and power budgets.
@@ -654,6 +715,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
                                   anchors[link.link_id],
                                   rows_by_link.get(link.link_id, []))
                   for link in project.links)
+    links = _with_otdr(links, otdr)
     if findings is not None or project.inspections:
         inspections = _inspection_views(project)
         links = tuple(dataclasses.replace(
@@ -708,6 +770,8 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         rules=() if findings is None else _rule_views(project.testing.audit, findings),
         references_given=project.references is not None,
         inspections_given=project.inspections is not None,
+        input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
+                                        results=f.results, links=f.links) for f in project.input_files),
     )
 
 
