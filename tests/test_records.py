@@ -278,3 +278,23 @@ def test_findings_show_on_cover_action_list_sheet_and_appendix():
     assert message in action and 'href="#link-l1"' in action
     assert message in sheet and "results/r.csv line 2, 3, 4, 5" in sheet
     assert 'id="appx-audit"' in html and html.count('class="code">calibration-overdue<') == 1
+
+
+def test_link_sheet_lists_notable_inspections_and_counts_plain_passes():
+    """Strand 1 end B failed and was cleaned: both rows shown; the other three strand ends
+    passed once: counted in one line."""
+    from datetime import datetime
+
+    from reportgen.engine.judge import judge_project
+    from reportgen.report.viewmodel import build_view
+    from tests.builders import make_link, make_project
+
+    inspections = [dict(strand=s, end=e) for s in (1, 2) for e in ("a", "b")] + [
+        dict(strand=1, end="b", result="fail", inspected_at="2030-01-15T06:00")]
+    project = make_project([make_link("L1", strands=2)],
+                           [dict(wavelength_nm=850, loss_db=1.0)], inspections=inspections)
+    view = build_view(project, judge_project(project), now=datetime(2030, 2, 1), version="t")
+    (link,) = view.links
+    assert [(i.strand, i.end, i.result) for i in link.inspections] == [
+        (1, "b", "fail"), (1, "b", "pass")]
+    assert link.inspections_passed.count == 3

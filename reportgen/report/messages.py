@@ -81,6 +81,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "evidence_lines_more": "{file} lines {lines} \u2026 ({more} more)",
     "evidence_setting": "project.yaml",
     "inspections_heading": "End-face inspections",
+    "inspections_passed": "Strand ends inspected once and passing, without picture or note: {count} ({first} to {last}; criteria: {criteria}). The table lists the others: failures, pictures, notes and repeated inspections.",
     "col_end": "End",
     "col_inspection": "Result",
     "col_criteria_note": "Criteria; note",

@@ -138,6 +138,16 @@ class InspectionView:
 
 
 @dataclass(frozen=True)
+class InspectionSummary:
+    """The strand ends of a link inspected once, passing, without picture or note."""
+
+    count: int
+    first: datetime
+    last: datetime
+    criteria: tuple[str, ...]
+
+
+@dataclass(frozen=True)
 class ThresholdView:
     key: str  # testing.audit key
     value: float
@@ -179,7 +189,8 @@ class LinkView:
     failing: tuple[ResultView, ...]  # judged results that fail
     otdr: tuple[OtdrStrandView, ...] = ()  # OTDR results per strand and wavelength
     findings: tuple[FindingView, ...] = ()  # audit findings of the link, errors first
-    inspections: tuple[InspectionView, ...] = ()  # end-face inspections by strand, end, time
+    inspections: tuple[InspectionView, ...] = ()  # notable end-face inspections (see below)
+    inspections_passed: InspectionSummary | None = None  # strand ends with one plain pass
 
     @property
     def errors(self) -> tuple[FindingView, ...]:
@@ -673,19 +684,41 @@ def _finding_views(findings: Iterable[Finding], anchors: Mapping[str, str]
     return tuple(views)
 
 
-def _inspection_views(project: Project) -> dict[str, tuple[InspectionView, ...]]:
-    by_link: dict[str, list[InspectionView]] = {}
+def _inspection_views(project: Project
+                      ) -> dict[str, tuple[tuple[InspectionView, ...], InspectionSummary | None]]:
+    """Per link: the inspections worth a row (a strand end with a failure, a picture, a note
+    or more than one inspection) and a summary of the strand ends with one plain pass."""
+    by_end: dict[tuple[str, int, str], list] = {}
     for i in sorted(project.inspections or (),
                     key=lambda i: (i.strand, i.end.value, i.inspected_at, i.source_line)):
-        image = i.image
-        by_link.setdefault(i.link_id, []).append(InspectionView(
-            strand=i.strand, end=i.end.value, result=i.result.value, inspected_at=i.inspected_at,
-            criteria=i.criteria or "", technician=i.technician or "",
-            image_uri="" if image is None else
-            f"data:{image.mime};base64,{base64.b64encode(image.data).decode('ascii')}",
-            image_width=0 if image is None else image.width,
-            image_height=0 if image is None else image.height, note=i.note or ""))
-    return {link_id: tuple(views) for link_id, views in by_link.items()}
+        by_end.setdefault((i.link_id, i.strand, i.end.value), []).append(i)
+    shown: dict[str, list[InspectionView]] = {}
+    plain: dict[str, list] = {}
+    for (link_id, _, _), items in by_end.items():
+        notable = len(items) > 1 or any(i.result.value == "fail" or i.image or i.note
+                                        for i in items)
+        if not notable:
+            plain.setdefault(link_id, []).append(items[0])
+            continue
+        for i in items:
+            image = i.image
+            shown.setdefault(link_id, []).append(InspectionView(
+                strand=i.strand, end=i.end.value, result=i.result.value,
+                inspected_at=i.inspected_at, criteria=i.criteria or "",
+                technician=i.technician or "",
+                image_uri="" if image is None else
+                f"data:{image.mime};base64,{base64.b64encode(image.data).decode('ascii')}",
+                image_width=0 if image is None else image.width,
+                image_height=0 if image is None else image.height, note=i.note or ""))
+    out = {}
+    for link_id in {*shown, *plain}:
+        passes = plain.get(link_id, [])
+        summary = None if not passes else InspectionSummary(
+            count=len(passes), first=min(i.inspected_at for i in passes),
+            last=max(i.inspected_at for i in passes),
+            criteria=tuple(sorted({i.criteria for i in passes if i.criteria})))
+        out[link_id] = (tuple(shown.get(link_id, ())), summary)
+    return out
 
 
 def _rule_views(audit: AuditSettings, findings: Findings) -> tuple[RuleView, ...]:
@@ -721,7 +754,8 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         links = tuple(dataclasses.replace(
             view, findings=() if findings is None else _finding_views(
                 findings.for_link(view.link_id), anchors),
-            inspections=inspections.get(view.link_id, ())) for view in links)
+            inspections=inspections.get(view.link_id, ((), None))[0],
+            inspections_passed=inspections.get(view.link_id, ((), None))[1]) for view in links)
     needs_action = (tuple(v for v in links if v.verdict == LinkVerdict.FAIL.value)
                     + tuple(v for v in links if v.verdict == LinkVerdict.INCOMPLETE.value)
                     + tuple(v for v in links if v.verdict == LinkVerdict.PASS.value
