@@ -22,7 +22,6 @@ from reportgen.model import (
     InstrumentKind,
     Plant,
     ReferenceMethod,
-    Severity,
     Transceiver,
 )
 from reportgen.report.messages import FINDING_TEXT, RULE_TEXT, finding_text
