@@ -33,6 +33,7 @@ from typing import Final
 
 REPO: Final = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+sys.path.insert(0, str(REPO))  # cluster workers started here import this tree
 
 from make_synthetic import make_project  # noqa: E402
 

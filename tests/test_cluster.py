@@ -137,7 +137,7 @@ def test_cluster_parts_go_into_the_cache_and_a_local_rebuild_uses_them(
 def test_separate_scheduler_and_worker_processes_survive_a_killed_worker(
         project: Path, separate_processes: tuple[str, list[subprocess.Popen[bytes]]]) -> None:
     address, workers = separate_processes
-    bodies = [body(f"p{index}", pages=6) for index in range(8)] + [body("b")]
+    bodies = [body(f"p{index}", pages=4) for index in range(6)] + [body("b")]
     local = render(project, bodies, workers=2)
     killed: list[int] = []
 
@@ -156,7 +156,7 @@ def test_no_worker_left_fails_the_build_instead_of_waiting(
         monkeypatch: pytest.MonkeyPatch) -> None:
     address, workers = separate_processes
     monkeypatch.setattr(cluster_module, "NO_WORKER_TIMEOUT_S", 3.0)
-    bodies = [body(f"p{index}", pages=6) for index in range(6)] + [body("b")]
+    bodies = [body(f"p{index}", pages=4) for index in range(4)] + [body("b")]
 
     def kill_all(done: int, total: int) -> None:
         if done == 1:
