@@ -18,6 +18,7 @@ import hashlib
 import io
 import json
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -141,3 +142,35 @@ def test_killed_report_build_keeps_previous_outputs(tmp_path):
     project = write_large_project(tmp_path / "project", links=12)
     killed = _kill_at_moments(project, tmp_path / "out", [0.2, 0.6, 0.9], data_only=False)
     assert killed >= 2
+
+
+@pytest.mark.slow
+def test_ctrl_c_stops_the_workers_and_keeps_previous_outputs(tmp_path):
+    """SIGINT (what Ctrl-C sends) to the build process only: it exits 2 with a message, its
+    worker processes end, the previous outputs stay byte for byte, the cache keeps whole
+    entries only."""
+    psutil = pytest.importorskip("psutil")
+    project = write_large_project(tmp_path / "project", links=60)
+    out = tmp_path / "out"
+    _build(project, out, data_only=False)
+    first = _digests(out)
+    shutil.rmtree(out / CACHE_DIR_NAME)  # the next build must render again
+    process = subprocess.Popen(_command(project, out, False), env=_environment(SECOND_EPOCH),
+                               cwd=REPO, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+                               text=True)
+    children: list = []
+    deadline = time.monotonic() + 120
+    while process.poll() is None and time.monotonic() < deadline:
+        children = psutil.Process(process.pid).children(recursive=True)
+        if len(children) >= 3:  # the fork server and part workers are running
+            break
+        time.sleep(0.2)
+    assert process.poll() is None, "the build ended before its workers were seen"
+    process.send_signal(signal.SIGINT)
+    _, stderr = process.communicate(timeout=120)
+    assert process.returncode == 2 and "interrupted" in stderr
+    _, alive = psutil.wait_procs(children, timeout=30)
+    assert alive == []
+    assert _digests(out) == first
+    for entry in (out / CACHE_DIR_NAME).glob(f"*{ENTRY_SUFFIX}"):
+        decode_entry(entry.stem, entry.read_bytes())
