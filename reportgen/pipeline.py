@@ -24,6 +24,7 @@ from reportgen.export.summary import json_bytes
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
+from reportgen.engine.otdr import OtdrAssessment, assess_otdr
 from reportgen.report.messages import PAGE_LABEL, reason_text
 from reportgen.model import Project
 from reportgen.inputs.project import load_project
@@ -43,6 +44,7 @@ class Outcome:
     project: Project
     judgement: Judgement
     applications: ProjectApplications  # applications and transceiver power budgets per link
+    otdr: OtdrAssessment | None = None  # OTDR events paired, averaged and judged
 
 
 @dataclass(frozen=True)
@@ -67,8 +69,10 @@ def compute(project: Project) -> Outcome:
     """Steps 2 and 3: judge every result, then assess applications and power budgets."""
     log.info("Step 2: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
-    log.info("Step 3: assessing applications and transceiver power budgets")
-    return Outcome(project, judgement, assess_project(project, judgement))
+    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces",
+             len(project.otdr))
+    applications = assess_project(project, judgement)
+    return Outcome(project, judgement, applications, assess_otdr(project, judgement))
 
 
 def default_out_dir(project_dir: Path) -> Path:
@@ -88,6 +92,17 @@ def check_out_dir(project_dir: Path, out_dir: Path) -> None:
             f"({', '.join(_INPUT_FOLDERS)}); choose another with -o (default: PROJECT/report)")
     if out_real.exists() and not out_real.is_dir():
         raise ReportgenError(f"output folder {out_dir} exists and is not a folder")
+
+
+def check_out_dir_holds_no_input(project: Project, out_dir: Path) -> None:
+    """Refuse an output folder holding a file the project reads (an imported export, say): the
+    next run could read its outputs back, or overwrite evidence."""
+    out_real = Path(out_dir).resolve()
+    for shown in project.files_read:
+        if out_real in (project.root / shown).resolve().parents:
+            raise ReportgenError(
+                f"output folder {out_dir} holds {shown}, a file the project reads; choose another "
+                "with -o (default: PROJECT/report)")
 
 
 def build_now(now: datetime | None) -> datetime:
@@ -124,6 +139,7 @@ def build(
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
     project = validate_only(project_dir)
+    check_out_dir_holds_no_input(project, out_dir)
     outcome = compute(project)
     now = build_now(now)
 
@@ -145,10 +161,42 @@ def build(
     return BuildResult(out_dir, outcome, tuple(outputs))
 
 
+def write_imported(project: Project, out_dir: Path) -> tuple[str, ...]:
+    """``reportgen import --write``: the imported links as links.csv and each imported results
+    file as results/NAME.csv in ``out_dir`` (each file atomically; other files left alone)."""
+    from reportgen.export.atomic import write_files
+    from reportgen.export.contract_csv import links_csv_bytes, results_rows_csv_bytes
+
+    out_dir = Path(out_dir)
+    links = {link.link_id: link for link in project.links}
+    imported_links = [links[link_id] for source in project.imports if source.kind == "links"
+                      for link_id in source.link_ids]
+    results: dict[str, bytes] = {}
+    for source in project.imports:
+        if source.kind != "results":
+            continue
+        prefix = f"{source.file}[{source.sheet}]:" if source.sheet is not None else f"{source.file}:"
+        rows = project.results[project.results["source"].str.startswith(prefix)]
+        stem = Path(source.file).stem + (f"-{source.sheet}" if source.sheet is not None else "")
+        name = f"{stem}.csv"
+        if name in results:
+            name = f"{stem}-{source.entry}.csv"
+        results[name] = results_rows_csv_bytes(rows)
+    written = []
+    if imported_links:
+        write_files(out_dir, {"links.csv": links_csv_bytes(imported_links)})
+        written.append("links.csv")
+    if results:
+        write_files(out_dir / "results", results)
+        written += [f"results/{name}" for name in results]
+    return tuple(written)
+
+
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
-                                    now=now, version=version, reason_text=reason_text)
+                                    now=now, version=version, reason_text=reason_text,
+                                    otdr=outcome.otdr)
 
 
 def default_jobs() -> int:
@@ -176,7 +224,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
 
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,
-                                   version=version, applications=outcome.applications)
+                                   version=version, applications=outcome.applications,
+                                   otdr=outcome.otdr)
 
     def meanwhile() -> dict[str, bytes]:
         made = alongside() if alongside is not None else {}
