@@ -56,6 +56,24 @@ def front(page_of: Mapping[str, int], total_pages: int) -> str:
 BODIES = [body("a"), body("b", extra='<img src="mark.png" style="width: 10mm"/>'), body("c")]
 
 
+HANG_GUARD_S = 300  # far above a normal run: turns a hang into a failure, measures nothing
+
+
+@pytest.fixture(autouse=True)
+def hang_guard() -> Iterator[None]:
+    """Fail a test that hangs (the promise under test is "never a hang") instead of blocking CI."""
+    def hung(signum: int, frame: object) -> None:
+        raise TimeoutError(f"cluster test still running after {HANG_GUARD_S} s: hung")
+
+    previous = signal.signal(signal.SIGALRM, hung)
+    signal.alarm(HANG_GUARD_S)
+    try:
+        yield
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, previous)
+
+
 @pytest.fixture
 def project(tmp_path: Path) -> Path:
     root = tmp_path / "project"
