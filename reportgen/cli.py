@@ -148,13 +148,28 @@ def check(project: Path, show_all: bool) -> None:
               help="Output folder (default: PROJECT/report).")
 @click.option("--data-only", is_flag=True,
               help="Write only results.csv and summary.json (no HTML/PDF report).")
-def build(project: Path, output: Path | None, data_only: bool) -> None:
-    """Validate, judge and write the report of PROJECT."""
+@click.option("-j", "--jobs", type=click.IntRange(min=1), default=None,
+              help="Processes rendering the PDF's parts (default: the cores this process "
+                   "may use).")
+@click.option("--no-cache", is_flag=True,
+              help="Render every part of the PDF again, ignoring the parts kept by earlier "
+                   "builds in OUTPUT/.reportgen-cache.")
+@click.option("--cluster", metavar="ADDRESS", envvar="REPORTGEN_CLUSTER", default=None,
+              help="Render the PDF's parts on the Dask scheduler at ADDRESS, e.g. "
+                   "tcp://10.0.0.5:8786 (also REPORTGEN_CLUSTER; needs reportgen[cluster]).")
+def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
+          no_cache: bool, cluster: str | None) -> None:
+    """Validate, judge and write the report of PROJECT.
+
+    A rebuild into the same output folder renders only the parts of the PDF that
+    changed; the result is the same, byte for byte, as a build from scratch.
+    """
     from reportgen import pipeline
     from reportgen.report.terminal import progress_bar
 
     with progress_bar(_stderr(), enabled=not data_only) as progress:
-        result = pipeline.build(project, output, report=not data_only, progress=progress)
+        result = pipeline.build(project, output, report=not data_only, progress=progress,
+                                jobs=jobs, cache=not no_cache, cluster=cluster or None)
     totals = result.outcome.judgement.totals
     counts = result.outcome.findings.counts
     _stdout().print(

@@ -129,8 +129,18 @@ def build(
     version: str = __version__,
     report: bool = True,
     progress: Progress | None = None,
+    jobs: int | None = None,
+    cache: bool = True,
+    cluster: str | None = None,
 ) -> BuildResult:
-    """Validate, judge, render and write every output; nothing is written on failure."""
+    """Validate, judge, render and write every output; nothing is written on failure.
+
+    ``jobs`` local processes render the PDF's parts (default: the cores this process
+    may use), or the Dask scheduler at ``cluster`` has its workers render them. With
+    ``cache``, parts rendered by an earlier build into the same output folder are
+    reused (``OUT/.reportgen-cache``, :mod:`reportgen.pdf.cache`); the part cache is
+    the one thing written before the outputs, each entry whole or not at all.
+    """
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
@@ -147,7 +157,8 @@ def build(
 
     if report:
         outputs = render_report(outcome, now=now, version=version, progress=progress,
-                                alongside=data_outputs)
+                                alongside=data_outputs, jobs=jobs,
+                                cache_dir=out_dir if cache else None, cluster=cluster)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
         outputs = data_outputs()
@@ -195,15 +206,27 @@ def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str,
                                     otdr=outcome.otdr)
 
 
+def default_jobs() -> int:
+    """Worker processes for the PDF parts: the cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on every system
+        return max(1, os.cpu_count() or 1)
+
+
 def render_report(outcome: Outcome, *, now: datetime, version: str,
                   progress: Progress | None = None,
-                  alongside: Callable[[], dict[str, bytes]] | None = None) -> dict[str, bytes]:
+                  alongside: Callable[[], dict[str, bytes]] | None = None,
+                  jobs: int | None = None, cache_dir: Path | None = None,
+                  cluster: str | None = None) -> dict[str, bytes]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
 
     Returns the outputs of ``alongside()`` (made by a thread while the PDF workers
-    are busy, like report.html), then report.html and report.pdf.
+    are busy, like report.html), then report.html and report.pdf. ``cache_dir`` is
+    the output folder whose part cache is used (None: render every part).
     """
     from reportgen.pdf import engine as pdf
+    from reportgen.pdf.cache import PartCache
     from reportgen.report import render
 
     log.info("Step 4: rendering the report")
@@ -220,5 +243,9 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
         pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
                                    title=outcome.project.info.title, created=now,
                                    page_label=PAGE_LABEL, progress=progress,
-                                   xml_first=document.own_templates)
+                                   xml_first=document.own_templates,
+                                   workers=jobs if jobs is not None else default_jobs(),
+                                   cache=(PartCache.in_output_folder(cache_dir)
+                                          if cache_dir is not None else None),
+                                   cluster=cluster)
         return {**others.result(), "report.pdf": pdf_bytes}
