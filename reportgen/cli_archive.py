@@ -335,9 +335,8 @@ def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: flo
     """
     from reportgen.archive import html
     from reportgen.archive.compare import (comparison_csv_bytes, comparison_json,
-                                           compare_campaigns)
+                                           comparison_json_bytes, compare_campaigns)
     from reportgen.export.atomic import write_outputs
-    from reportgen.export.summary import json_bytes
     from reportgen.report.messages import SAFETY
     from reportgen.report.render import templates_dir
 
@@ -349,13 +348,15 @@ def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: flo
         "retest": _describe(after), "threshold_db": threshold_db,
         "threshold_basis": "twice the uncertainty of the difference of two tests each "
                            "uncertain by ±0.2 dB" if threshold_db == 0.6 else "as given",
-        "totals": document["totals"], "links": changes,
-        "changed": [c for c in changes if c.status != "same"],
+        "totals": document["totals"], "links": document["links"],
+        "changed": [link for link in document["links"]
+                    if link["degraded"] or (link["status"] == "changed"
+                                            and link["verdict_before"] != link["verdict_after"])],
         "safety": SAFETY, "generator": f"reportgen {__version__}"})
     out = output or Path("compare")
     write_outputs(out, {"compare.html": text.encode("utf-8"),
                         "compare.csv": comparison_csv_bytes(changes),
-                        "compare.json": json_bytes(document)})
+                        "compare.json": comparison_json_bytes(document)})
     totals = document["totals"]
     _out().print(f"{len(changes)} links: {totals['same']} same, {totals['changed']} changed, "
                  f"{totals['added']} added, {totals['removed']} removed; {totals['degraded']} "
