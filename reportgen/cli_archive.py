@@ -5,7 +5,6 @@ from __future__ import annotations
 import csv
 import io
 import json
-import re
 from collections.abc import Callable, Sequence
 from datetime import date, datetime, timezone
 from pathlib import Path
@@ -22,10 +21,12 @@ DB_OPTION = click.option("--db", "db_url", metavar="URL",
                          help="Archive database: sqlite:///FILE, postgresql+psycopg://USER@HOST/DB "
                               "or a file path (default: $REPORTGEN_DB, else "
                               "reportgen-archive.sqlite here).")
+COMPARE_OUTPUTS = ("compare.html", "compare.pdf", "compare.csv", "compare.json")
+PDF_OPTION = click.option("--no-pdf", is_flag=True,
+                          help="Write the HTML without its PDF (faster for large campaigns).")
 THRESHOLD_HELP = ("Flag a result as degraded when its loss rose by more than this [dB] "
                   "(default 0.6: twice the uncertainty of the difference of two tests each "
                   "uncertain by ±0.2 dB).")
-AGE = re.compile(r"^\s*(\d+)\s*([ymd])\s*$")
 
 
 def _out() -> Console:
@@ -180,11 +181,12 @@ def history(site: str, link_id: str, db_url: str | None, threshold_db: float, fm
 
 def parse_age(text: str, today: date) -> date:
     """'5y', '18m' or '90d' before TODAY."""
-    match = AGE.match(text)
-    if not match:
+    cleaned = text.strip().lower()
+    number, unit = cleaned[:-1].strip(), cleaned[-1:]
+    if unit not in ("y", "m", "d") or not number.isascii() or not number.isdigit():
         raise click.BadParameter(f"expected a number and y, m or d, e.g. 5y, 18m, 90d "
                                  f"(got {text!r})")
-    amount, unit = int(match.group(1)), match.group(2)
+    amount = int(number)
     if unit == "d":
         return date.fromordinal(today.toordinal() - amount)
     months = today.year * 12 + today.month - 1 - (amount * 12 if unit == "y" else amount)
@@ -230,9 +232,11 @@ def due(db_url: str | None, age: str, as_of: datetime | None, fmt: str) -> None:
               help="Age after which a link is listed as due for re-test.")
 @AS_OF
 @_threshold()
+@PDF_OPTION
 def report(db_url: str | None, output: Path, age: str, as_of: datetime | None,
-           threshold_db: float) -> None:
-    """Write an estate overview (estate.html): sites, verdicts, capability, due, changes."""
+           threshold_db: float, no_pdf: bool) -> None:
+    """Write an estate overview (estate.html, estate.pdf): sites, verdicts, capability, due
+    re-tests, largest changes."""
     from reportgen.archive import html, store
     from reportgen.archive.compare import compare_link
     from reportgen.export.atomic import write_outputs
@@ -271,8 +275,23 @@ def report(db_url: str | None, output: Path, age: str, as_of: datetime | None,
         "due": [row for row in latest if (row["tested_last"] or "") < cutoff.isoformat()],
         "due_before": cutoff.isoformat(), "due_age": age, "changes": changes[:50],
         "threshold_db": threshold_db, "safety": SAFETY, "generator": f"reportgen {__version__}"})
-    write_outputs(output, {"estate.html": text.encode("utf-8")})
-    _out().print(f"Written to {output}: estate.html", markup=False)
+    outputs = {"estate.html": text.encode("utf-8")}
+    if not no_pdf:
+        outputs["estate.pdf"] = _pdf(text, "Fiber estate overview")
+    write_outputs(output, outputs, ours=("estate.html", "estate.pdf"))
+    _out().print(f"Written to {output}: {', '.join(outputs)}", markup=False)
+
+
+
+
+def _pdf(html_text: str, title: str) -> bytes:
+    """The HTML page as a PDF, through the report's PDF machinery (one part)."""
+    from reportgen import pipeline
+    from reportgen.pdf.engine import render_pdf
+    from reportgen.report.render import templates_dir
+
+    return render_pdf(lambda page_of, total: html_text, [], root=templates_dir(), title=title,
+                      created=pipeline.build_now(None), workers=1, xml_first=True)
 
 
 def _emit(rows: list[dict[str, Any]], fmt: str, columns: list[str], empty: str) -> None:
@@ -327,8 +346,10 @@ def load_campaign(path: Path):  # type: ignore[no-untyped-def]
 @click.option("-o", "--output", type=click.Path(path_type=Path),
               help="Output folder (default: ./compare).")
 @_threshold()
-def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: float) -> None:
-    """Compare two campaigns link by link: compare.html, compare.csv, compare.json.
+@PDF_OPTION
+def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: float,
+            no_pdf: bool) -> None:
+    """Compare two campaigns link by link: compare.html, compare.pdf, compare.csv, compare.json.
 
     BASELINE and RETEST are build output folders (summary.json + results.csv) or project
     folders (built in memory).
@@ -354,14 +375,17 @@ def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: flo
                                             and link["verdict_before"] != link["verdict_after"])],
         "safety": SAFETY, "generator": f"reportgen {__version__}"})
     out = output or Path("compare")
-    write_outputs(out, {"compare.html": text.encode("utf-8"),
-                        "compare.csv": comparison_csv_bytes(changes),
-                        "compare.json": comparison_json_bytes(document)})
+    outputs = {"compare.html": text.encode("utf-8")}
+    if not no_pdf:
+        outputs["compare.pdf"] = _pdf(text, "Campaign comparison")
+    outputs["compare.csv"] = comparison_csv_bytes(changes)
+    outputs["compare.json"] = comparison_json_bytes(document)
+    write_outputs(out, outputs, ours=COMPARE_OUTPUTS)
     totals = document["totals"]
     _out().print(f"{len(changes)} links: {totals['same']} same, {totals['changed']} changed, "
                  f"{totals['added']} added, {totals['removed']} removed; {totals['degraded']} "
-                 f"degraded by more than {threshold_db} dB. Written to {out}: compare.html, "
-                 "compare.csv, compare.json", markup=False)
+                 f"degraded by more than {threshold_db} dB. Written to {out}: "
+                 + ", ".join(outputs), markup=False)
 
 
 def _describe(campaign) -> str:  # type: ignore[no-untyped-def]

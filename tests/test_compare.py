@@ -61,11 +61,14 @@ def test_default_threshold_follows_its_stated_basis():
 
 def test_demo_compare_writes_the_binding_shape(tmp_path, capsys):
     out = tmp_path / "cmp"
+    out.mkdir()
+    (out / "summary.json").write_text("{}", encoding="utf-8")  # someone else's file stays
+    (out / "compare.pdf").write_text("stale", encoding="utf-8")  # an earlier run's PDF goes
     status = cli.main(["compare", str(REPO / "demo_project"), str(REPO / "demo_project_retest"),
-                       "-o", str(out)])
+                       "-o", str(out), "--no-pdf"])
     assert status == 0, capsys.readouterr().err
     assert sorted(p.name for p in out.iterdir()) == ["compare.csv", "compare.html",
-                                                     "compare.json"]
+                                                     "compare.json", "summary.json"]
     document = json.loads((out / "compare.json").read_text(encoding="utf-8"))
     assert document["format"] == 1
     links = {entry["link_id"]: entry for entry in document["links"]}
@@ -102,7 +105,8 @@ def test_build_folders_and_hostile_ids_compare_as_text(tmp_path, capsys):
     after = write_build_output(tmp_path / "b", [(hostile, "pass", "OM4", [],
                                                  [(1, 850, "ab", 1.05, "2031-01-05T10:00",
                                                    "pass")])])
-    assert cli.main(["compare", str(before), str(after), "-o", str(tmp_path / "o")]) == 0
+    assert cli.main(["compare", str(before), str(after), "-o", str(tmp_path / "o"),
+                     "--no-pdf"]) == 0
     document = json.loads((tmp_path / "o" / "compare.json").read_text(encoding="utf-8"))
     assert document["links"][0]["link_id"] == hostile
     assert document["links"][0]["worst_change_db"] == 0.05  # 1.05 - 1.00, hand arithmetic
@@ -113,7 +117,7 @@ def test_build_folders_and_hostile_ids_compare_as_text(tmp_path, capsys):
 def test_missing_folder_is_one_clear_error_and_nothing_written(tmp_path, capsys):
     out = tmp_path / "out"
     status = cli.main(["compare", str(tmp_path / "nope"), str(REPO / "demo_project"),
-                       "-o", str(out)])
+                       "-o", str(out), "--no-pdf"])
     err = capsys.readouterr().err
     assert status == 2
     assert "nope" in err and "expected a build output folder" in err
@@ -126,7 +130,21 @@ def test_damaged_results_csv_names_file_line_and_field(tmp_path, capsys):
                                                     "pass")])])
     text = (folder / "results.csv").read_text(encoding="utf-8").replace(",1.00,", ",1.0x,")
     (folder / "results.csv").write_text(text, encoding="utf-8")
-    assert cli.main(["compare", str(folder), str(folder), "-o", str(tmp_path / "o")]) == 2
+    assert cli.main(["compare", str(folder), str(folder), "-o", str(tmp_path / "o"),
+                     "--no-pdf"]) == 2
     err = capsys.readouterr().err
     assert "results.csv, line 2, loss_db: expected a number (got '1.0x')" in err
     assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.slow
+def test_compare_pdf_is_written_and_reads_as_the_html(tmp_path, capsys):
+    from pypdf import PdfReader
+
+    out = tmp_path / "cmp"
+    status = cli.main(["compare", str(REPO / "demo_project"), str(REPO / "demo_project_retest"),
+                       "-o", str(out)])
+    assert status == 0, capsys.readouterr().err
+    text = " ".join(page.extract_text() for page in PdfReader(out / "compare.pdf").pages)
+    # A-BB-02 strand 3, 850 nm ab: 1.02 -> 1.78 dB, +0.76 (see the test above)
+    assert "A-BB-02" in text and "+0.76" in text and "Never look into a fiber end" in text
