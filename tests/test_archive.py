@@ -152,6 +152,11 @@ def test_hostile_link_ids_and_site_names_are_stored_as_text(archive_url, tmp_pat
     entries = _json(capsys, "archive", "history", site, link, "--db", archive_url,
                     "--format", "json")["campaigns"]
     assert len(entries) == 1
+    status, _, err = run(capsys, "archive", "report", "-o", tmp_path / "estate", "--no-pdf",
+                         "--db", archive_url)
+    assert status == 0, err
+    html = (tmp_path / "estate" / "estate.html").read_text(encoding="utf-8")
+    assert "Site&#39;); DELETE FROM sites;--" in html
 
 
 def test_upgrade_creates_and_reports_the_schema_version(archive_url, capsys):
@@ -170,6 +175,30 @@ def test_upgrade_creates_and_reports_the_schema_version(archive_url, capsys):
     assert version == str(schema.SCHEMA_VERSION)
     assert {"sites", "campaigns", "links", "results", "application_verdicts", "power_budgets",
             "instruments", "files"} <= tables
+
+
+def test_older_schema_asks_for_upgrade_then_works(archive_url, campaigns, capsys):
+    run(capsys, "archive", "add", campaigns[0], "--db", archive_url)
+    engine = sa.create_engine(archive_url, poolclass=sa.pool.NullPool)
+    with engine.begin() as connection:
+        connection.execute(sa.text("UPDATE reportgen_archive SET value = '0' "
+                                   "WHERE key = 'schema_version'"))
+    engine.dispose()
+    status, _, err = run(capsys, "archive", "add", campaigns[1], "--db", archive_url)
+    assert status == 2 and "run 'reportgen archive upgrade' first" in err
+    status, out, _ = run(capsys, "archive", "upgrade", "--db", archive_url)
+    assert status == 0 and f"schema version 0 -> {schema.SCHEMA_VERSION}" in out
+    status, _, err = run(capsys, "archive", "add", campaigns[1], "--db", archive_url)
+    assert status == 0, err
+    assert len(_json(capsys, "archive", "list", "--db", archive_url, "--format", "json")) == 2
+
+
+def test_a_project_folder_is_not_added_as_a_build(tmp_path, capsys):
+    status, _, err = run(capsys, "archive", "add", REPO / "demo_project", "--db",
+                         tmp_path / "a.sqlite")
+    assert status == 2
+    assert "this is a project folder: build it first" in err
+    assert not (tmp_path / "a.sqlite").exists()
 
 
 def test_newer_schema_is_refused_and_left_alone(archive_url, campaigns, capsys):

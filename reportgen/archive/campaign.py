@@ -92,9 +92,11 @@ def read_build_folder(folder: Path) -> Campaign:
                              f"results.csv), found no such folder")
     missing = [name for name in (SUMMARY, RESULTS) if not (folder / name).is_file()]
     if missing:
+        hint = (" (this is a project folder: build it first, 'reportgen build PROJECT -o DIR "
+                "--data-only', and give DIR)" if (folder / "project.yaml").is_file() else "")
         raise ReportgenError(f"{folder}: expected a build output folder holding summary.json and "
-                             f"results.csv (written by 'reportgen build'), or a project folder "
-                             f"holding project.yaml; missing: {', '.join(missing)}")
+                             f"results.csv (written by 'reportgen build'); missing: "
+                             f"{', '.join(missing)}{hint}")
     data = {}
     for name in (SUMMARY, RESULTS):
         path = folder / name
