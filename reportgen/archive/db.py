@@ -98,6 +98,7 @@ class Archive:
         """One transaction; for writes it holds the write lock. Errors become ArchiveError."""
         try:
             with self.engine.connect() as connection:
+                connection.execution_options(reportgen_write=write)
                 with connection.begin():
                     if write and self.backend == "postgresql":
                         connection.execute(sa.select(sa.func.pg_advisory_xact_lock(PG_LOCK_KEY)))
@@ -186,4 +187,7 @@ def _sqlite_connect(dbapi_connection, _record) -> None:  # type: ignore[no-untyp
 
 
 def _sqlite_begin(connection: sa.Connection) -> None:
-    connection.exec_driver_sql("BEGIN IMMEDIATE")
+    # writes take SQLite's write lock at once (two adds queue up instead of failing later);
+    # reads start a plain transaction and do not wait for a running add
+    write = connection.get_execution_options().get("reportgen_write", True)
+    connection.exec_driver_sql("BEGIN IMMEDIATE" if write else "BEGIN")
