@@ -137,8 +137,8 @@ def pg_server(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-unty
                              capture_output=True, text=True, timeout=120)
     if started.returncode != 0:
         shutil.rmtree(folder, ignore_errors=True)
-        pytest.skip(f"PostgreSQL: {PG_ENV} is unset and no server could be started "
-                    f"({(started.stderr or started.stdout).strip().splitlines()[-1:]})")
+        why = ((started.stderr or started.stdout).strip().splitlines() or ["no reason given"])[-1]
+        pytest.skip(f"PostgreSQL: {PG_ENV} is unset and no server could be started ({why})")
     try:
         yield f"postgresql+psycopg://postgres@127.0.0.1:{port}/postgres"
     finally:
