@@ -79,6 +79,7 @@ class ResultVerdict(StrEnum):
     FAIL = "fail"
     INVALID = "invalid"
     SUPERSEDED = "superseded"
+    NOT_JUDGED = "not-judged"  # no cabling limit at this wavelength (counted for applications)
 
 
 class LinkVerdict(StrEnum):
@@ -91,10 +92,11 @@ class ResultFlag(StrEnum):
     """Flags on a result row (``flags`` column of results.csv)."""
 
     WITHIN_UNCERTAINTY = "within-uncertainty"  # |margin| <= uncertainty_db
-    NEGATIVE_LOSS = "negative-loss"  # loss below -uncertainty_db: bad reference
+    NEGATIVE_LOSS = "negative-loss"  # loss below 0; below -uncertainty_db also invalid
     RETEST = "retest"  # judged row that superseded earlier rows of the same key
     CALIBRATION_OVERDUE = "calibration-overdue"  # an instrument used after its due date
     NOT_REQUIRED = "not-required"  # wavelength judged but not in the required set
+    NO_CABLING_LIMIT = "no-cabling-limit"  # the limit set has no attenuation here: not judged
 
 
 # Default required wavelengths per fiber category [nm] (common practice: the two
@@ -161,7 +163,7 @@ class Transceiver:
     wavelength_nm: int
     tx_min_dbm: float
     tx_max_dbm: float
-    rx_sensitivity_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
+    rx_min_average_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
     rx_overload_dbm: float
     description: str | None = None
 
@@ -210,7 +212,9 @@ class Link:
 #   wavelength_nm (int), direction (str: "ab"/"ba"), loss_db (float),
 #   tested_at (pandas Timestamp, naive; tz-aware inputs converted to UTC),
 #   tested_at_text (str, as written), instrument (tuple of instrument ids, () when none),
-#   technician (str or ""), measured_length_m (float or NaN), note (str or "")
+#   technician (str or ""), measured_length_m (float or NaN), note (str or ""),
+#   source (str: "file:line", for a spreadsheet row "file[sheet]:row"; imported rows name the
+#   original file and its row or line)
 RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "source_file",
     "source_line",
@@ -225,7 +229,35 @@ RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "technician",
     "measured_length_m",
     "note",
+    "source",
 )
+
+
+@dataclass(frozen=True)
+class InputFile:
+    """A file of the project folder the inputs stage read, as the report's appendix lists it."""
+
+    path: str  # project-relative, "/" separators
+    size_bytes: int
+    sha256: str  # hex digest of the bytes read
+    results: int = 0  # result rows read from it
+    links: int = 0  # links read from it
+
+
+@dataclass(frozen=True)
+class ImportSource:
+    """One file read through an ``imports:`` entry of project.yaml (what ``reportgen import`` shows)."""
+
+    entry: int  # 1-based position in imports:
+    profile: str  # project-relative path of the profile
+    kind: str  # "results" or "links"
+    file: str  # project-relative path of the file read
+    sheet: str | None  # the sheet read, for a spreadsheet
+    rows_read: int  # data rows of the file (blank rows not counted)
+    rows_made: int  # rows they became (a wide layout makes several per row)
+    mapping: tuple[tuple[str, str], ...]  # (our field, their header or "constant: value"), in field order
+    unmapped: tuple[str, ...]  # headers of the file no mapping uses, in file order
+    link_ids: tuple[str, ...] = ()  # links made (kind "links")
 
 
 @dataclass(frozen=True)
@@ -247,6 +279,8 @@ class Project:
     # Every file of the project folder the inputs stage read, as project-relative paths
     # with "/" separators, sorted: project.yaml, links.csv, results, a limit file, the logo.
     files_read: tuple[str, ...] = ()
+    imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
+    input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
 
     def link(self, link_id: str) -> Link:
@@ -322,7 +356,7 @@ class FiberLimits:
     """One row of an application entry: the limits on some fiber types."""
 
     fiber_types: tuple[FiberType, ...]
-    max_length_m: float
+    max_length_m: float | None  # None: the standard sets no reach (not checked)
     max_loss_db: float
     min_loss_db: float | None
     status: str  # "verified, secondary" / "derived" / "from memory", per value where mixed

@@ -90,6 +90,17 @@ def check_out_dir(project_dir: Path, out_dir: Path) -> None:
         raise ReportgenError(f"output folder {out_dir} exists and is not a folder")
 
 
+def check_out_dir_holds_no_input(project: Project, out_dir: Path) -> None:
+    """Refuse an output folder holding a file the project reads (an imported export, say): the
+    next run could read its outputs back, or overwrite evidence."""
+    out_real = Path(out_dir).resolve()
+    for shown in project.files_read:
+        if out_real in (project.root / shown).resolve().parents:
+            raise ReportgenError(
+                f"output folder {out_dir} holds {shown}, a file the project reads; choose another "
+                "with -o (default: PROJECT/report)")
+
+
 def build_now(now: datetime | None) -> datetime:
     """The report's clock: given, else SOURCE_DATE_EPOCH (reproducible builds), else now."""
     if now is not None:
@@ -114,6 +125,7 @@ def build(
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
     project = validate_only(project_dir)
+    check_out_dir_holds_no_input(project, out_dir)
     outcome = compute(project)
     now = build_now(now)
 
@@ -132,6 +144,37 @@ def build(
     log.info("Step 5: writing %s", ", ".join(outputs))
     write_outputs(out_dir, outputs)
     return BuildResult(out_dir, outcome, tuple(outputs))
+
+
+def write_imported(project: Project, out_dir: Path) -> tuple[str, ...]:
+    """``reportgen import --write``: the imported links as links.csv and each imported results
+    file as results/NAME.csv in ``out_dir`` (each file atomically; other files left alone)."""
+    from reportgen.export.atomic import write_files
+    from reportgen.export.contract_csv import links_csv_bytes, results_rows_csv_bytes
+
+    out_dir = Path(out_dir)
+    links = {link.link_id: link for link in project.links}
+    imported_links = [links[link_id] for source in project.imports if source.kind == "links"
+                      for link_id in source.link_ids]
+    results: dict[str, bytes] = {}
+    for source in project.imports:
+        if source.kind != "results":
+            continue
+        prefix = f"{source.file}[{source.sheet}]:" if source.sheet is not None else f"{source.file}:"
+        rows = project.results[project.results["source"].str.startswith(prefix)]
+        stem = Path(source.file).stem + (f"-{source.sheet}" if source.sheet is not None else "")
+        name = f"{stem}.csv"
+        if name in results:
+            name = f"{stem}-{source.entry}.csv"
+        results[name] = results_rows_csv_bytes(rows)
+    written = []
+    if imported_links:
+        write_files(out_dir, {"links.csv": links_csv_bytes(imported_links)})
+        written.append("links.csv")
+    if results:
+        write_files(out_dir / "results", results)
+        written += [f"results/{name}" for name in results]
+    return tuple(written)
 
 
 def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:

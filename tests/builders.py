@@ -69,6 +69,8 @@ def make_results(rows: list[dict]) -> pd.DataFrame:
             "technician": row.get("technician", ""),
             "measured_length_m": row.get("measured_length_m", float("nan")),
             "note": row.get("note", ""),
+            "source": row.get("source", f"{row.get('source_file', 'results/r.csv')}:"
+                                        f"{row.get('source_line', index + 2)}"),
         })
     frame = pd.DataFrame(full, columns=list(RESULT_COLUMNS))
     return frame.astype({"strand": "int64", "wavelength_nm": "int64", "loss_db": "float64",

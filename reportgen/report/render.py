@@ -178,6 +178,7 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
     )
     env.filters.update(
         db=messages.format_db,
+        status=messages.customer_status,
         dbm=messages.format_dbm,
         km=messages.format_km,
         length=functools.partial(messages.format_length, unit=length_unit),
@@ -232,6 +233,8 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
                 ("appx-limits", "limits_heading", 2)]
     if apps is not None:
         entries.append(("appx-applications", "appx_apps_heading", 2))
+    if view.input_files:
+        entries.append(("appx-files", "files_heading", 2))
     entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
 
