@@ -240,8 +240,9 @@ def write_build_output(folder, links, *, site="Test site (invented)", title="Tes
     for link_id, _, _, _, rows in links:
         for strand, wavelength, direction, loss, tested_at, verdict in rows:
             line += 1
-            writer.writerow([neutralise_cell(link_id), strand, wavelength, direction,
-                             f"{loss:.2f}", tested_at, "", "", verdict, "", "T. Tester",
-                             "SRC-1;OPM-1", "", "", "results/day1.csv", line])
+            cells = [neutralise_cell(link_id), strand, wavelength, direction, f"{loss:.2f}",
+                     tested_at, "", "", verdict, "", "T. Tester", "SRC-1;OPM-1", "", "",
+                     "results/day1.csv", line]
+            writer.writerow(cells + [""] * (len(RESULTS_COLUMNS) - len(cells)))
     (folder / "results.csv").write_text(buffer.getvalue(), encoding="utf-8")
     return folder
