@@ -306,8 +306,9 @@ def _emit(rows: list[dict[str, Any]], fmt: str, columns: list[str], empty: str) 
         writer = csv.writer(buffer, lineterminator="\n")
         writer.writerow(columns)
         for row in rows:
-            writer.writerow(["" if row.get(k) is None else neutralise_cell(str(row.get(k)))
-                             for k in columns])
+            # text that a spreadsheet would run is neutralised; numbers are written as numbers
+            writer.writerow(["" if row.get(k) is None else neutralise_cell(row[k])
+                             if isinstance(row[k], str) else row[k] for k in columns])
         click.echo(buffer.getvalue(), nl=False)
         return
     if not rows:

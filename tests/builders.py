@@ -222,7 +222,9 @@ def write_build_output(folder, links, *, site="Test site (invented)", title="Tes
 
     folder = _Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    entries = [{"link_id": link_id, "verdict": verdict, "worst_margin_db": None, "missing": [],
+    # a failing link gets a worst margin of -0.5 dB (invented), the others none
+    entries = [{"link_id": link_id, "verdict": verdict,
+                "worst_margin_db": -0.5 if verdict == "fail" else None, "missing": [],
                 "fiber_type": fiber, "length_m": 100.0, "applications": [],
                 "capable": list(capable)}
                for link_id, verdict, fiber, capable, _ in links]

@@ -94,6 +94,8 @@ def test_links_latest_state_and_filters(archive_url, campaigns, capsys):
         ["N-2", "S-1"]
     status, out, _ = run(capsys, "archive", "links", "--db", archive_url, "--format", "csv")
     assert status == 0 and out.splitlines()[0].startswith("site,link_id,fiber_type")
+    # S-1 (worst margin -0.5 dB in tests/builders.py): numbers stay numbers, no apostrophe
+    assert ",OM3,100.0,fail,-0.5," in out
 
 
 def test_history_oldest_first_with_the_change(archive_url, campaigns, capsys):
