@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 from datetime import date
 from enum import StrEnum
 from pathlib import Path
-from typing import Final
+from typing import Any, Final
 
 import pandas as pd
 
@@ -148,6 +148,7 @@ class Testing:
         default_factory=lambda: dict(DEFAULT_WAVELENGTHS_NM)
     )
     attenuators_db: tuple[float, ...] = DEFAULT_ATTENUATORS_DB
+    otdr: OtdrSettings | None = None  # testing.otdr; None: defaults (docs §12)
 
 
 @dataclass(frozen=True)
@@ -282,6 +283,7 @@ class Project:
     imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
     input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
+    otdr: tuple[OtdrTrace, ...] = field(default=(), compare=False, repr=False)  # otdr/ traces
 
     def link(self, link_id: str) -> Link:
         for link in self.links:
@@ -399,3 +401,71 @@ class ApplicationTable:
 
     def __contains__(self, application_id: object) -> bool:
         return application_id in self.ids
+
+
+# ------------------------------------------------------------ OTDR (tier 2)
+
+
+class OtdrEventKind(StrEnum):
+    LAUNCH = "launch"
+    CONNECTOR = "connector"
+    SPLICE = "splice"
+    BEND = "bend"
+    REFLECTIVE = "reflective"
+    END = "end"
+    OTHER = "other"
+
+
+class Polish(StrEnum):
+    """Connector end-face polish, which sets the reflectance expected of a connection."""
+
+    UPC = "upc"
+    APC = "apc"
+
+
+@dataclass(frozen=True)
+class OtdrSettings:
+    """``testing.otdr`` of project.yaml; None means "use the default" (docs §12)."""
+
+    launch_cord_m: float = 0.0
+    receive_cord_m: float = 0.0
+    connection_db: float | None = None  # tighter than the limit set's connection allowance
+    splice_db: float | None = None
+    polish: Polish = Polish.UPC
+    reflectance_db: float | None = None  # limit for the polish; default by polish and fiber
+    pair_tolerance_m: float | None = None  # fixed pairing tolerance instead of the formula
+    lsa_threshold_db: float = 0.10
+    length_tolerance_pct: float = 3.0
+
+
+@dataclass(frozen=True)
+class OtdrEvent:
+    """One event of one trace, position from where that trace starts (cords included) [m]."""
+
+    position_m: float
+    kind: OtdrEventKind
+    loss_db: float
+    reflectance_db: float | None = None
+
+
+@dataclass(frozen=True)
+class OtdrTrace:
+    """One OTDR measurement: a .sor file, or the rows of an event table of one key."""
+
+    source_file: str
+    source_line: int | None  # first row of an event table; None for a trace file
+    link_id: str
+    strand: int
+    wavelength_nm: int
+    direction: Direction
+    events: tuple[OtdrEvent, ...]
+    pulse_ns: float | None = None
+    group_index: float | None = None
+    sample_spacing_m: float | None = None  # distance between two trace points
+    samples_db: Any = field(default=None, compare=False, repr=False)  # numpy array [dB] or None
+    total_loss_db: float | None = None
+    tested_at: str = ""
+    instrument: str = ""
+    technician: str = ""
+    launch_cord_m: float | None = None  # per-trace override of testing.otdr
+    receive_cord_m: float | None = None

@@ -19,6 +19,7 @@ from reportgen.inputs.apptable import check_application_ids, load_applications
 from reportgen.inputs import imports as importing
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.otdr import load_otdr
 from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_yaml, shown_path
 from reportgen.model import (
     Component,
@@ -138,11 +139,15 @@ def load_project(project_dir: Path) -> Project:
                 frame["source"] = importing.source_texts(shown, imported.sheet, imported.numbers)
                 frames.append(frame)
 
+    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids)
+    problems += otdr_problems
+
     if problems:
         raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
     results = pd.concat(frames, ignore_index=True) if frames else empty_results()
-    files_read = _files_read(root, settings, [*files, *profiles_read, *(source.file for source in sources)])
+    files_read = _files_read(root, settings, [*files, *profiles_read, *(source.file for source in sources),
+                                              *otdr_files])
     return Project(
         root=root,
         info=settings.info,
@@ -160,6 +165,7 @@ def load_project(project_dir: Path) -> Project:
         input_files=_input_files(root, files_read, results, links, sources),
         imports=tuple(sorted(sources, key=lambda source: source.entry)),
         applications=applications,
+        otdr=otdr_traces,
     )
 
 

@@ -460,6 +460,38 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "safety_heading": "Safety",
     "glossary_heading": "Terms used",
     "footer_left": "{title}",
+    # OTDR results on a link sheet
+    "otdr_heading": "OTDR: events along the fiber",
+    "otdr_strand": "Strand {strand}, {wavelength} nm",
+    "otdr_length": "Fiber length measured {measured}, documented {documented} (allowed difference {tolerance}).",
+    "otdr_length_missing": "The trace shows no fiber end: length not measured.",
+    "otdr_total": "End-to-end loss by the instrument: {value} dB.",
+    "otdr_files": "Source: {files}",
+    "otdr_caption": "Both directions on one distance axis from end A (from B mirrored); each vertical stroke spans the lowest and highest sample of its pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails.",
+    "col_event_no": "No.",
+    "col_position": "Position",
+    "col_event": "Event",
+    "col_loss_ab": "Loss A→B",
+    "col_loss_ba": "Loss B→A",
+    "col_loss_avg": "Average",
+    "col_lsa": "Re-measured (LSA)",
+    "col_reflectance": "Reflectance",
+    "col_allowance_short": "Allowed",
+    "otdr_kind_launch": "launch",
+    "otdr_kind_connector": "connection",
+    "otdr_kind_splice": "splice",
+    "otdr_kind_bend": "bend",
+    "otdr_kind_reflective": "reflective event",
+    "otdr_kind_end": "fiber end",
+    "otdr_kind_other": "other",
+    "otdr_flag_negative-average": "negative average",
+    "otdr_flag_one-way": "seen from one end only",
+    "otdr_flag_in-cord": "inside a test cord",
+    "otdr_flag_lsa-differs": "trace disagrees with the instrument's table",
+    "otdr_finding_length-differs": "The measured fiber length differs from the documented length by more than allowed.",
+    "otdr_finding_connection-count": "The number of connections found differs from the link's description.",
+    "otdr_finding_splice-count": "The number of splices found differs from the link's description.",
+    "otdr_finding_il-differs": "The OTDR end-to-end loss differs from the insertion-loss result ({value} dB) by more than 0.5 dB.",
 })
 
 GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
@@ -473,6 +505,9 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("splice", "A permanent joint of two fibers, fused or mechanical."),
     ("strand", "One fiber of a link, numbered from 1."),
     ("OTDR", "Optical time-domain reflectometer: shows loss and reflections along a fiber from one end."),
+    ("reflectance", "The share of light a connection sends back, in dB: the more negative, the better."),
+    ("bidirectional average", "The mean of an event's losses measured from both ends; it cancels the apparent gain or extra loss where two fibers of slightly different backscatter meet."),
+    ("LSA", "Least-squares approximation: straight lines fitted to the trace before and after an event; the step between them is the event's loss."),
     ("OM1\u2013OM5, OS1, OS1a, OS2", "Multimode (OM) and single-mode (OS) fiber categories of ISO/IEC 11801."),
     ("within uncertainty", "A result closer to its limit than the stated measurement uncertainty."),
     ("superseded", "An earlier test of the same strand, wavelength and direction, replaced by a later one."),
@@ -558,6 +593,8 @@ def format_length(length_m: float, unit: str = "m") -> str:
 
     value = m_to_ft(length_m) if unit == "ft" else length_m
     text = f"{value:.0f}" if abs(value - round(value)) < 0.05 else f"{value:.1f}"
+    if text.startswith("-") and float(text) == 0:  # never "-0 m"
+        text = text[1:]
     return f"{text}\u00a0{unit}"
 
 

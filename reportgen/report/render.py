@@ -44,8 +44,10 @@ from reportgen.report import messages
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
+from reportgen.report.otdr_figure import trace_svg
+from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view
+from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -259,6 +261,16 @@ def power_diagrams(project: Project, judgement: Judgement, view: ReportView,
     return out
 
 
+def otdr_figures(project: Project, view: ReportView, otdr: OtdrAssessment | None) -> dict[str, Markup]:
+    """The OTDR trace figure (inline SVG) of every strand and wavelength, by figure key."""
+    if otdr is None:
+        return {}
+    anchors = {link.link_id: link.anchor for link in view.links}
+    settings = project.testing.otdr
+    return {otdr_figure_key(anchors[s.link_id], s.strand, s.wavelength_nm): Markup(trace_svg(s, settings))
+            for s in otdr.strands}
+
+
 class _LossDiagrams(Mapping[str, Markup]):
     """The loss diagram (inline SVG) of each link by anchor, drawn when first asked for.
 
@@ -288,7 +300,8 @@ class _Renderer:
     """Renders the parts of one report from one view model."""
 
     def __init__(self, env: jinja2.Environment, view: ReportView,
-                 power_svgs: Mapping[str, Markup] | None = None) -> None:
+                 power_svgs: Mapping[str, Markup] | None = None,
+                 otdr_svgs: Mapping[str, Markup] | None = None) -> None:
         self.env = env
         self.view = view
         self.template = env.get_template(TEMPLATE_MAIN)
@@ -300,6 +313,7 @@ class _Renderer:
                        "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
             "toc": toc_entries(view),
             "power_diagrams": dict(power_svgs or {}),
+            "otdr_figures": dict(otdr_svgs or {}),
         }
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
@@ -322,6 +336,7 @@ def build_report(
     now: datetime,
     version: str,
     applications: ProjectApplications | None = None,
+    otdr: OtdrAssessment | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
 
@@ -329,9 +344,10 @@ def build_report(
     ``applications`` (applications.assess_project) adds the applications and power
     budget sections.
     """
-    view = build_view(project, judgement, now=now, version=version, assessed=applications)
+    view = build_view(project, judgement, now=now, version=version, assessed=applications, otdr=otdr)
     env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications))
+    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications),
+                         otdr_figures(project, view, otdr))
     makers: list[Callable[[], str]] = [
         functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
         for index, chunk in enumerate(chunk_links(view.links))]

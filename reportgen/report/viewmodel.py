@@ -9,6 +9,7 @@ catalogue :mod:`reportgen.report.messages`.
 from __future__ import annotations
 
 import base64
+import dataclasses
 import math
 import re
 from collections import Counter
@@ -26,6 +27,7 @@ from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
 from reportgen.inputs.limits import describe_rows, is_unconfirmed, split_citation, status_at
 from reportgen.model import (Instrument, LimitSet, Link, LinkVerdict, Logo, Project,
                              ResultVerdict)
+from reportgen.engine.otdr import OtdrAssessment, PairedEvent
 from reportgen.engine.power import PowerBudget
 from reportgen.report import messages
 
@@ -117,10 +119,49 @@ class LinkView:
     set_aside: tuple[ResultView, ...]  # superseded and invalid rows
     missing: tuple[MissingView, ...]
     failing: tuple[ResultView, ...]  # judged results that fail
+    otdr: tuple[OtdrStrandView, ...] = ()  # OTDR results per strand and wavelength
 
     @property
     def needs_action(self) -> bool:
         return self.verdict != LinkVerdict.PASS.value
+
+
+@dataclass(frozen=True)
+class OtdrStrandView:
+    """One strand at one wavelength measured by OTDR (engine.otdr.StrandOtdr, for the sheet)."""
+
+    figure_key: str  # key of its figure in the renderer's ``otdr_figures``
+    strand: int
+    wavelength_nm: int
+    verdict: str  # "pass" or "fail"
+    length_m: float | None
+    documented_length_m: float
+    length_tolerance_m: float
+    end_to_end_loss_db: float | None
+    insertion_loss_db: float | None
+    pair_tolerance_m: float
+    findings: tuple[str, ...]
+    files: tuple[str, ...]
+    events: tuple[PairedEvent, ...]  # numbered from 1 in the figure and the table
+
+
+def otdr_figure_key(anchor: str, strand: int, wavelength_nm: int) -> str:
+    return f"{anchor}-s{strand}-{wavelength_nm}"
+
+
+def _with_otdr(links: tuple[LinkView, ...], otdr: OtdrAssessment | None) -> tuple[LinkView, ...]:
+    if otdr is None or not otdr.strands:
+        return links
+    out = []
+    for view in links:
+        strands = tuple(
+            OtdrStrandView(otdr_figure_key(view.anchor, s.strand, s.wavelength_nm), s.strand, s.wavelength_nm,
+                           s.verdict, s.length_m, s.documented_length_m, s.length_tolerance_m,
+                           s.end_to_end_loss_db, s.insertion_loss_db, s.pair_tolerance_m, s.findings,
+                           tuple(t.source_file for t in s.traces), s.events)
+            for s in otdr.for_link(view.link_id))
+        out.append(dataclasses.replace(view, otdr=strands) if strands else view)
+    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -546,7 +587,8 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
 
 
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
-               assessed: ProjectApplications | None = None) -> ReportView:
+               assessed: ProjectApplications | None = None,
+               otdr: OtdrAssessment | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
 
     ``assessed`` (applications.assess_project) adds the applications and power budgets.
@@ -560,6 +602,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
                                   anchors[link.link_id],
                                   rows_by_link.get(link.link_id, []))
                   for link in project.links)
+    links = _with_otdr(links, otdr)
     needs_action = (tuple(v for v in links if v.verdict == LinkVerdict.FAIL.value)
                     + tuple(v for v in links if v.verdict == LinkVerdict.INCOMPLETE.value))
     tested = frame["tested_at"].dropna() if not frame.empty else pd.Series([], dtype=object)
