@@ -1,8 +1,8 @@
 """Command line: parse, call the pipeline, map outcomes to exit status.
 
-Exit status: 0 done (``check``: every link passes), 1 (``check`` only) some link
-fails or is incomplete, 2 bad input or any other error — with the message on
-standard error and nothing written.
+Exit status: 0 done (``check``: every link passes, no error finding), 1 (``check``
+only) some link fails or is incomplete or an audit finding is an error, 2 bad input
+or any other error — with the message on standard error and nothing written.
 """
 from __future__ import annotations
 
@@ -32,8 +32,8 @@ Examples:
   reportgen applications                  list the application table
   reportgen import demo_project           show what imports: entries read
 
-Exit status: 0 done, 1 (check) a link fails or is incomplete,
-2 bad input or any other error (nothing is written).
+Exit status: 0 done, 1 (check) a link fails or is incomplete or an audit
+finding is an error, 2 bad input or any other error (nothing is written).
 
 -v and --debug go before or after the command.
 """
@@ -121,21 +121,23 @@ def cli(ctx: click.Context) -> None:
 PROJECT = click.argument("project", type=click.Path(path_type=Path))
 
 
-@cli.command(epilog="Exit status: 0 every link passes, 1 some link fails or is incomplete, "
+@cli.command(epilog="Exit status: 0 every link passes and no audit finding is an error, "
+                    "1 some link fails or is incomplete or an audit finding is an error, "
                     "2 bad input.")
 @PROJECT
 @click.option("--all", "show_all", is_flag=True,
-              help="List every link, also in large projects (default: above 100 links only "
-                   "the links that fail or are incomplete).")
+              help="List every link and audit finding, also in large projects (default: above "
+                   "100 links only the links that fail or are incomplete; above 100 findings "
+                   "only the errors).")
 def check(project: Path, show_all: bool) -> None:
-    """Validate and judge PROJECT, print a table of links; write nothing."""
+    """Validate and judge PROJECT, print a table of links and the audit findings; write nothing."""
     from reportgen import pipeline
     from reportgen.report.terminal import print_check_table
 
     outcome = pipeline.compute(pipeline.validate_only(project))
     print_check_table(_stdout(), outcome, show_all=show_all)
     totals = outcome.judgement.totals
-    if totals["fail"] or totals["incomplete"]:
+    if totals["fail"] or totals["incomplete"] or outcome.findings.has_errors:
         raise _Failure(1)
 
 
@@ -154,9 +156,11 @@ def build(project: Path, output: Path | None, data_only: bool) -> None:
     with progress_bar(_stderr(), enabled=not data_only) as progress:
         result = pipeline.build(project, output, report=not data_only, progress=progress)
     totals = result.outcome.judgement.totals
+    counts = result.outcome.findings.counts
     _stdout().print(
         f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
-        f"{totals['incomplete']} incomplete. Written to {result.out_dir}: "
+        f"{totals['incomplete']} incomplete; audit findings: {counts['error']} error, "
+        f"{counts['warning']} warning, {counts['note']} note. Written to {result.out_dir}: "
         + ", ".join(result.files))
 
 

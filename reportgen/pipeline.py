@@ -24,8 +24,9 @@ from reportgen.export.summary import json_bytes
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
+from reportgen.engine.findings import Findings, find_all
 from reportgen.engine.otdr import OtdrAssessment, assess_otdr
-from reportgen.report.messages import PAGE_LABEL, reason_text
+from reportgen.report.messages import PAGE_LABEL, finding_text, reason_text
 from reportgen.model import Project
 from reportgen.inputs.project import load_project
 
@@ -44,6 +45,7 @@ class Outcome:
     project: Project
     judgement: Judgement
     applications: ProjectApplications  # applications and transceiver power budgets per link
+    findings: Findings  # audit findings
     otdr: OtdrAssessment | None = None  # OTDR events paired, averaged and judged
 
 
@@ -65,14 +67,18 @@ def validate_only(project_dir: Path) -> Project:
     return load_project(project_dir)
 
 
-def compute(project: Project) -> Outcome:
-    """Steps 2 and 3: judge every result, then assess applications and power budgets."""
+def compute(project: Project, now: datetime | None = None) -> Outcome:
+    """Steps 2 and 3: judge every result, assess applications and power budgets, then
+    audit the project (``now``: the build's clock, see :func:`build_now`)."""
     log.info("Step 2: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
-    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces",
-             len(project.otdr))
+    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces; "
+             "audit findings", len(project.otdr))
     applications = assess_project(project, judgement)
-    return Outcome(project, judgement, applications, assess_otdr(project, judgement))
+    clock = build_now(now)
+    today = (clock if clock.tzinfo is None else clock.astimezone(timezone.utc)).date()
+    findings = find_all(project, judgement, applications, today=today)
+    return Outcome(project, judgement, applications, findings, assess_otdr(project, judgement))
 
 
 def default_out_dir(project_dir: Path) -> Path:
@@ -130,8 +136,8 @@ def build(
     check_out_dir(project_dir, out_dir)
     project = validate_only(project_dir)
     check_out_dir_holds_no_input(project, out_dir)
-    outcome = compute(project)
     now = build_now(now)
+    outcome = compute(project, now)
 
     def data_outputs() -> dict[str, bytes]:
         return {
@@ -185,6 +191,7 @@ def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str,
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
                                     now=now, version=version, reason_text=reason_text,
+                                    findings=outcome.findings, finding_text=finding_text,
                                     otdr=outcome.otdr)
 
 
@@ -202,7 +209,7 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
     log.info("Step 4: rendering the report")
     document = render.build_report(outcome.project, outcome.judgement, now=now,
                                    version=version, applications=outcome.applications,
-                                   otdr=outcome.otdr)
+                                   findings=outcome.findings, otdr=outcome.otdr)
 
     def meanwhile() -> dict[str, bytes]:
         made = alongside() if alongside is not None else {}

@@ -8,6 +8,10 @@ from pathlib import Path
 import pytest
 
 GOLDEN_DIR = Path(__file__).resolve().parent / "golden"
+# Test data are dated in 2030 (invented). Builds and checks in the tests run on a clock set
+# after them (SOURCE_DATE_EPOCH, 2031-01-01T00:00Z), so the audit rule "result dated after
+# the report date" does not fire on every test project; a test may set its own clock.
+TEST_CLOCK_EPOCH = "1924992000"
 UPDATE_GOLDEN = "python -m pytest -q tests/test_golden.py --update-golden"
 
 
@@ -15,6 +19,12 @@ def pytest_addoption(parser: pytest.Parser) -> None:
     parser.addoption("--update-golden", action="store_true", default=False,
                      help="rewrite the golden files in tests/golden/ from the current output "
                           "instead of comparing with them; review the diff before committing")
+
+
+@pytest.fixture(autouse=True)
+def test_clock(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Every test runs with SOURCE_DATE_EPOCH = TEST_CLOCK_EPOCH unless it sets its own."""
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", TEST_CLOCK_EPOCH)
 
 
 @pytest.fixture

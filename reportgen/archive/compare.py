@@ -140,7 +140,7 @@ def comparison_json_bytes(document: dict[str, Any]) -> bytes:
 
 def comparison_json(changes: Sequence[LinkChange], threshold_db: float,
                     baseline: str, retest: str) -> dict[str, Any]:
-    """compare.json: format 1 (docs/project-format.md §13.1)."""
+    """compare.json: format 1 (docs/project-format.md §15.1)."""
     totals = {status: sum(1 for c in changes if c.status == status) for status in STATUSES}
     totals["degraded"] = sum(1 for c in changes if c.degraded)
     return {"format": 1, "baseline": baseline, "retest": retest, "threshold_db": threshold_db,

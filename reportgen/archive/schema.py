@@ -12,7 +12,7 @@ alter with SQLAlchemy core, in SQL both SQLite and PostgreSQL accept), raise
 the tables as defined in this module: before changing a table here, copy its version-1
 definition into ``_create_v1`` so old databases are upgraded from what they really hold.
 
-Findings (audit rule results) get their table when findings exist in the engine.
+Audit findings (docs/project-format.md §14) are not stored yet; their table is a later migration.
 """
 from __future__ import annotations
 
