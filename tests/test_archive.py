@@ -176,7 +176,7 @@ def test_upgrade_creates_and_reports_the_schema_version(archive_url, capsys):
     engine.dispose()
     assert version == str(schema.SCHEMA_VERSION)
     assert {"sites", "campaigns", "links", "results", "application_verdicts", "power_budgets",
-            "instruments", "files"} <= tables
+            "instruments", "files", "findings"} <= tables
 
 
 def test_older_schema_asks_for_upgrade_then_works(archive_url, campaigns, capsys):
@@ -193,6 +193,35 @@ def test_older_schema_asks_for_upgrade_then_works(archive_url, campaigns, capsys
     status, _, err = run(capsys, "archive", "add", campaigns[1], "--db", archive_url)
     assert status == 0, err
     assert len(_json(capsys, "archive", "list", "--db", archive_url, "--format", "json")) == 2
+
+
+def test_version_1_archive_is_upgraded_to_hold_findings(archive_url, tmp_path, capsys):
+    """Version 2 added the findings table: a version-1 archive is refused until upgraded."""
+    engine = sa.create_engine(archive_url, poolclass=sa.pool.NullPool)
+    with engine.begin() as connection:
+        schema.MIGRATIONS[1](connection)
+        connection.execute(schema.info.insert().values(key="schema_version", value="1"))
+    folder = write_build_output(tmp_path / "f", [("F-1", "pass", "OM4", [],
+                                                   _rows(1.0, "2026-03-01T09:00"))])
+    summary = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
+    summary["findings"] = [  # the shape of docs/project-format.md §10.2 "findings" (invented)
+        {"rule": "test-rule", "severity": "error", "link_id": "F-1", "message": "One.",
+         "evidence": [{"file": "links.csv", "line": 2}]},
+        {"rule": "test-rule", "severity": "note", "link_id": None, "message": "Two.",
+         "evidence": []}]
+    (folder / "summary.json").write_text(json.dumps(summary), encoding="utf-8")
+    status, _, err = run(capsys, "archive", "add", folder, "--db", archive_url)
+    assert status == 2 and "schema version 1 is older" in err
+    status, out, _ = run(capsys, "archive", "upgrade", "--db", archive_url)
+    assert status == 0 and "schema version 1 -> 2" in out
+    status, _, err = run(capsys, "archive", "add", folder, "--db", archive_url)
+    assert status == 0, err
+    with engine.connect() as connection:
+        rows = connection.execute(sa.text(
+            "SELECT f.severity, l.link_id FROM findings f LEFT JOIN links l ON l.id = f.link_ref "
+            "ORDER BY f.id")).all()
+    engine.dispose()
+    assert [tuple(row) for row in rows] == [("error", "F-1"), ("note", None)]
 
 
 def test_a_project_folder_is_not_added_as_a_build(tmp_path, capsys):

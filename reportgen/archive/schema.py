@@ -12,7 +12,7 @@ alter with SQLAlchemy core, in SQL both SQLite and PostgreSQL accept), raise
 the tables as defined in this module: before changing a table here, copy its version-1
 definition into ``_create_v1`` so old databases are upgraded from what they really hold.
 
-Audit findings (docs/project-format.md §14) are not stored yet; their table is a later migration.
+Version 2 added ``findings`` (summary.json's audit findings, docs/project-format.md §14).
 """
 from __future__ import annotations
 
@@ -21,7 +21,7 @@ from typing import Final
 
 import sqlalchemy as sa
 
-SCHEMA_VERSION: Final = 1
+SCHEMA_VERSION: Final = 2
 INFO_TABLE: Final = "reportgen_archive"
 
 metadata = sa.MetaData()
@@ -155,13 +155,34 @@ files = sa.Table(
     sa.Column("size_bytes", sa.Integer, nullable=False),
 )
 
+# Audit findings of a campaign (summary.json "findings"); link_ref is empty for a finding on
+# the whole project. evidence: the finding's evidence list as JSON text.
+findings = sa.Table(
+    "findings", metadata,
+    sa.Column("id", sa.Integer, primary_key=True),
+    sa.Column("campaign_id", sa.Integer, sa.ForeignKey("campaigns.id"), nullable=False),
+    sa.Column("link_ref", sa.Integer, sa.ForeignKey("links.id")),
+    sa.Column("rule", sa.Text, nullable=False),
+    sa.Column("severity", sa.Text, nullable=False),
+    sa.Column("message", sa.Text),
+    sa.Column("evidence", sa.Text),
+    sa.Index("ix_findings_rule", "rule", "severity"),
+)
+
 OUR_TABLES: Final = frozenset(metadata.tables)
+V1_TABLES: Final = (info, sites, campaigns, links, link_states, results, application_verdicts,
+                    power_budgets, instruments, files)
 
 
 def _create_v1(connection: sa.Connection) -> None:
-    metadata.create_all(connection)
+    metadata.create_all(connection, tables=list(V1_TABLES))
+
+
+def _add_findings_v2(connection: sa.Connection) -> None:
+    findings.create(connection, checkfirst=True)
 
 
 MIGRATIONS: Final[dict[int, Callable[[sa.Connection], None]]] = {
     1: _create_v1,
+    2: _add_findings_v2,
 }

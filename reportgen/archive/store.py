@@ -5,6 +5,7 @@ result's time; the later-added campaign on a tie).
 """
 from __future__ import annotations
 
+import json
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -98,10 +99,30 @@ def add_campaign(archive: Archive, campaign: Campaign, site_override: str | None
             conn.execute(t.instruments.insert(), [
                 {"campaign_id": campaign_id, "instrument_id": name, "results": count}
                 for name, count in sorted(instruments.items())])
+        found = _findings(campaign_id, link_refs, campaign.summary.get("findings"))
+        if found:
+            conn.execute(t.findings.insert(), found)
         conn.execute(t.files.insert(), [
             {"campaign_id": campaign_id, "name": name, "sha256": digest, "size_bytes": size}
             for name, (digest, size) in sorted(campaign.files.items())])
         return Added(campaign_id, site, len(campaign.links), len(campaign.rows), False)
+
+
+def _findings(campaign_id: int, link_refs: Mapping[str, int], items: Any) -> list[dict[str, Any]]:
+    """summary.json's audit findings as rows; entries without a rule or severity are skipped."""
+    rows = []
+    for item in items if isinstance(items, list) else []:
+        if not isinstance(item, Mapping) or not isinstance(item.get("rule"), str) \
+                or not isinstance(item.get("severity"), str):
+            continue
+        link_id = item.get("link_id")
+        rows.append({"campaign_id": campaign_id,
+                     "link_ref": link_refs.get(link_id) if isinstance(link_id, str) else None,
+                     "rule": item["rule"], "severity": item["severity"],
+                     "message": _text(item.get("message")),
+                     "evidence": json.dumps(item.get("evidence"), ensure_ascii=False,
+                                            sort_keys=True)})
+    return rows
 
 
 def _count(campaign: Campaign, verdict: str) -> int:
