@@ -222,6 +222,11 @@ def applications() -> None:
     print_applications(_stdout())
 
 
+from reportgen.cli_archive import register as _register_archive  # noqa: E402
+
+_register_archive(cli, _flag_options)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status instead of exiting."""
     settings = _Settings()

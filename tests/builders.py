@@ -239,6 +239,51 @@ __all__ = ["TEST_LIMITS", "make_link", "make_results", "make_project", "make_ref
            "write_large_project", "tree_digest", "well_formed", "printed_page_refs"]
 
 
+def write_build_output(folder, links, *, site="Test site (invented)", title="Test campaign",
+                       contractor="Test contractor (invented)"):
+    """A build output folder (summary.json + results.csv) as ``reportgen build`` writes it.
+
+    ``links``: (link_id, verdict, fiber_type, capable applications, result rows), each result
+    row (strand, wavelength_nm, direction, loss_db, tested_at, verdict). Limit and margin
+    columns are left empty: the archive stores them as read and judges nothing.
+    """
+    import csv as _csv
+    import io as _io
+    import json as _json
+    from pathlib import Path as _Path
+
+    from reportgen.export.results_csv import RESULTS_COLUMNS, neutralise_cell
+
+    folder = _Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    # a failing link gets a worst margin of -0.5 dB (invented), the others none
+    entries = [{"link_id": link_id, "verdict": verdict,
+                "worst_margin_db": -0.5 if verdict == "fail" else None, "missing": [],
+                "fiber_type": fiber, "length_m": 100.0, "applications": [],
+                "capable": list(capable)}
+               for link_id, verdict, fiber, capable, _ in links]
+    totals = {"links": len(links),
+              **{v: sum(1 for e in entries if e["verdict"] == v)
+                 for v in ("pass", "fail", "incomplete")}}
+    summary = {"format": 1, "links": entries, "totals": totals,
+               "project": {"title": title, "job_number": None, "site": site,
+                           "customer": None, "contractor": contractor}}
+    (folder / "summary.json").write_text(_json.dumps(summary, indent=2), encoding="utf-8")
+    buffer = _io.StringIO()
+    writer = _csv.writer(buffer, lineterminator="\n")
+    writer.writerow(RESULTS_COLUMNS)
+    line = 1
+    for link_id, _, _, _, rows in links:
+        for strand, wavelength, direction, loss, tested_at, verdict in rows:
+            line += 1
+            cells = [neutralise_cell(link_id), strand, wavelength, direction, f"{loss:.2f}",
+                     tested_at, "", "", verdict, "", "T. Tester", "SRC-1;OPM-1", "", "",
+                     "results/day1.csv", line]
+            writer.writerow(cells + [""] * (len(RESULTS_COLUMNS) - len(cells)))
+    (folder / "results.csv").write_text(buffer.getvalue(), encoding="utf-8")
+    return folder
+
+
 # ------------------------------------------------------------ synthetic OTDR traces
 # A physical model of a one-way OTDR trace, for the LSA tests, the demo's .sor files
 # (benchmarks/make_otdr_demo.py) and the reading benchmark. Everything is in dB of power:

@@ -65,11 +65,15 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
     ``reason_text`` words an application's reasons and ``finding_text`` a finding (the
     report's text catalogue, so summary.json and the report say the same).
     """
-    link_extras = {link.link_id: {**applications.link_json(link.link_id, reason_text),
+    link_extras = {link.link_id: {"fiber_type": link.fiber_type.value,
+                                  "length_m": round_length_m(link.length_m),
+                                  **applications.link_json(link.link_id, reason_text),
                                   **({"otdr": otdr_json(otdr, link.link_id)} if otdr is not None else {})}
                    for link in project.links}
+    info = project.info
     meta = {
-        "project": {"title": project.info.title, "job_number": project.info.job_number},
+        "project": {"title": info.title, "job_number": info.job_number, "site": info.site,
+                    "customer": info.customer, "contractor": info.contractor.name},
         "limits": project.limits.id,
         "reference_method": project.testing.reference_method.value,
         "generated_at": now.isoformat(),
