@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
+import re
 import zipfile
 from pathlib import Path
 
@@ -177,8 +178,11 @@ def _save_cached_value(path: Path, value: str) -> None:
     with zipfile.ZipFile(path) as archive:
         parts = {name: archive.read(name) for name in archive.namelist()}
     sheet = "xl/worksheets/sheet2.xml"
-    assert parts[sheet].count(b"<v></v>") == 1
-    parts[sheet] = parts[sheet].replace(b"<v></v>", f"<v>{value}</v>".encode())
+    # openpyxl writes the formula's empty value as <v></v>, <v/> or <v />, or leaves it out,
+    # depending on the XML writer it finds installed
+    formula = re.compile(rb"(<f>[^<]*</f>)(?:<v></v>|<v\s*/>)?")
+    assert len(formula.findall(parts[sheet])) == 1
+    parts[sheet] = formula.sub(lambda m: m.group(1) + f"<v>{value}</v>".encode(), parts[sheet])
     with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
         for name, data in parts.items():
             archive.writestr(name, data)
