@@ -8,6 +8,7 @@ from typing import Any, Final
 
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.judge import Judgement
+from reportgen.export.manifest import MANIFEST_NAME
 from reportgen.model import Project
 from reportgen.units import round_db
 
@@ -44,8 +45,12 @@ def json_bytes(document: Mapping[str, Any]) -> bytes:
 
 def summary_document(project: Project, judgement: Judgement, applications: ProjectApplications,
                      *, now: datetime, version: str,
-                     reason_text: Callable[[Any], str]) -> dict[str, Any]:
+                     reason_text: Callable[[Any], str],
+                     digest: str | None = None) -> dict[str, Any]:
     """summary.json: the contract's keys plus applications and power per link.
+
+    ``digest`` (the SHA-256 of the manifest, :mod:`reportgen.export.manifest`) is
+    written as ``archive.manifest_sha256``.
 
     ``reason_text`` words an application's reasons (the report's text catalogue, so
     summary.json and the report say the same).
@@ -59,4 +64,6 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
         "generated_at": now.isoformat(),
         "generator": f"reportgen {version}",
     }
+    if digest is not None:
+        meta["archive"] = {"manifest": MANIFEST_NAME, "manifest_sha256": digest}
     return summary_dict(project, judgement, link_extras, meta)

@@ -34,6 +34,7 @@ from pathlib import Path
 from typing import Final
 
 from reportgen.errors import ReportgenError
+from reportgen.pdf.archive import Attachment
 from reportgen.pdf.weasy import RenderedPart, render_part
 from reportgen.pdf.merge import PageCopier, finish_pdf
 from reportgen.pdf.stamp import check_label_text
@@ -309,7 +310,8 @@ def _cycle_collector_paused() -> Iterator[None]:
 def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: str,
                page_label: str = "Page {page} of {pages}", created: datetime,
                workers: int = 2, progress: Progress | None = None,
-               xml_first: bool = False) -> bytes:
+               xml_first: bool = False, author: str = "",
+               attachments: Sequence[Attachment] = ()) -> bytes:
     """Render the front matter and body parts into one PDF and return its bytes.
 
     Parameters
@@ -335,6 +337,8 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         read them with the standard library's XML parser, falling back to
         WeasyPrint's HTML parser for any that is not (see
         :func:`reportgen.pdf.weasy.parse_xml`).
+    author, attachments
+        The archive file's author and embedded files (:mod:`reportgen.pdf.archive`).
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1 (got {workers})")
@@ -362,7 +366,7 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         writer = copier.writer
         front_done_s = time.perf_counter()
         pdf = finish_pdf(writer, front_part, body_parts, title=title, page_label=page_label,
-                         created=created)
+                         created=created, author=author, attachments=attachments)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
                 "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)

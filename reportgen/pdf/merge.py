@@ -40,6 +40,7 @@ from pypdf.generic import (
 )
 
 from reportgen import __version__
+from reportgen.pdf.archive import Attachment, make_archival
 from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
 from reportgen.pdf.stamp import Stamper, make_stamp_font
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
@@ -184,11 +185,13 @@ class PageCopier:
 
 
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
-               title: str, page_label: str, created: datetime, compact: bool = True) -> bytes:
+               title: str, page_label: str, created: datetime, compact: bool = True,
+               author: str = "", attachments: Sequence[Attachment] = ()) -> bytes:
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
 
-    Adds the page-number stamps, links, outline and metadata; with ``compact``, merges
-    identical objects and repacks with qpdf when installed.
+    Adds the page-number stamps, links, outline and metadata, then makes the merged
+    file PDF/A-3b with ``attachments`` embedded (:func:`reportgen.pdf.archive.make_archival`);
+    with ``compact``, merges identical objects and repacks with qpdf when installed.
     """
     for index, page in enumerate(PdfReader(io.BytesIO(front.pdf)).pages):
         writer.insert_page(page, index)
@@ -210,6 +213,8 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
         "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
         "/CreationDate": date, "/ModDate": date,
     })
+    make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
+                  created=created, attachments=attachments)
     if compact:
         writer.compress_identical_objects()
     buffer = io.BytesIO()

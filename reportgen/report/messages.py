@@ -20,6 +20,14 @@ from reportgen import units
 
 # Stamped by reportgen.pdf at the bottom right of every page after merging.
 PAGE_LABEL: Final = "Page {page} of {pages}"
+# The same, with the start of the report's digest (SHA-256 of its manifest) before it.
+ARCHIVE_PAGE_LABEL: Final = "Digest {digest} \u00b7 Page {{page}} of {{pages}}"
+
+
+def archive_page_label(short_digest: str) -> str:
+    """The page stamp of an archive report: the digest's start, then "Page X of Y"."""
+    return ARCHIVE_PAGE_LABEL.format(digest=short_digest)
+
 
 TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # document
@@ -347,6 +355,18 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "apps_max_only": "\u2264 {high}",
     # appendix
     "appendix_heading": "Appendix",
+    "files_heading": "Files inside this report",
+    "files_intro": ("This PDF carries a copy of every file the report was made from, and the "
+                    "results and summary it produced, as attachments (open your PDF reader's "
+                    "attachment list). The manifest (manifest.json) lists each file with its "
+                    "size and SHA-256 fingerprint; the report's digest, printed on the cover and "
+                    "at the foot of every page, is the SHA-256 of the manifest. "
+                    "'reportgen verify' checks all of this and judges the measurements again."),
+    "col_file": "File",
+    "col_size_bytes": "Size (bytes)",
+    "col_sha256": "SHA-256",
+    "field_digest": "Report digest",
+    "digest_note": "SHA-256 of the manifest of the files inside this PDF",
     "instruments_heading": "Test instruments",
     "instruments_none": "No instruments are listed in project.yaml.",
     "col_id": "Id",

@@ -45,7 +45,7 @@ from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
 from reportgen.model import Project
-from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view
+from reportgen.report.viewmodel import ArchiveView, LinkView, MatrixGroup, ReportView, build_view
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -232,6 +232,8 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
                 ("appx-limits", "limits_heading", 2)]
     if apps is not None:
         entries.append(("appx-applications", "appx_apps_heading", 2))
+    if view.archive is not None:
+        entries.append(("appx-files", "files_heading", 2))
     entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
 
@@ -319,14 +321,17 @@ def build_report(
     now: datetime,
     version: str,
     applications: ProjectApplications | None = None,
+    archive: ArchiveView | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
 
     ``now`` and ``version`` are printed as given (determinism: same input, same HTML).
     ``applications`` (applications.assess_project) adds the applications and power
-    budget sections.
+    budget sections; ``archive`` (the files embedded in the PDF and the report's digest)
+    puts the digest on the cover and the list of files in the appendix.
     """
-    view = build_view(project, judgement, now=now, version=version, assessed=applications)
+    view = build_view(project, judgement, now=now, version=version, assessed=applications,
+                      archive=archive)
     env = make_environment(project.report.templates, view.length_unit)
     renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications))
     makers: list[Callable[[], str]] = [

@@ -239,6 +239,23 @@ class ApplicationsView:
 
 
 @dataclass(frozen=True)
+class ArchiveFileView:
+    """A file embedded in report.pdf and listed in its manifest."""
+
+    path: str          # embedded name: project/<path> for an input, results.csv
+    size_bytes: int
+    sha256: str
+
+
+@dataclass(frozen=True)
+class ArchiveView:
+    """The report's digest (SHA-256 of the manifest) and the files the manifest lists."""
+
+    digest: str
+    files: tuple[ArchiveFileView, ...]
+
+
+@dataclass(frozen=True)
 class ReportView:
     """Everything the templates may use, and nothing else."""
 
@@ -278,6 +295,7 @@ class ReportView:
     generated_at: datetime
     version: str
     apps: ApplicationsView | None = None  # None when applications were not assessed
+    archive: ArchiveView | None = None    # None when no manifest was made (e.g. golden file)
 
 
 def slugify(text: str) -> str:
@@ -491,7 +509,8 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
 
 
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
-               assessed: ProjectApplications | None = None) -> ReportView:
+               assessed: ProjectApplications | None = None,
+               archive: ArchiveView | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
 
     ``assessed`` (applications.assess_project) adds the applications and power budgets.
@@ -533,4 +552,5 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         components=components, paper=project.report.paper.value,
         generated_at=now, version=version,
         apps=None if assessed is None else build_applications_view(project, assessed, anchors),
+        archive=archive,
     )
