@@ -30,6 +30,8 @@ Examples:
   reportgen limits                        list the built-in limit sets
   reportgen limits tia-568.3-d            show one limit set with its sources
   reportgen applications                  list the application table
+  reportgen verify out/report.pdf         check a report: files inside, digest,
+                                          verdicts judged again
 
 Exit status: 0 done, 1 (check) a link fails or is incomplete,
 2 bad input or any other error (nothing is written).
@@ -157,6 +159,33 @@ def build(project: Path, output: Path | None, data_only: bool) -> None:
         f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
         f"{totals['incomplete']} incomplete. Written to {result.out_dir}: "
         + ", ".join(result.files))
+
+
+@cli.command(epilog="Exit status: 0 every check holds, 1 some check fails (named), 2 not a "
+                    "PDF, not a report with its project inside, or a bad option.")
+@click.argument("report_pdf", type=click.Path(path_type=Path))
+@click.option("--project", "project_dir", type=click.Path(path_type=Path),
+              help="Also compare this project folder's files with the copies in the report.")
+def verify(report_pdf: Path, project_dir: Path | None) -> None:
+    """Check REPORT_PDF: files inside against its manifest, digest, verdicts judged again.
+
+    Each check is printed with its outcome. The verdicts are checked by judging the
+    embedded inputs again with this reportgen and comparing every loss, limit, margin
+    and verdict with the embedded results.csv and summary.json.
+    """
+    from reportgen import pipeline
+
+    checks = pipeline.verify_report(report_pdf, project_dir)
+    console = _stdout()
+    for check in checks:
+        console.print(f"{'ok  ' if check.ok else 'FAIL'}  {check.name}: {check.detail}",
+                      markup=False, soft_wrap=True)
+    failed = [check for check in checks if not check.ok]
+    if failed:
+        console.print(f"{len(failed)} of {len(checks)} checks failed: "
+                      + ", ".join(check.name for check in failed), markup=False, soft_wrap=True)
+        raise _Failure(1)
+    console.print(f"all {len(checks)} checks hold", markup=False)
 
 
 @cli.command()
