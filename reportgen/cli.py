@@ -119,6 +119,37 @@ def cli(ctx: click.Context) -> None:
     _configure_logging(ctx.ensure_object(_Settings))
 
 
+SIGN_PASSWORD_VARIABLE = "REPORTGEN_SIGN_PASSWORD"
+
+
+def _signing_key(path: Path) -> Any:
+    """Load the PKCS#12 file: password from the environment, else none, else asked for.
+
+    The password is never a command-line argument (it would show in process lists and
+    shell history).
+    """
+    import os
+
+    from reportgen.pdf.sign import load_signing_key
+
+    try:
+        data = path.read_bytes()
+    except OSError as error:
+        raise ReportgenError(f"{path}: cannot read the signing key ({error.strerror})") from None
+    password = os.environ.get(SIGN_PASSWORD_VARIABLE)
+    if password is not None:
+        return load_signing_key(data, password.encode("utf-8"), str(path))
+    try:
+        return load_signing_key(data, None, str(path))  # a file without a password
+    except ReportgenError:
+        if not sys.stdin.isatty():
+            raise ReportgenError(
+                f"{path}: the PKCS#12 file needs a password; set {SIGN_PASSWORD_VARIABLE} "
+                "(no terminal to ask on)") from None
+    asked = click.prompt(f"Password of {path}", hide_input=True, err=True)
+    return load_signing_key(data, asked.encode("utf-8"), str(path))
+
+
 PROJECT = click.argument("project", type=click.Path(path_type=Path))
 
 
@@ -147,13 +178,20 @@ def check(project: Path, show_all: bool) -> None:
               help="Output folder (default: PROJECT/report).")
 @click.option("--data-only", is_flag=True,
               help="Write only results.csv and summary.json (no HTML/PDF report).")
-def build(project: Path, output: Path | None, data_only: bool) -> None:
+@click.option("--sign", "sign_p12", type=click.Path(path_type=Path), metavar="KEY.p12",
+              help="Sign report.pdf with the key and certificate of this PKCS#12 file; its "
+                   f"password comes from {SIGN_PASSWORD_VARIABLE} or is asked for.")
+def build(project: Path, output: Path | None, data_only: bool, sign_p12: Path | None) -> None:
     """Validate, judge and write the report of PROJECT."""
     from reportgen import pipeline
     from reportgen.report.terminal import progress_bar
 
+    if sign_p12 is not None and data_only:
+        raise click.UsageError("--sign signs report.pdf; --data-only writes none")
+    sign_key = _signing_key(sign_p12) if sign_p12 is not None else None
     with progress_bar(_stderr(), enabled=not data_only) as progress:
-        result = pipeline.build(project, output, report=not data_only, progress=progress)
+        result = pipeline.build(project, output, report=not data_only, progress=progress,
+                                sign_key=sign_key)
     totals = result.outcome.judgement.totals
     _stdout().print(
         f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
@@ -166,8 +204,10 @@ def build(project: Path, output: Path | None, data_only: bool) -> None:
 @click.argument("report_pdf", type=click.Path(path_type=Path))
 @click.option("--project", "project_dir", type=click.Path(path_type=Path),
               help="Also compare this project folder's files with the copies in the report.")
-def verify(report_pdf: Path, project_dir: Path | None) -> None:
-    """Check REPORT_PDF: files inside against its manifest, digest, verdicts judged again.
+@click.option("--trust", type=click.Path(path_type=Path), metavar="CERT.pem",
+              help="Also check that the signature's certificate chains to this certificate.")
+def verify(report_pdf: Path, project_dir: Path | None, trust: Path | None) -> None:
+    """Check REPORT_PDF: signature, files inside, digest, verdicts judged again.
 
     Each check is printed with its outcome. The verdicts are checked by judging the
     embedded inputs again with this reportgen and comparing every loss, limit, margin
@@ -175,7 +215,7 @@ def verify(report_pdf: Path, project_dir: Path | None) -> None:
     """
     from reportgen import pipeline
 
-    checks = pipeline.verify_report(report_pdf, project_dir)
+    checks = pipeline.verify_report(report_pdf, project_dir, trust)
     console = _stdout()
     for check in checks:
         console.print(f"{'ok  ' if check.ok else 'FAIL'}  {check.name}: {check.detail}",

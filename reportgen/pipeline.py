@@ -11,6 +11,7 @@ import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
+from functools import partial
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -110,8 +111,12 @@ def build(
     version: str = __version__,
     report: bool = True,
     progress: Progress | None = None,
+    sign_key: Any = None,
 ) -> BuildResult:
-    """Validate, judge, render and write every output; nothing is written on failure."""
+    """Validate, judge, render and write every output; nothing is written on failure.
+
+    ``sign_key`` (:func:`reportgen.pdf.sign.load_signing_key`) signs report.pdf.
+    """
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
@@ -130,7 +135,7 @@ def build(
 
     if report:
         outputs = render_report(outcome, now=now, version=version, progress=progress,
-                                alongside=data_outputs, archive=archive)
+                                alongside=data_outputs, archive=archive, sign_key=sign_key)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
         outputs = data_outputs()
@@ -188,19 +193,19 @@ def attachments_of(archive: Archive, summary_json: bytes) -> list[Any]:
     return made
 
 
-def report_view_archive(archive: Archive) -> Any:
-    """The digest and file list the report prints (cover and appendix)."""
+def report_view_archive(archive: Archive, signer: str = "") -> Any:
+    """The digest, file list and signer the report prints (cover and appendix)."""
     from reportgen.report.viewmodel import ArchiveFileView, ArchiveView
 
     return ArchiveView(archive.digest, tuple(
         ArchiveFileView(entry["path"], entry["size"], entry["sha256"])
-        for entry in archive.document["files"]))
+        for entry in archive.document["files"]), signer)
 
 
 def render_report(outcome: Outcome, *, now: datetime, version: str,
                   progress: Progress | None = None,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
-                  archive: Archive | None = None) -> dict[str, bytes]:
+                  archive: Archive | None = None, sign_key: Any = None) -> dict[str, bytes]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
 
     Returns the outputs of ``alongside()`` (made first: the PDF embeds them), then
@@ -213,7 +218,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
     document = render.build_report(
         outcome.project, outcome.judgement, now=now, version=version,
         applications=outcome.applications,
-        archive=report_view_archive(archive) if archive is not None else None)
+        archive=(report_view_archive(archive, sign_key.subject if sign_key is not None else "")
+                 if archive is not None else None))
 
     # The data files are embedded in the PDF, so they are made first (they are quick);
     # report.html is written by a thread while the PDF workers are busy.
@@ -222,6 +228,11 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                    if archive is not None and manifest_file.SUMMARY_NAME in made else [])
     label = (archive_page_label(manifest_file.short_digest(archive.digest))
              if archive is not None else PAGE_LABEL)
+    seal = None
+    if sign_key is not None:
+        from reportgen.pdf.sign import sign_pdf
+
+        seal = partial(sign_pdf, key=sign_key)
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
         html = thread.submit(lambda: document.html.encode("utf-8"))
         pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
@@ -229,7 +240,7 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                                    page_label=label, progress=progress,
                                    xml_first=document.own_templates,
                                    author=outcome.project.info.contractor.name,
-                                   attachments=attachments)
+                                   attachments=attachments, seal=seal)
         return {**made, "report.html": html.result(), "report.pdf": pdf_bytes}
 
 
@@ -396,7 +407,36 @@ def _check_project(project_dir: Path, entries: list[dict[str, Any]]) -> list[Che
                   if not differences else "; ".join(differences))]
 
 
-def verify_report(pdf_path: Path, project_dir: Path | None = None) -> list[Check]:
+def _check_signatures(data: bytes, trust_pem: bytes | None) -> list[Check]:
+    from reportgen.pdf.sign import signature_states
+
+    states = signature_states(data, trust_pem)
+    if not states:
+        return [Check("signature", trust_pem is None,
+                      "the report is not signed" + (" (a trust certificate was given)"
+                                                    if trust_pem is not None else ""))]
+    checks = []
+    for state in states:
+        checks.append(Check(
+            f"signature {state.field}: integrity", state.intact and state.covers_whole_file,
+            f"signed by {state.signer}; the signed bytes are unchanged and nothing was added "
+            "after signing" if state.intact and state.covers_whole_file else
+            f"signed by {state.signer}; " + ("the file was changed after signing (bytes "
+                                               "outside the signed range were added)"
+                                               if state.intact else
+                                               "the signed bytes were changed or the signature "
+                                               "is invalid")))
+        if state.trusted is not None:
+            checks.append(Check(f"signature {state.field}: trust", state.trusted,
+                                f"the signer's certificate chains to the trust certificate"
+                                if state.trusted else
+                                f"the signer's certificate ({state.signer}) does not chain to "
+                                "the trust certificate given"))
+    return checks
+
+
+def verify_report(pdf_path: Path, project_dir: Path | None = None,
+                  trust: Path | None = None) -> list[Check]:
     """Every check of ``reportgen verify``, in order (raises ReportgenError on a bad file)."""
     import json
 
@@ -422,7 +462,14 @@ def verify_report(pdf_path: Path, project_dir: Path | None = None) -> list[Check
         raise ReportgenError(f"{pdf_path}: {manifest_file.MANIFEST_NAME} is not a manifest "
                              f"reportgen can read ({error})") from None
     digest = manifest_file.digest_of(manifest)
-    checks = [Check("archive format", contents.pdfa_part == "3",
+    trust_pem = None
+    if trust is not None:
+        try:
+            trust_pem = Path(trust).read_bytes()
+        except OSError as error:
+            raise ReportgenError(f"{trust}: cannot read ({error.strerror})") from None
+    checks = _check_signatures(data, trust_pem)
+    checks += [Check("archive format", contents.pdfa_part == "3",
                     "PDF/A-3 identification in the XMP metadata" if contents.pdfa_part == "3"
                     else "no PDF/A-3 identification in the XMP metadata")]
     checks += _check_files(contents.files, entries)

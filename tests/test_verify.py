@@ -7,6 +7,7 @@ value is FIPS 180-2, Appendix B.1 (SHA-256 of "abc").
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import shutil
 from datetime import datetime, timezone
@@ -17,6 +18,7 @@ import pytest
 from pypdf import PdfWriter
 
 from reportgen import cli, pipeline
+from reportgen.errors import ReportgenError
 from reportgen.export import manifest
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_project"
@@ -168,3 +170,107 @@ def test_one_input_changed_in_the_project_folder_fails_naming_it(
     out = capsys.readouterr().out
     assert "results/day2-retests.csv differs from the copy in the report" in out
     assert out.count("FAIL") == 1  # the project check only; the report itself holds
+
+
+# ---------------------------------------------------------------- signing
+
+def _key_and_certificate(tmp_path: Path, name: str, password: bytes | None) -> tuple[Path, Path]:
+    """A fresh RSA key and self-signed certificate (made here with the cryptography package)."""
+    import datetime as dt
+
+    from cryptography import x509
+    from cryptography.hazmat.primitives import hashes, serialization
+    from cryptography.hazmat.primitives.asymmetric import rsa
+    from cryptography.hazmat.primitives.serialization import pkcs12
+    from cryptography.x509.oid import NameOID
+
+    key = rsa.generate_private_key(public_exponent=65537, key_size=2048)
+    subject = x509.Name([x509.NameAttribute(NameOID.COMMON_NAME, name)])
+    start = dt.datetime(2026, 1, 1, tzinfo=dt.timezone.utc)
+    cert = (x509.CertificateBuilder().subject_name(subject).issuer_name(subject)
+            .public_key(key.public_key()).serial_number(x509.random_serial_number())
+            .not_valid_before(start).not_valid_after(start + dt.timedelta(days=3650))
+            .add_extension(x509.BasicConstraints(ca=True, path_length=None), critical=True)
+            .add_extension(x509.KeyUsage(True, True, False, False, False, True, False, False,
+                                         False), critical=True)
+            .sign(key, hashes.SHA256()))
+    encryption = (serialization.BestAvailableEncryption(password) if password
+                  else serialization.NoEncryption())
+    p12, pem = tmp_path / f"{name}.p12", tmp_path / f"{name}.pem"
+    p12.write_bytes(pkcs12.serialize_key_and_certificates(b"k", key, cert, None, encryption))
+    pem.write_bytes(cert.public_bytes(serialization.Encoding.PEM))
+    return p12, pem
+
+
+def test_signing_key_password_from_the_environment_never_an_argument(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    p12, _ = _key_and_certificate(tmp_path, "Example Signer", b"secret")
+    monkeypatch.setenv(cli.SIGN_PASSWORD_VARIABLE, "secret")
+    assert cli._signing_key(p12).subject == "Example Signer"
+    monkeypatch.setenv(cli.SIGN_PASSWORD_VARIABLE, "wrong")
+    with pytest.raises(ReportgenError, match="wrong password"):
+        cli._signing_key(p12)
+    monkeypatch.delenv(cli.SIGN_PASSWORD_VARIABLE)
+    monkeypatch.setattr("sys.stdin", io.StringIO(""))   # no terminal to ask on
+    with pytest.raises(ReportgenError, match=cli.SIGN_PASSWORD_VARIABLE):
+        cli._signing_key(p12)
+    assert "--password" not in [param.opts[0] for param in cli.build.params]
+
+
+def test_a_pkcs12_file_without_a_password_is_accepted(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    p12, _ = _key_and_certificate(tmp_path, "Open Signer", None)
+    monkeypatch.delenv(cli.SIGN_PASSWORD_VARIABLE, raising=False)
+    assert cli._signing_key(p12).subject == "Open Signer"
+
+
+@pytest.fixture(scope="module")
+def signed(demo_build: Path, tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path]:
+    from reportgen.pdf.sign import load_signing_key, sign_pdf
+
+    folder = tmp_path_factory.mktemp("signed")
+    p12, pem = _key_and_certificate(folder, "Example Signer", b"secret")
+    key = load_signing_key(p12.read_bytes(), b"secret", str(p12))
+    path = folder / "report.pdf"
+    path.write_bytes(sign_pdf((demo_build / "report.pdf").read_bytes(), {}, key=key))
+    return path, pem
+
+
+@pytest.mark.slow
+def test_signed_report_passes_integrity_and_trust(
+        signed: tuple[Path, Path], demo_build: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path, pem = signed
+    # the signature is an incremental update: the archive file before it stays as built
+    assert path.read_bytes().startswith((demo_build / "report.pdf").read_bytes())
+    assert cli.main(["verify", str(path), "--trust", str(pem)]) == 0
+    out = capsys.readouterr().out
+    assert "ok    signature ReportSignature: integrity: signed by Example Signer" in out
+    assert "ok    signature ReportSignature: trust" in out
+
+
+@pytest.mark.slow
+def test_another_trust_certificate_fails_trust_but_passes_integrity(
+        signed: tuple[Path, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path, _ = signed
+    _, other = _key_and_certificate(tmp_path, "Someone Else", b"x")
+    assert cli.main(["verify", str(path), "--trust", str(other)]) == 1
+    out = capsys.readouterr().out
+    assert "ok    signature ReportSignature: integrity" in out
+    assert "FAIL  signature ReportSignature: trust" in out
+
+
+@pytest.mark.slow
+def test_a_report_changed_after_signing_fails_integrity(
+        signed: tuple[Path, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path, pem = signed
+    data = bytearray(path.read_bytes())
+    # ISO 32000-1, 7.5.2: the header's second line is a comment of binary bytes; changing
+    # one keeps the file readable and lies inside the signed byte range.
+    assert data[9:10] == b"%"
+    data[10] ^= 0x01
+    changed = tmp_path / "changed.pdf"
+    changed.write_bytes(bytes(data))
+    assert cli.main(["verify", str(changed), "--trust", str(pem)]) == 1
+    out = capsys.readouterr().out
+    assert "FAIL  signature ReportSignature: integrity" in out
+    assert "signed bytes were changed" in out

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import hashlib
 import io
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timezone
@@ -57,6 +58,7 @@ PDFA_PART: Final = 3
 PDFA_CONFORMANCE: Final = "B"
 OUTPUT_CONDITION: Final = "sRGB IEC61966-2.1"
 RELATIONSHIPS: Final = ("Source", "Data")
+PDFAID_PART: Final = re.compile(r"<pdfaid:part>\s*(\d+)\s*</pdfaid:part>|pdfaid:part=[\"'](\d+)[\"']")
 ANNOTATION_PRINT: Final = 4          # ISO 32000-1, 12.5.3: bit 3 (Print)
 ANNOTATION_FORBIDDEN: Final = 1 | 2 | 32 | 256  # Invisible, Hidden, NoView, ToggleNoView
 
@@ -215,9 +217,8 @@ def read_archive(pdf: bytes) -> ArchiveContents:
         metadata = reader.xmp_metadata
         if metadata is not None:
             raw = metadata.stream.get_data().decode("utf-8", "replace")
-            start = raw.find("<pdfaid:part>")
-            if start >= 0:
-                part = raw[start + len("<pdfaid:part>"):raw.find("</pdfaid:part>")].strip()
+            found = PDFAID_PART.search(raw)  # element or attribute form (a signer rewrites it)
+            part = (found.group(1) or found.group(2)) if found else None
     except (PdfReadError, ValueError, KeyError, OSError) as error:
         raise ReportgenError(f"not a readable PDF file: {error}") from error
     return ArchiveContents(files, relationships, texts, part)

@@ -366,6 +366,8 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "col_size_bytes": "Size (bytes)",
     "col_sha256": "SHA-256",
     "field_digest": "Report digest",
+    "signoff_digital": "Digital signature of this PDF file (signed copies only; 'reportgen verify' checks it)",
+    "signed_by": "Signed digitally by {signer} when this file was made.",
     "digest_note": "SHA-256 of the manifest of the files inside this PDF",
     "instruments_heading": "Test instruments",
     "instruments_none": "No instruments are listed in project.yaml.",

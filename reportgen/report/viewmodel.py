@@ -253,6 +253,7 @@ class ArchiveView:
 
     digest: str
     files: tuple[ArchiveFileView, ...]
+    signer: str = ""   # who signs the PDF (name on the certificate); "" when unsigned
 
 
 @dataclass(frozen=True)
