@@ -215,3 +215,19 @@ def test_xmp_date(moment: datetime, expected: str) -> None:
 def test_attachment_relationship_is_source_or_data() -> None:
     with pytest.raises(ValueError, match="relationship"):
         Attachment("x.csv", b"", "text/csv", "Alternative", "x")
+
+
+@pytest.mark.parametrize("xmp", [
+    # RDF 1.1 XML Syntax, 2.2 (property elements) and 2.5 (property attributes), from memory:
+    # the same property written as an element or as an attribute of rdf:Description.
+    b'<?xpacket begin="" id="W5M0MpCehiHzreSzNTczkc9d"?><x:xmpmeta xmlns:x="adobe:ns:meta/">'
+    b'<rdf:RDF xmlns:rdf="http://www.w3.org/1999/02/22-rdf-syntax-ns#"><rdf:Description '
+    b'xmlns:pdfaid="http://www.aiim.org/pdfa/ns/id/"><pdfaid:part>3</pdfaid:part>'
+    b'</rdf:Description></rdf:RDF></x:xmpmeta><?xpacket end="w"?>',
+    b'<x:xmpmeta xmlns:x="adobe:ns:meta/"><rdf:RDF '
+    b'xmlns:rdf="http://www.w3.org/1999/02/22-rdf-syntax-ns#"><rdf:Description '
+    b'xmlns:pdfaid="http://www.aiim.org/pdfa/ns/id/" pdfaid:part="3"/></rdf:RDF></x:xmpmeta>',
+])
+def test_pdfa_part_is_read_in_element_and_attribute_form(xmp: bytes) -> None:
+    from reportgen.pdf.archive import pdfa_part
+    assert pdfa_part(xmp) == "3"

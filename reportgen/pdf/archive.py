@@ -32,7 +32,7 @@ from __future__ import annotations
 
 import hashlib
 import io
-import re
+import xml.etree.ElementTree as ET
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timezone
@@ -58,7 +58,7 @@ PDFA_PART: Final = 3
 PDFA_CONFORMANCE: Final = "B"
 OUTPUT_CONDITION: Final = "sRGB IEC61966-2.1"
 RELATIONSHIPS: Final = ("Source", "Data")
-PDFAID_PART: Final = re.compile(r"<pdfaid:part>\s*(\d+)\s*</pdfaid:part>|pdfaid:part=[\"'](\d+)[\"']")
+PDFAID_PART: Final = "{http://www.aiim.org/pdfa/ns/id/}part"
 ANNOTATION_PRINT: Final = 4          # ISO 32000-1, 12.5.3: bit 3 (Print)
 ANNOTATION_FORBIDDEN: Final = 1 | 2 | 32 | 256  # Invisible, Hidden, NoView, ToggleNoView
 
@@ -196,6 +196,24 @@ class ArchiveContents:
     pdfa_part: str | None
 
 
+def pdfa_part(xmp: bytes) -> str | None:
+    """The ``pdfaid:part`` of an XMP packet, as an element or an attribute, or None.
+
+    Both forms are valid XMP; pyHanko rewrites ours in the attribute form when it signs.
+    """
+    try:
+        root = ET.fromstring(xmp.decode("utf-8", "replace").split("?>", 1)[-1]
+                             .rsplit("<?xpacket", 1)[0])
+    except ET.ParseError:
+        return None
+    for element in root.iter():
+        if element.tag == PDFAID_PART and element.text:
+            return element.text.strip()
+        if PDFAID_PART in element.attrib:
+            return element.attrib[PDFAID_PART].strip()
+    return None
+
+
 def read_archive(pdf: bytes) -> ArchiveContents:
     """Read the embedded files (by name) and the text of every page of ``pdf``.
 
@@ -216,9 +234,7 @@ def read_archive(pdf: bytes) -> ArchiveContents:
         part = None
         metadata = reader.xmp_metadata
         if metadata is not None:
-            raw = metadata.stream.get_data().decode("utf-8", "replace")
-            found = PDFAID_PART.search(raw)  # element or attribute form (a signer rewrites it)
-            part = (found.group(1) or found.group(2)) if found else None
+            part = pdfa_part(metadata.stream.get_data())
     except (PdfReadError, ValueError, KeyError, OSError) as error:
         raise ReportgenError(f"not a readable PDF file: {error}") from error
     return ArchiveContents(files, relationships, texts, part)
