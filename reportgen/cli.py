@@ -32,6 +32,7 @@ Examples:
   reportgen applications                  list the application table
   reportgen verify out/report.pdf         check a report: files inside, digest,
                                           verdicts judged again
+  reportgen import demo_project           show what imports: entries read
 
 Exit status: 0 done, 1 (check) a link fails or is incomplete,
 2 bad input or any other error (nothing is written).
@@ -226,6 +227,29 @@ def verify(report_pdf: Path, project_dir: Path | None, trust: Path | None) -> No
                       + ", ".join(check.name for check in failed), markup=False, soft_wrap=True)
         raise _Failure(1)
     console.print(f"all {len(checks)} checks hold", markup=False)
+
+
+@cli.command("import", epilog="Exit status: 0 done, 2 bad input (every problem listed).")
+@PROJECT
+@click.option("--rows", default=5, show_default=True, type=click.IntRange(0, 1000),
+              help="How many first rows to show per file.")
+@click.option("--write", "write_dir", type=click.Path(path_type=Path),
+              help="Also write the imported rows as links.csv and results/*.csv into this folder.")
+def import_(project: Path, rows: int, write_dir: Path | None) -> None:
+    """Show what the imports: entries of PROJECT read: per file the rows read, the mapping used,
+    the columns left out and the first rows as judged."""
+    from reportgen import pipeline
+    from reportgen.report.terminal import print_imports
+
+    if write_dir is not None:
+        pipeline.check_out_dir(project, write_dir)
+    outcome = pipeline.compute(pipeline.validate_only(project))
+    if write_dir is not None:
+        pipeline.check_out_dir_holds_no_input(outcome.project, write_dir)
+    print_imports(_stdout(), outcome, rows=rows)
+    if write_dir is not None:
+        written = pipeline.write_imported(outcome.project, write_dir)
+        _stdout().print(f"Written to {write_dir}: " + ", ".join(written), markup=False)
 
 
 @cli.command()

@@ -13,11 +13,13 @@ class InputProblem:
     field: str | None  # column name or YAML key path, e.g. "testing.reference_method"
     expected: str  # what would have been accepted
     found: str | None = None
+    # a spreadsheet's sheet: then ``line`` is the sheet's row number, shown as "row"
+    sheet: str | None = None
 
     def __str__(self) -> str:
-        where = ", ".join(
-            part for part in (self.file, self.line and f"line {self.line}", self.field) if part
-        )
+        place = self.line and (f"row {self.line}" if self.sheet is not None else f"line {self.line}")
+        sheet = self.sheet is not None and f"sheet {self.sheet}"
+        where = ", ".join(part for part in (self.file, sheet, place, self.field) if part)
         found = f" (got {self.found!r})" if self.found is not None else ""
         return f"{where}: expected {self.expected}{found}"
 

@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 from datetime import date
 from enum import StrEnum
 from pathlib import Path
-from typing import Final
+from typing import Any, Final
 
 import pandas as pd
 
@@ -79,6 +79,7 @@ class ResultVerdict(StrEnum):
     FAIL = "fail"
     INVALID = "invalid"
     SUPERSEDED = "superseded"
+    NOT_JUDGED = "not-judged"  # no cabling limit at this wavelength (counted for applications)
 
 
 class LinkVerdict(StrEnum):
@@ -91,10 +92,11 @@ class ResultFlag(StrEnum):
     """Flags on a result row (``flags`` column of results.csv)."""
 
     WITHIN_UNCERTAINTY = "within-uncertainty"  # |margin| <= uncertainty_db
-    NEGATIVE_LOSS = "negative-loss"  # loss below -uncertainty_db: bad reference
+    NEGATIVE_LOSS = "negative-loss"  # loss below 0; below -uncertainty_db also invalid
     RETEST = "retest"  # judged row that superseded earlier rows of the same key
     CALIBRATION_OVERDUE = "calibration-overdue"  # an instrument used after its due date
     NOT_REQUIRED = "not-required"  # wavelength judged but not in the required set
+    NO_CABLING_LIMIT = "no-cabling-limit"  # the limit set has no attenuation here: not judged
 
 
 # Default required wavelengths per fiber category [nm] (common practice: the two
@@ -146,6 +148,7 @@ class Testing:
         default_factory=lambda: dict(DEFAULT_WAVELENGTHS_NM)
     )
     attenuators_db: tuple[float, ...] = DEFAULT_ATTENUATORS_DB
+    otdr: OtdrSettings | None = None  # testing.otdr; None: defaults (docs §12)
 
 
 @dataclass(frozen=True)
@@ -161,7 +164,7 @@ class Transceiver:
     wavelength_nm: int
     tx_min_dbm: float
     tx_max_dbm: float
-    rx_sensitivity_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
+    rx_min_average_dbm: float  # lowest average receive power (key rx_min_average_dbm), not OMA sensitivity
     rx_overload_dbm: float
     description: str | None = None
 
@@ -210,7 +213,9 @@ class Link:
 #   wavelength_nm (int), direction (str: "ab"/"ba"), loss_db (float),
 #   tested_at (pandas Timestamp, naive; tz-aware inputs converted to UTC),
 #   tested_at_text (str, as written), instrument (tuple of instrument ids, () when none),
-#   technician (str or ""), measured_length_m (float or NaN), note (str or "")
+#   technician (str or ""), measured_length_m (float or NaN), note (str or ""),
+#   source (str: "file:line", for a spreadsheet row "file[sheet]:row"; imported rows name the
+#   original file and its row or line)
 RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "source_file",
     "source_line",
@@ -225,7 +230,35 @@ RESULT_COLUMNS: Final[tuple[str, ...]] = (
     "technician",
     "measured_length_m",
     "note",
+    "source",
 )
+
+
+@dataclass(frozen=True)
+class InputFile:
+    """A file of the project folder the inputs stage read, as the report's appendix lists it."""
+
+    path: str  # project-relative, "/" separators
+    size_bytes: int
+    sha256: str  # hex digest of the bytes read
+    results: int = 0  # result rows read from it
+    links: int = 0  # links read from it
+
+
+@dataclass(frozen=True)
+class ImportSource:
+    """One file read through an ``imports:`` entry of project.yaml (what ``reportgen import`` shows)."""
+
+    entry: int  # 1-based position in imports:
+    profile: str  # project-relative path of the profile
+    kind: str  # "results" or "links"
+    file: str  # project-relative path of the file read
+    sheet: str | None  # the sheet read, for a spreadsheet
+    rows_read: int  # data rows of the file (blank rows not counted)
+    rows_made: int  # rows they became (a wide layout makes several per row)
+    mapping: tuple[tuple[str, str], ...]  # (our field, their header or "constant: value"), in field order
+    unmapped: tuple[str, ...]  # headers of the file no mapping uses, in file order
+    link_ids: tuple[str, ...] = ()  # links made (kind "links")
 
 
 @dataclass(frozen=True)
@@ -247,7 +280,10 @@ class Project:
     # Every file of the project folder the inputs stage read, as project-relative paths
     # with "/" separators, sorted: project.yaml, links.csv, results, a limit file, the logo.
     files_read: tuple[str, ...] = ()
+    imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
+    input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
+    otdr: tuple[OtdrTrace, ...] = field(default=(), compare=False, repr=False)  # otdr/ traces
 
     def link(self, link_id: str) -> Link:
         for link in self.links:
@@ -322,7 +358,7 @@ class FiberLimits:
     """One row of an application entry: the limits on some fiber types."""
 
     fiber_types: tuple[FiberType, ...]
-    max_length_m: float
+    max_length_m: float | None  # None: the standard sets no reach (not checked)
     max_loss_db: float
     min_loss_db: float | None
     status: str  # "verified, secondary" / "derived" / "from memory", per value where mixed
@@ -365,3 +401,71 @@ class ApplicationTable:
 
     def __contains__(self, application_id: object) -> bool:
         return application_id in self.ids
+
+
+# ------------------------------------------------------------ OTDR (tier 2)
+
+
+class OtdrEventKind(StrEnum):
+    LAUNCH = "launch"
+    CONNECTOR = "connector"
+    SPLICE = "splice"
+    BEND = "bend"
+    REFLECTIVE = "reflective"
+    END = "end"
+    OTHER = "other"
+
+
+class Polish(StrEnum):
+    """Connector end-face polish, which sets the reflectance expected of a connection."""
+
+    UPC = "upc"
+    APC = "apc"
+
+
+@dataclass(frozen=True)
+class OtdrSettings:
+    """``testing.otdr`` of project.yaml; None means "use the default" (docs §12)."""
+
+    launch_cord_m: float = 0.0
+    receive_cord_m: float = 0.0
+    connection_db: float | None = None  # tighter than the limit set's connection allowance
+    splice_db: float | None = None
+    polish: Polish = Polish.UPC
+    reflectance_db: float | None = None  # limit for the polish; default by polish and fiber
+    pair_tolerance_m: float | None = None  # fixed pairing tolerance instead of the formula
+    lsa_threshold_db: float = 0.10
+    length_tolerance_pct: float = 3.0
+
+
+@dataclass(frozen=True)
+class OtdrEvent:
+    """One event of one trace, position from where that trace starts (cords included) [m]."""
+
+    position_m: float
+    kind: OtdrEventKind
+    loss_db: float
+    reflectance_db: float | None = None
+
+
+@dataclass(frozen=True)
+class OtdrTrace:
+    """One OTDR measurement: a .sor file, or the rows of an event table of one key."""
+
+    source_file: str
+    source_line: int | None  # first row of an event table; None for a trace file
+    link_id: str
+    strand: int
+    wavelength_nm: int
+    direction: Direction
+    events: tuple[OtdrEvent, ...]
+    pulse_ns: float | None = None
+    group_index: float | None = None
+    sample_spacing_m: float | None = None  # distance between two trace points
+    samples_db: Any = field(default=None, compare=False, repr=False)  # numpy array [dB] or None
+    total_loss_db: float | None = None
+    tested_at: str = ""
+    instrument: str = ""
+    technician: str = ""
+    launch_cord_m: float | None = None  # per-trace override of testing.otdr
+    receive_cord_m: float | None = None

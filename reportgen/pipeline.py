@@ -26,6 +26,7 @@ from reportgen.export import manifest as manifest_file
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
+from reportgen.engine.otdr import OtdrAssessment, assess_otdr
 from reportgen.report.messages import PAGE_LABEL, archive_page_label, reason_text
 from reportgen.model import Project
 from reportgen.inputs.apptable import table_version
@@ -46,6 +47,7 @@ class Outcome:
     project: Project
     judgement: Judgement
     applications: ProjectApplications  # applications and transceiver power budgets per link
+    otdr: OtdrAssessment | None = None  # OTDR events paired, averaged and judged
 
 
 @dataclass(frozen=True)
@@ -70,8 +72,10 @@ def compute(project: Project) -> Outcome:
     """Steps 2 and 3: judge every result, then assess applications and power budgets."""
     log.info("Step 2: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
-    log.info("Step 3: assessing applications and transceiver power budgets")
-    return Outcome(project, judgement, assess_project(project, judgement))
+    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces",
+             len(project.otdr))
+    applications = assess_project(project, judgement)
+    return Outcome(project, judgement, applications, assess_otdr(project, judgement))
 
 
 def default_out_dir(project_dir: Path) -> Path:
@@ -91,6 +95,17 @@ def check_out_dir(project_dir: Path, out_dir: Path) -> None:
             f"({', '.join(_INPUT_FOLDERS)}); choose another with -o (default: PROJECT/report)")
     if out_real.exists() and not out_real.is_dir():
         raise ReportgenError(f"output folder {out_dir} exists and is not a folder")
+
+
+def check_out_dir_holds_no_input(project: Project, out_dir: Path) -> None:
+    """Refuse an output folder holding a file the project reads (an imported export, say): the
+    next run could read its outputs back, or overwrite evidence."""
+    out_real = Path(out_dir).resolve()
+    for shown in project.files_read:
+        if out_real in (project.root / shown).resolve().parents:
+            raise ReportgenError(
+                f"output folder {out_dir} holds {shown}, a file the project reads; choose another "
+                "with -o (default: PROJECT/report)")
 
 
 def build_now(now: datetime | None) -> datetime:
@@ -121,6 +136,7 @@ def build(
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
     project = validate_only(project_dir)
+    check_out_dir_holds_no_input(project, out_dir)
     outcome = compute(project)
     now = build_now(now)
     results_csv = results_csv_bytes(outcome.judgement.results)
@@ -144,12 +160,43 @@ def build(
     return BuildResult(out_dir, outcome, tuple(outputs))
 
 
+def write_imported(project: Project, out_dir: Path) -> tuple[str, ...]:
+    """``reportgen import --write``: the imported links as links.csv and each imported results
+    file as results/NAME.csv in ``out_dir`` (each file atomically; other files left alone)."""
+    from reportgen.export.atomic import write_files
+    from reportgen.export.contract_csv import links_csv_bytes, results_rows_csv_bytes
+
+    out_dir = Path(out_dir)
+    links = {link.link_id: link for link in project.links}
+    imported_links = [links[link_id] for source in project.imports if source.kind == "links"
+                      for link_id in source.link_ids]
+    results: dict[str, bytes] = {}
+    for source in project.imports:
+        if source.kind != "results":
+            continue
+        prefix = f"{source.file}[{source.sheet}]:" if source.sheet is not None else f"{source.file}:"
+        rows = project.results[project.results["source"].str.startswith(prefix)]
+        stem = Path(source.file).stem + (f"-{source.sheet}" if source.sheet is not None else "")
+        name = f"{stem}.csv"
+        if name in results:
+            name = f"{stem}-{source.entry}.csv"
+        results[name] = results_rows_csv_bytes(rows)
+    written = []
+    if imported_links:
+        write_files(out_dir, {"links.csv": links_csv_bytes(imported_links)})
+        written.append("links.csv")
+    if results:
+        write_files(out_dir / "results", results)
+        written += [f"results/{name}" for name in results]
+    return tuple(written)
+
+
 def summary_document(outcome: Outcome, now: datetime, version: str,
                      digest: str | None = None) -> dict[str, Any]:
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
                                     now=now, version=version, reason_text=reason_text,
-                                    digest=digest)
+                                    otdr=outcome.otdr, digest=digest)
 
 
 @dataclass(frozen=True)
@@ -194,12 +241,10 @@ def attachments_of(archive: Archive, summary_json: bytes) -> list[Any]:
 
 
 def report_view_archive(archive: Archive, signer: str = "") -> Any:
-    """The digest, file list and signer the report prints (cover and appendix)."""
-    from reportgen.report.viewmodel import ArchiveFileView, ArchiveView
+    """The digest and signer the report prints (cover, acceptance block, appendix)."""
+    from reportgen.report.viewmodel import ArchiveView
 
-    return ArchiveView(archive.digest, tuple(
-        ArchiveFileView(entry["path"], entry["size"], entry["sha256"])
-        for entry in archive.document["files"]), signer)
+    return ArchiveView(archive.digest, signer)
 
 
 def render_report(outcome: Outcome, *, now: datetime, version: str,
@@ -217,7 +262,7 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
     log.info("Step 4: rendering the report")
     document = render.build_report(
         outcome.project, outcome.judgement, now=now, version=version,
-        applications=outcome.applications,
+        applications=outcome.applications, otdr=outcome.otdr,
         archive=(report_view_archive(archive, sign_key.subject if sign_key is not None else "")
                  if archive is not None else None))
 

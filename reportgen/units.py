@@ -52,6 +52,17 @@ def received_power_dbm(launch_dbm: float, loss_db: float) -> float:
     return launch_dbm - loss_db
 
 
+# Speed of light in vacuum [m/s]: exact by the definition of the metre (SI Brochure, 9th
+# edition, 2019, BIPM: c = 299 792 458 m/s).
+SPEED_OF_LIGHT_M_PER_S: Final = 299_792_458.0
+
+
+def distance_from_time(round_trip_s: float, group_index: float) -> float:
+    """Distance along a fiber [m] of an OTDR echo arriving ``round_trip_s`` after the pulse
+    left: d = c·t/(2·n_g) (the light goes there and back at c/n_g)."""
+    return SPEED_OF_LIGHT_M_PER_S * round_trip_s / (2.0 * group_index)
+
+
 def ft_to_m(length_ft: float) -> float:
     """Length from feet to metres."""
     return length_ft * M_PER_FT

@@ -69,6 +69,8 @@ def make_results(rows: list[dict]) -> pd.DataFrame:
             "technician": row.get("technician", ""),
             "measured_length_m": row.get("measured_length_m", float("nan")),
             "note": row.get("note", ""),
+            "source": row.get("source", f"{row.get('source_file', 'results/r.csv')}:"
+                                        f"{row.get('source_line', index + 2)}"),
         })
     frame = pd.DataFrame(full, columns=list(RESULT_COLUMNS))
     return frame.astype({"strand": "int64", "wavelength_nm": "int64", "loss_db": "float64",
@@ -201,3 +203,62 @@ def printed_page_refs(reader: pypdf.PdfReader, page_index: int) -> list[tuple[st
 
 __all__ = ["TEST_LIMITS", "make_link", "make_results", "make_project", "Plant",
            "write_large_project", "tree_digest", "well_formed", "printed_page_refs"]
+
+
+# ------------------------------------------------------------ synthetic OTDR traces
+# A physical model of a one-way OTDR trace, for the LSA tests, the demo's .sor files
+# (benchmarks/make_otdr_demo.py) and the reading benchmark. Everything is in dB of power:
+# - backscatter falls by the fiber attenuation α·x (one way; the instrument shows one-way dB);
+# - a splice or connector drops the level by its loss from its position on;
+# - a reflective event adds, over one pulse length, the reflected power R [dB, e.g. -14.4 for
+#   a glass/air end] to the backscatter, whose level for a pulse of τ ns is the backscatter
+#   coefficient B (dB for 1 ns) + 10·log10(τ); the sum is clipped at the top of the scale;
+# - past the fiber end only the noise floor is left;
+# - Gaussian noise of noise_db (standard deviation, dB) on every sample, from a seeded generator.
+
+
+def synth_sor(events, fiber_end_m: float, *, spacing_m: float = 1.0, group_index: float = 1.4682,
+              alpha_db_per_km: float = 0.35, pulse_ns: int = 100, noise_db: float = 0.02,
+              seed: int = 0, start_db: float = -8.0, floor_db: float = -45.0,
+              backscatter_db: float = -80.0, end_reflectance_db: float = -14.4,
+              extra_m: float = 300.0, **fields):
+    """A ``SorFile`` of a trace over the fiber with ``events`` (position_m, loss_db, reflectance_db
+    or None); the launch at 0 and the end at ``fiber_end_m`` are added. ``fields``: SorFile fields."""
+    import numpy as np
+
+    from reportgen.inputs.sor import SorEvent, SorFile
+    from reportgen.units import SPEED_OF_LIGHT_M_PER_S as c
+
+    def one_way_100ps(x_m: float) -> int:
+        return round(x_m * group_index / c / 1e-10)
+
+    data_spacing = round(spacing_m * group_index / c / 1e-10 * 10_000)
+    spacing = data_spacing * 1e-10 / 10_000 * c / group_index  # as the file will say
+    count = int((fiber_end_m + extra_m) / spacing)
+    x = np.arange(count) * spacing
+    level = start_db - alpha_db_per_km * x / 1000.0
+    for position, loss, _refl in events:
+        level = level - np.where(x >= position, loss, 0.0)
+    pulse_m = c * pulse_ns * 1e-9 / (2 * group_index)
+    power = 10 ** (level / 10)
+    bs_db = backscatter_db + 10 * np.log10(pulse_ns)
+    for position, _loss, refl in [*events, (0.0, 0.0, -50.0), (fiber_end_m, 0.0, end_reflectance_db)]:
+        if refl is None:
+            continue
+        inside = (x >= position) & (x < position + pulse_m)
+        power = power + np.where(inside, 10 ** ((level + refl - bs_db) / 10), 0.0)
+    power = np.where(x > fiber_end_m + pulse_m, 10 ** (floor_db / 10), power)
+    rng = np.random.default_rng(seed)
+    samples = np.minimum(10 * np.log10(power) + rng.normal(0.0, noise_db, count), 0.0)
+    sor_events = [SorEvent(0, 0.0, -50.0, "1F9999LS")]
+    for position, loss, refl in events:
+        code = "1F9999LS" if refl is not None else "0F9999LS"
+        sor_events.append(SorEvent(one_way_100ps(position), loss, refl if refl is not None else 0.0, code,
+                                   slope_db_per_km=alpha_db_per_km))
+    sor_events.append(SorEvent(one_way_100ps(fiber_end_m), 0.0, end_reflectance_db, "1E9999LS"))
+    total = sum(loss for _p, loss, _r in events) + alpha_db_per_km * fiber_end_m / 1000
+    values = dict(group_index=group_index, pulse_width_ns=pulse_ns, data_spacing=data_spacing,
+                  backscatter_db=backscatter_db, events=tuple(sor_events), total_loss_db=round(total, 3),
+                  samples_db=samples)
+    values.update(fields)
+    return SorFile(**values)

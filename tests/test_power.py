@@ -3,9 +3,9 @@
 Transceiver values: IEEE 802.3 clause 52 average launch and receive powers
 (informative acceptance values; verified, secondary — reference-values §5):
 
-    10GBASE-SR  tx −7.3..−1.0 dBm   rx sensitivity −9.9 dBm   overload −1.0 dBm
-    10GBASE-LR  tx −8.2..+0.5 dBm   rx sensitivity −14.4 dBm  overload +0.5 dBm
-    10GBASE-ER  tx −4.7..+4.0 dBm   rx sensitivity −15.8 dBm  overload −1.0 dBm
+    10GBASE-SR  tx −7.3..−1.0 dBm   rx min (average) −9.9 dBm   overload −1.0 dBm
+    10GBASE-LR  tx −8.2..+0.5 dBm   rx min (average) −14.4 dBm  overload +0.5 dBm
+    10GBASE-ER  tx −4.7..+4.0 dBm   rx min (average) −15.8 dBm  overload −1.0 dBm
 
 Received power = launched power − loss (common practice, reference-values §7).
 """
@@ -36,11 +36,11 @@ from reportgen.engine.power import (
 from tests.builders import TEST_LIMITS, make_link, make_project
 
 # IEEE 802.3 cl. 52 (verified, secondary)
-SR = Transceiver("sr", 850, tx_min_dbm=-7.3, tx_max_dbm=-1.0, rx_sensitivity_dbm=-9.9,
+SR = Transceiver("sr", 850, tx_min_dbm=-7.3, tx_max_dbm=-1.0, rx_min_average_dbm=-9.9,
                  rx_overload_dbm=-1.0)
-LR = Transceiver("lr", 1310, tx_min_dbm=-8.2, tx_max_dbm=0.5, rx_sensitivity_dbm=-14.4,
+LR = Transceiver("lr", 1310, tx_min_dbm=-8.2, tx_max_dbm=0.5, rx_min_average_dbm=-14.4,
                  rx_overload_dbm=0.5)
-ER = Transceiver("er", 1550, tx_min_dbm=-4.7, tx_max_dbm=4.0, rx_sensitivity_dbm=-15.8,
+ER = Transceiver("er", 1550, tx_min_dbm=-4.7, tx_max_dbm=4.0, rx_min_average_dbm=-15.8,
                  rx_overload_dbm=-1.0)
 
 
@@ -67,7 +67,7 @@ def test_tx_min_minus_rx_min_equals_channel_loss(application, fiber, transceiver
     # reference-values §5: a consistency check between clause 52's powers and its channel loss
     # (SR on OM3 2.6 dB verified, secondary; LR 6.2 dB from memory, derived this way).
     channel_db = load_applications().get(application).limits_for(fiber).max_loss_db
-    assert transceiver.tx_min_dbm - transceiver.rx_sensitivity_dbm == pytest.approx(channel_db)
+    assert transceiver.tx_min_dbm - transceiver.rx_min_average_dbm == pytest.approx(channel_db)
     # a channel at exactly its maximum loss leaves zero low margin: still ok
     *_, low, high, attenuator, verdict = power_window(transceiver, channel_db, channel_db, ())
     assert low == pytest.approx(0.0, abs=1e-9)
@@ -99,7 +99,7 @@ def test_sr_link_measured_ok():
     assert power.to_json() == {
         "transceiver": "sr", "basis": "measured", "wavelength_nm": 850,
         "rx_min_dbm": -9.3, "rx_max_dbm": -2.2, "low_margin_db": 0.6, "high_margin_db": 1.2,
-        "attenuator_db": None, "verdict": "ok",
+        "attenuator_db": None, "verdict": "ok", "end_allowance_db": 0.0,
     }
 
 
@@ -253,7 +253,7 @@ def test_window_follows_launch_minus_loss(loss_a, loss_b):
     rx_min, rx_max, low, high, _, _ = power_window(ER, worst, least, ())
     assert rx_min == pytest.approx(ER.tx_min_dbm - worst)
     assert rx_max == pytest.approx(ER.tx_max_dbm - least)
-    assert low == pytest.approx(rx_min - ER.rx_sensitivity_dbm)
+    assert low == pytest.approx(rx_min - ER.rx_min_average_dbm)
     assert high == pytest.approx(ER.rx_overload_dbm - rx_max)
     assert rx_max >= rx_min
 
@@ -287,7 +287,7 @@ def test_level_diagram_is_wellformed_grayscale_and_deterministic():
     for key in ("receiver", "launch", "highest", "lowest", "window"):
         assert LABELS[key] in text
     assert "attenuator 5.0 dB" in text  # the recommended attenuator is drawn
-    assert "overload \u22121.0 dBm" in text and "sensitivity \u221215.8 dBm" in text
+    assert "overload \u22121.0 dBm" in text and "receive min. \u221215.8 dBm" in text
     colours = {v for e in root.iter() for k, v in e.attrib.items() if k in ("stroke", "fill")}
     assert colours <= {"#000", "#555", "#888", "#fff", "none", f"url(#{_pattern_id(root)})"}
 

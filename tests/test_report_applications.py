@@ -24,9 +24,9 @@ HOSTILE = "<b>optic</b>"
 
 # IEEE 802.3 clause 52 average launch and receive powers of 10GBASE-SR and 10GBASE-ER
 # (informative acceptance values; verified, secondary — reference-values §5).
-SR = Transceiver("sr", 850, tx_min_dbm=-7.3, tx_max_dbm=-1.0, rx_sensitivity_dbm=-9.9,
+SR = Transceiver("sr", 850, tx_min_dbm=-7.3, tx_max_dbm=-1.0, rx_min_average_dbm=-9.9,
                  rx_overload_dbm=-1.0, description=HOSTILE)
-ER = Transceiver("er", 1550, tx_min_dbm=-4.7, tx_max_dbm=4.0, rx_sensitivity_dbm=-15.8,
+ER = Transceiver("er", 1550, tx_min_dbm=-4.7, tx_max_dbm=4.0, rx_min_average_dbm=-15.8,
                  rx_overload_dbm=-1.0, description="10GBASE-ER optic")
 
 
@@ -105,9 +105,9 @@ def test_power_verdicts_numbers_and_attenuator(hand_doc):
     fine = block(sheet(html, "SR-FINE"), "power_heading")
     assert tag("ok") in fine and "-8.30 to -2.00 dBm" in fine
     assert ">1.60</span> dB" in fine and ">1.00</span> dB" in fine  # margin, headroom
-    # SR-WEAK: −7.3 − 3.2 = −10.50 dBm, 0.60 dB under the −9.9 dBm sensitivity.
+    # SR-WEAK: −7.3 − 3.2 = −10.50 dBm, 0.60 dB under the −9.9 dBm receive minimum.
     weak = block(sheet(html, "SR-WEAK"), "power_heading")
-    assert tag("too-weak") in weak and "0.60 dB below the sensitivity" in weak
+    assert tag("too-weak") in weak and "0.60 dB below the receive minimum" in weak
     assert messages.TEXT["power_attenuator_label"] not in weak
     # ER-HOT at 1550 nm: 4.0 − 0.5 = +3.50 dBm, 4.50 dB over the −1.0 dBm overload; the
     # smallest of 1, 2, 3, 5 … dB (the default list) that is ≥ 4.50 is 5 dB, and then
@@ -160,7 +160,7 @@ def test_project_section_matrix_and_power_list_in_the_front(hand_doc):
 def test_appendix_names_rules_and_sources(hand_doc):
     appendix = hand_doc.bodies[-1]
     section = appendix.split('id="appx-applications"')[1].split("</section>")[0]
-    assert "tx_min \u2212 worst loss, tx_max \u2212 least" in section
+    assert "tx_min \u2212 (worst loss + end allowance), tx_max \u2212 least" in section
     assert "IEEE 802.3 cl. 52" in section and "10GBASE-SR" in section
     assert "1.00, 2.00, 3.00, 5.00" in section  # the attenuators on offer
     # Only the fiber types in use: the OM1 row of 10GBASE-SR is not shown.
@@ -191,13 +191,13 @@ def test_split_groups_cuts_rows_and_marks_continuations():
 def test_demo_project_power_verdicts():
     # Values from the hand-worked examples in docs/project-format.md §9: CB-02 carries a
     # 10GBASE-ER optic over 0.58-0.61 dB, too strong by 4.42 dB, 5 dB attenuator;
-    # A-BB-11 carries 10GBASE-SR over up to 3.12 dB, 0.52 dB under the sensitivity.
+    # A-BB-11 carries 10GBASE-SR over up to 3.12 dB, 0.52 dB under the receive minimum.
     doc = render(load_project(DEMO))
     cb02 = block(sheet(doc.html, "CB-02"), "power_heading")
     assert tag("too-strong") in cb02 and "4.42 dB above the overload level" in cb02
     assert "<strong>5.00 dB</strong>" in cb02
     abb11 = block(sheet(doc.html, "A-BB-11"), "power_heading")
-    assert tag("too-weak") in abb11 and "0.52 dB below the sensitivity" in abb11
+    assert tag("too-weak") in abb11 and "0.52 dB below the receive minimum" in abb11
     # §9 again: A-BB-11 exceeds the 10GBASE-SR channel loss for OM4 (2.9 dB).
     apps = block(sheet(doc.html, "A-BB-11"), "link_apps_heading")
     assert "too much loss at 850 nm: 3.12 dB measured, 2.90 dB allowed" in apps

@@ -118,8 +118,10 @@ def test_every_result_row_prints_the_dB_texts_of_results_csv(demo):
     assert len(tables.worst) == len(anchors) == 30  # every link sheet was read (demo: 30 links)
     for link_id, anchor in anchors.items():
         mine = [r for r in rows if r["link_id"] == link_id]
-        judged = Counter((r["strand"], r["wavelength_nm"], r["loss_db"], r["limit_db"],
-                          r["margin_db"]) for r in mine if r["verdict"] in ("pass", "fail"))
+        # a result without a cabling limit (not-judged) prints a dash for limit and margin
+        judged = Counter((r["strand"], r["wavelength_nm"], r["loss_db"], r["limit_db"] or "\u2014",
+                          r["margin_db"] or "\u2014") for r in mine
+                         if r["verdict"] in ("pass", "fail", "not-judged"))
         printed = Counter((c[0], c[1], c[3], c[4], c[5])
                           for c in tables.rows.get((anchor, "results"), []))
         assert printed == judged, link_id
@@ -130,7 +132,8 @@ def test_every_result_row_prints_the_dB_texts_of_results_csv(demo):
     # every dB cell of results.csv has exactly two decimals (or is empty: no margin)
     for row in rows:
         for column in ("loss_db", "limit_db", "margin_db"):
-            assert TWO_DECIMALS.fullmatch(row[column]) or (column == "margin_db" and row[column] == "")
+            assert TWO_DECIMALS.fullmatch(row[column]) or (
+                row[column] == "" and (column == "margin_db" or row["verdict"] == "not-judged"))
 
 
 def test_worst_margin_per_link_is_the_summary_number(demo):

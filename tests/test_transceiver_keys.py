@@ -28,7 +28,7 @@ def test_receive_minimum_is_read_under_either_key(make_project, written):
     project = load_project(make_project({"project.yaml": Y.replace(OLD, written)}))
     sr = project.transceivers["sr"]
     # IEEE 802.3 cl. 52, 10GBASE-SR: average receive power min −9.9 dBm, max −1.0 dBm
-    assert (sr.rx_sensitivity_dbm, sr.rx_overload_dbm) == (-9.9, -1.0)
+    assert (sr.rx_min_average_dbm, sr.rx_overload_dbm) == (-9.9, -1.0)
 
 
 def test_both_keys_at_once_are_refused(make_project):

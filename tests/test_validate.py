@@ -425,7 +425,7 @@ def test_minimal_project_loads_with_defaults(make_project):
         InstrumentKind.LIGHT_SOURCE, "00417", date(2030, 3, 1))
     assert meter.kind is InstrumentKind.POWER_METER
     assert project.components["split-1x8"].loss_db == 10.5
-    assert project.transceivers["sr"].rx_sensitivity_dbm == -9.9
+    assert project.transceivers["sr"].rx_min_average_dbm == -9.9
     assert project.result_files == ("results/day1.csv",)
 
 
@@ -436,7 +436,7 @@ def test_results_frame_has_the_model_columns_and_dtypes(make_project):
         "source_file": "str", "source_line": "int64", "link_id": "str", "strand": "int64",
         "wavelength_nm": "int64", "direction": "str", "loss_db": "float64",
         "tested_at": "datetime64[ns]", "tested_at_text": "str", "instrument": "object",
-        "technician": "str", "measured_length_m": "float64", "note": "str",
+        "technician": "str", "measured_length_m": "float64", "note": "str", "source": "str",
     }
     row = results.iloc[0]
     assert (row.source_file, row.source_line, row.link_id, row.strand, row.wavelength_nm) == (
@@ -566,6 +566,18 @@ def test_results_loss_values_are_exact_floats(make_project):
 def test_files_read_lists_every_project_file_the_inputs_stage_opened():
     from reportgen.inputs.project import load_project as load
     project = load(Path(__file__).resolve().parent.parent / "demo_project")
+    traces = tuple(f"otdr/{link}-s1-{wl}-{d}.sor" for link in ("CB-01", "CB-03", "CB-07")
+                   for wl in (1310, 1550) for d in ("ab", "ba"))
     assert project.files_read == (
-        "assets/logo.svg", "links.csv", "project.yaml", "results/day1-building-a.csv",
-        "results/day2-campus.csv", "results/day2-retests.csv")
+        "assets/logo.svg", "exports/retests-2026-04-16.csv", "links.csv", *traces,
+        "profiles/handheld-meter.yaml", "project.yaml", "results/day1-building-a.csv",
+        "results/day2-campus.csv", "results/day3-pon-1490.csv")
+
+
+def test_a_limit_file_name_too_long_for_the_file_system_is_a_clear_problem(make_project):
+    # found by tests/test_fuzz.py: a 400-character name made stat() raise "File name too long"
+    yaml = ("project:\n  title: T\n  contractor: {name: C}\n"
+            f"testing:\n  limits: {'9' * 400}\n  reference_method: one-cord\n")
+    with pytest.raises(InputError) as caught:
+        load_project(make_project({"project.yaml": yaml}))
+    assert ("project.yaml", "testing.limits") in [(p.file, p.field) for p in caught.value.problems]

@@ -4,12 +4,25 @@ The table ships as data (``reportgen/data/applications.yaml``), every value with
 source and status. A link is checked against an application on its fiber type [1]_:
 
 - the fiber type must have a row in the entry (else *not specified*);
-- the documented length (``Link.length_m``) must not exceed the row's maximum;
+- the documented length (``Link.length_m``) must not exceed the row's maximum, where
+  the row sets one (a PON class whose standard sets no reach has none);
 - at every test wavelength the entry needs, the worst judged loss over strands and
-  directions must not exceed the maximum channel loss;
+  directions, plus the end allowance, must not exceed the maximum channel loss;
 - where the row has a minimum loss (PON classes), the least judged loss over strands
-  and directions must not fall below it;
+  and directions, as measured, must not fall below it;
 - a needed wavelength without any judged result leaves the application *untested*.
+
+The end allowance (:func:`reportgen.engine.budget.end_allowance_db`) is the limit set's
+connection allowance for each end connection the reference method left out of the
+measured loss (two-cord one, three-cord two) [2]_: a channel in service has both. It is
+added on the maximum side only, so both sides of a check are conservative.
+
+A result at a wavelength the limit set has no attenuation for (a PON wavelength such as
+1490 nm) is not judged against the cabling limit but counts here like a judged one
+(``counted`` in ``Judgement.results``).
+
+An assessment is *within uncertainty* when a compared loss lies within ``uncertainty_db``
+of the limit it was compared with (either side), as for cabling results.
 
 Verdicts: ``not-supported`` when any check fails (every reason is listed, untested
 wavelengths included), else ``untested`` when a needed wavelength has no judged result,
@@ -26,6 +39,8 @@ References
 .. [1] IEEE 802.3 (Ethernet PMD channel insertion loss and reach), INCITS FC-PI
    (Fibre Channel), ITU-T G.984.2 / G.987.2 / G.9807.1 (PON optical path loss
    classes); values and their status in the data file.
+.. [2] IEC 61280-4-1 / IEC 61280-4-2: end connections inside the measured loss per
+   reference method (reference-values §3).
 """
 from __future__ import annotations
 
@@ -36,9 +51,11 @@ from typing import TYPE_CHECKING, Any, Final
 import numpy as np
 import pandas as pd
 
+from reportgen.engine.budget import end_allowance_db
 from reportgen.engine.power import (
     LossRange,
     PowerBudget,
+    PowerVerdict,
     assess_power,
     budget_limits_db,
     judged_loss_table,
@@ -68,6 +85,12 @@ class Reason:
     wavelength_nm: int | None = None
     value: float | None = None  # measured loss [dB] or documented length [m]
     limit: float | None = None  # the limit it was compared with, same unit
+    added_db: float = 0.0  # end allowance added to the measured loss (too-much-loss only)
+
+    @property
+    def checked(self) -> float | None:
+        """The loss compared with the limit: measured + end allowance (too-much-loss). [dB]"""
+        return None if self.value is None else self.value + self.added_db
 
 
 # Words for a reason, supplied by the report (reportgen.report.messages.reason_text).
@@ -86,6 +109,13 @@ class ApplicationAssessment:
     reasons: tuple[Reason, ...] = ()
     min_loss_db: float | None = None
     least_loss_db: float | None = None  # lowest judged loss over the needed wavelengths
+    end_allowance_db: float = 0.0  # added to worst_loss_db before the maximum check
+    within_uncertainty: bool = False  # a compared loss within uncertainty_db of its limit
+
+    @property
+    def checked_loss_db(self) -> float | None:
+        """The loss compared with ``max_loss_db``: worst loss + end allowance. [dB]"""
+        return None if self.worst_loss_db is None else self.worst_loss_db + self.end_allowance_db
 
     def to_json(self, reason_text: ReasonText) -> dict[str, Any]:
         """One element of a link's ``applications`` list in summary.json."""
@@ -96,6 +126,8 @@ class ApplicationAssessment:
             "worst_loss_db": round_db(self.worst_loss_db),
             "max_length_m": round_length_m(self.max_length_m),
             "reasons": [reason_text(reason) for reason in self.reasons],
+            "end_allowance_db": round_db(self.end_allowance_db),
+            "within_uncertainty": self.within_uncertainty,
         }
 
 
@@ -143,6 +175,8 @@ class ApplicationChecks:
     too_little_loss: np.ndarray  # (L, E, W) bool
     untested: np.ndarray  # (L, E, W) bool: needed, no judged result
     verdict_codes: np.ndarray  # (L, E) index into VERDICTS
+    within_uncertainty: np.ndarray  # (L, E) bool: a compared loss within uncertainty_db
+    end_allowance_db: float = 0.0  # added to the worst loss on the maximum side
 
     def verdict(self, link_at: int, entry_at: int) -> ApplicationVerdict:
         return VERDICTS[int(self.verdict_codes[link_at, entry_at])]
@@ -169,7 +203,7 @@ class ApplicationChecks:
         if not self.specified[link_at, entry_at]:
             return ApplicationAssessment(entry.id, verdict, None, None, None,
                                          (Reason(ReasonKind.FIBER_TYPE, entry.id, fiber),))
-        max_length_m = float(self.max_length_m[link_at, entry_at])
+        max_length_m = _float(self.max_length_m[link_at, entry_at])
         max_loss_db = float(self.max_loss_db[link_at, entry_at])
         min_loss_db = _float(self.min_loss_db[link_at, entry_at])
         reasons: list[Reason] = []
@@ -189,13 +223,14 @@ class ApplicationChecks:
             least.append(least_db)
             if self.too_much_loss[link_at, entry_at, at]:
                 reasons.append(Reason(ReasonKind.TOO_MUCH_LOSS, entry.id, fiber, wl,
-                                      worst_db, max_loss_db))
+                                      worst_db, max_loss_db, self.end_allowance_db))
             if self.too_little_loss[link_at, entry_at, at]:
                 reasons.append(Reason(ReasonKind.TOO_LITTLE_LOSS, entry.id, fiber, wl,
                                       least_db, min_loss_db))
         return ApplicationAssessment(
             entry.id, verdict, max_loss_db, max(worst, default=None), max_length_m,
-            tuple(reasons + untested), min_loss_db, min(least, default=None))
+            tuple(reasons + untested), min_loss_db, min(least, default=None),
+            self.end_allowance_db, bool(self.within_uncertainty[link_at, entry_at]))
 
 
 def _float(value: float) -> float | None:
@@ -203,7 +238,11 @@ def _float(value: float) -> float | None:
 
 
 def check_applications(
-    links: Sequence[Link], losses: pd.DataFrame, table: ApplicationTable
+    links: Sequence[Link],
+    losses: pd.DataFrame,
+    table: ApplicationTable,
+    end_allowance_db: float = 0.0,
+    uncertainty_db: float = 0.0,
 ) -> ApplicationChecks:
     """Check every link against every entry of the application table, all at once.
 
@@ -218,6 +257,12 @@ def check_applications(
         least judged loss [dB] per link and wavelength.
     table : ApplicationTable
         The application table (``Project.applications``).
+    end_allowance_db : float
+        :func:`reportgen.engine.budget.end_allowance_db`: added to the worst loss before
+        the maximum channel loss check [2]_. [dB]
+    uncertainty_db : float
+        ``testing.uncertainty_db``: a compared loss this close to its limit marks the
+        assessment within uncertainty. [dB]
 
     Returns
     -------
@@ -256,7 +301,8 @@ def check_applications(
         for e, entry in enumerate(entries):
             row = entry.limits_for(fiber_type)
             if row is not None:
-                limits[f, e] = (row.max_length_m, row.max_loss_db,
+                limits[f, e] = (np.nan if row.max_length_m is None else row.max_length_m,
+                                row.max_loss_db,
                                 np.nan if row.min_loss_db is None else row.min_loss_db)
     needs = np.zeros((len(entries), len(wavelengths_nm)), dtype=bool)
     for e, entry in enumerate(entries):
@@ -271,8 +317,14 @@ def check_applications(
     needed = specified[:, :, None] & needs[None, :, :]
     judged = needed & measured[:, None, :]
     untested = needed & ~measured[:, None, :]
-    too_much_loss = judged & (worst_db[:, None, :] > (max_loss_db + TOLERANCE_DB)[:, :, None])
+    checked_db = worst_db + end_allowance_db  # [2]: the maximum side only
+    too_much_loss = judged & (checked_db[:, None, :] > (max_loss_db + TOLERANCE_DB)[:, :, None])
     too_little_loss = judged & (least_db[:, None, :] < (min_loss_db - TOLERANCE_DB)[:, :, None])
+    near = uncertainty_db + TOLERANCE_DB
+    with np.errstate(invalid="ignore"):
+        within = judged & (
+            (np.abs(checked_db[:, None, :] - max_loss_db[:, :, None]) <= near)
+            | (np.abs(least_db[:, None, :] - min_loss_db[:, :, None]) <= near))
     failed = ~specified | too_long | (too_much_loss | too_little_loss).any(axis=2)
     verdict_codes = np.where(failed, _NOT_SUPPORTED,
                              np.where(untested.any(axis=2), _UNTESTED, _SUPPORTED)).astype(np.int8)
@@ -281,7 +333,8 @@ def check_applications(
         worst_loss_db=worst_db, least_loss_db=least_db, max_length_m=max_length_m,
         max_loss_db=max_loss_db, min_loss_db=min_loss_db, specified=specified,
         too_long=too_long, too_much_loss=too_much_loss, too_little_loss=too_little_loss,
-        untested=untested, verdict_codes=verdict_codes)
+        untested=untested, verdict_codes=verdict_codes, within_uncertainty=within.any(axis=2),
+        end_allowance_db=float(end_allowance_db))
 
 
 def _first_positions(table: ApplicationTable) -> dict[str, int]:
@@ -305,7 +358,11 @@ def link_applications(checks: ApplicationChecks) -> tuple[LinkApplications, ...]
 
 
 def assess_link_applications(
-    link: Link, measured: Mapping[int, LossRange], table: ApplicationTable
+    link: Link,
+    measured: Mapping[int, LossRange],
+    table: ApplicationTable,
+    end_allowance_db: float = 0.0,
+    uncertainty_db: float = 0.0,
 ) -> LinkApplications:
     """:func:`check_applications` of one link, given its judged losses by wavelength."""
     rows = sorted(measured.items())
@@ -313,7 +370,8 @@ def assess_link_applications(
                            "wavelength_nm": [wl for wl, _ in rows],
                            "worst_loss_db": [r.worst_loss_db for _, r in rows],
                            "least_loss_db": [r.least_loss_db for _, r in rows]})
-    [found] = link_applications(check_applications([link], losses, table))
+    [found] = link_applications(check_applications([link], losses, table, end_allowance_db,
+                                                   uncertainty_db))
     return found
 
 
@@ -338,6 +396,34 @@ class ProjectApplications:
             object.__setattr__(self, "_by_link_id", index)
         return index[link_id]
 
+    def transceiver_differences(self, link_id: str) -> tuple[tuple[str, float, float], ...]:
+        """Listed applications whose verdict disagrees with the link's transceiver window.
+
+        ``(application id, max channel loss, window)`` [dB] for each listed application
+        checked at the wavelength the power budget used whose maximum channel loss is not the
+        optic's window (lowest launch power − receive minimum) and whose verdict says the
+        opposite of the power verdict on the weak side: supported while the optic is too weak,
+        or not supported for loss while the optic receives enough. The transceiver window
+        decides whether the optic works (its power verdict).
+        """
+        power = self.power.get(link_id)
+        if power is None:
+            return ()
+        found = []
+        for assessment in self.for_link(link_id).assessments:
+            if assessment.max_loss_db is None:
+                continue
+            if power.wavelength_nm not in self.table.get(assessment.id).test_wavelengths_nm:
+                continue
+            if abs(assessment.max_loss_db - power.window_db) <= TOLERANCE_DB:
+                continue
+            too_weak = power.verdict is PowerVerdict.TOO_WEAK
+            supported = assessment.verdict is ApplicationVerdict.SUPPORTED
+            over_loss = any(r.kind is ReasonKind.TOO_MUCH_LOSS for r in assessment.reasons)
+            if (supported and too_weak) or (over_loss and not too_weak):
+                found.append((assessment.id, assessment.max_loss_db, power.window_db))
+        return tuple(found)
+
     def link_json(self, link_id: str, reason_text: ReasonText) -> dict[str, Any]:
         """``applications``, ``capable`` and ``power`` of one link for summary.json."""
         power = self.power.get(link_id)
@@ -355,7 +441,9 @@ def assess_project(project: Project, judgement: Judgement) -> ProjectApplication
     ``judgement`` is :class:`reportgen.engine.judge.Judgement` (its ``results`` and ``budgets``).
     """
     losses = judged_loss_table(judgement.results)
-    checks = check_applications(project.links, losses, project.applications)
+    allowance_db = end_allowance_db(project.testing.reference_method, project.limits)
+    checks = check_applications(project.links, losses, project.applications, allowance_db,
+                                project.testing.uncertainty_db)
     links = project.links
     power: dict[str, PowerBudget | None] = dict.fromkeys(link.link_id for link in links)
     fitted = [link for link in links if link.transceiver]
@@ -365,7 +453,8 @@ def assess_project(project: Project, judgement: Judgement) -> ProjectApplication
         attenuators_db = project.testing.attenuators_db
         for link in fitted:
             power[link.link_id] = assess_power(
-                link, project.transceivers[link.transceiver], ranges, limits, attenuators_db)
+                link, project.transceivers[link.transceiver], ranges, limits, attenuators_db,
+                allowance_db)
     return ProjectApplications(link_applications(checks), power, project.applications, checks)
 
 

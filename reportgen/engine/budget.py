@@ -30,6 +30,23 @@ END_CONNECTIONS: Final[Mapping[ReferenceMethod, int]] = {
 }
 
 
+def left_out_end_connections(method: ReferenceMethod) -> int:
+    """End connections the reference method leaves out of the measured loss [2]_."""
+    return 2 - END_CONNECTIONS[method]
+
+
+def end_allowance_db(method: ReferenceMethod, limits: LimitSet) -> float:
+    """What a channel check against a maximum adds to a measured loss. [dB]
+
+    The limit set's connection allowance for each end connection the reference method
+    left out [2]_ (one-cord 0, two-cord one, three-cord two): a channel in service has both
+    end connections, so a loss measured without them is raised by their allowance before it
+    is compared with an application's maximum channel loss or a receiver's minimum power.
+    Checks against a minimum (PON class minimum, receiver overload) use the loss as measured.
+    """
+    return left_out_end_connections(method) * limits.connection_db
+
+
 class TermKind(StrEnum):
     FIBER = "fiber"
     CONNECTIONS = "connections"

@@ -5,6 +5,12 @@ Rules (project folder format v1, "How a result is judged" [1]_):
 - margin_db = limit_db − loss_db; a result passes when loss_db ≤ limit_db.
 - |margin| ≤ uncertainty_db: flagged ``within-uncertainty`` (it still passes or fails).
 - loss_db < −uncertainty_db: ``invalid`` (a bad reference); not judged, counts as missing.
+- loss_db < 0: flagged ``negative-loss`` (a passive link cannot amplify light), whether or
+  not it is invalid.
+- A result at a wavelength the limit set has no attenuation for (accepted only where an
+  application of the link needs it, e.g. 1490 nm for a PON class): ``not-judged``,
+  flagged ``no-cabling-limit``, no limit or margin; it counts for the applications
+  (``counted``) but not for the link verdict.
 - Several rows for one link, strand, wavelength and direction: the latest ``tested_at``
   is judged, the others are ``superseded`` (ties: the row read last wins). When the
   latest row is invalid, that result is missing.
@@ -143,7 +149,7 @@ def judge_results(
     instruments: Sequence[Instrument] = (),
     required: pd.DataFrame | None = None,
 ) -> pd.DataFrame:
-    """Add limit_db, margin_db, verdict, flags and judged to every result row.
+    """Add limit_db, margin_db, verdict, flags, judged and counted to every result row.
 
     Rows keep their input order (files by name, then line).
     """
@@ -158,24 +164,28 @@ def judge_results(
     latest_array, group_size = _latest_of_groups(
         _key_codes([frame], KEY)[0], frame["tested_at"])
     latest = pd.Series(latest_array, index=frame.index)
+    no_limit = frame["limit_db"].isna()
     passed = frame["loss_db"] <= frame["limit_db"] + TOLERANCE_DB
     verdict = np.select(
-        [invalid, ~latest, passed],
-        [ResultVerdict.INVALID.value, ResultVerdict.SUPERSEDED.value, ResultVerdict.PASS.value],
+        [invalid, ~latest, no_limit, passed],
+        [ResultVerdict.INVALID.value, ResultVerdict.SUPERSEDED.value,
+         ResultVerdict.NOT_JUDGED.value, ResultVerdict.PASS.value],
         ResultVerdict.FAIL.value,
     )
     frame["verdict"] = pd.Series(verdict, index=frame.index, dtype=object)
     frame.loc[invalid, "margin_db"] = np.nan
-    frame["judged"] = latest & ~invalid
+    frame["judged"] = latest & ~invalid & ~no_limit
+    frame["counted"] = latest & ~invalid  # the losses application checks use
     flags = {
         ResultFlag.WITHIN_UNCERTAINTY: ~invalid
         & (frame["margin_db"].abs() <= uncertainty_db + TOLERANCE_DB),
-        ResultFlag.NEGATIVE_LOSS: invalid,
+        ResultFlag.NEGATIVE_LOSS: frame["loss_db"] < 0,
         ResultFlag.RETEST: latest & (group_size > 1),
         ResultFlag.CALIBRATION_OVERDUE: _calibration_overdue(frame, instruments),
         ResultFlag.NOT_REQUIRED: pd.Series(
             False if required is None else ~np.isin(frame_pairs, required_pairs),
-            index=frame.index),
+            index=frame.index) & ~no_limit,
+        ResultFlag.NO_CABLING_LIMIT: no_limit,
     }
     frame["flags"] = _flag_tuples(frame.index, flags)
     return frame

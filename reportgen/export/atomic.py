@@ -68,3 +68,19 @@ def _fsync_dir(folder: Path) -> None:
         pass
     finally:
         os.close(fd)
+
+
+def write_files(out_dir: Path, outputs: Mapping[str, bytes]) -> None:
+    """Write each of ``outputs`` (names of files in ``out_dir``) atomically, leaving every other
+    file of the folder alone (``reportgen import --write``)."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    staged: list[tuple[str, Path]] = []
+    try:
+        for name, data in outputs.items():
+            staged.append((name, _stage(out_dir, name, data)))
+        for name, temp in staged:
+            os.replace(temp, out_dir / name)
+    finally:
+        for _, temp in staged:
+            temp.unlink(missing_ok=True)
+    _fsync_dir(out_dir)

@@ -28,6 +28,10 @@ MIME_TYPES: Final = {
     ".csv": "text/csv", ".yaml": "application/yaml", ".yml": "application/yaml",
     ".json": "application/json", ".png": "image/png", ".jpg": "image/jpeg",
     ".jpeg": "image/jpeg", ".svg": "image/svg+xml", ".txt": "text/plain",
+    ".tsv": "text/tab-separated-values",
+    ".xlsx": "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
+    ".xlsm": "application/vnd.ms-excel.sheet.macroEnabled.12",
+    ".xls": "application/vnd.ms-excel", ".ods": "application/vnd.oasis.opendocument.spreadsheet",
 }
 OTHER_MIME_TYPE: Final = "application/octet-stream"
 

@@ -18,10 +18,10 @@ LIST_SEPARATOR: Final = ";"
 RESULTS_COLUMNS: Final = (
     "link_id", "strand", "wavelength_nm", "direction", "loss_db", "tested_at", "limit_db",
     "margin_db", "verdict", "flags", "technician", "instrument", "measured_length_m", "note",
-    "source_file", "source_line",
+    "source_file", "source_line", "source",
 )
 _TEXT_COLUMNS: Final = ("link_id", "direction", "tested_at", "verdict", "flags", "technician",
-                        "instrument", "note", "source_file")
+                        "instrument", "note", "source_file", "source")
 # Spreadsheet programs treat a cell starting with one of these as a formula.
 _FORMULA_STARTS: Final = ("=", "+", "-", "@", "\t", "\r")
 
@@ -50,6 +50,7 @@ def results_csv_bytes(results: pd.DataFrame) -> bytes:
         "note": results["note"],
         "source_file": results["source_file"],
         "source_line": results["source_line"],
+        "source": results["source"],
     }, columns=list(RESULTS_COLUMNS))
     for column in _TEXT_COLUMNS:
         frame[column] = frame[column].fillna("").astype(str).map(neutralise_cell)

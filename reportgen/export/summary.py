@@ -8,9 +8,10 @@ from typing import Any, Final
 
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.judge import Judgement
+from reportgen.engine.otdr import OtdrAssessment
 from reportgen.export.manifest import MANIFEST_NAME
 from reportgen.model import Project
-from reportgen.units import round_db
+from reportgen.units import round_db, round_length_m
 
 SUMMARY_FORMAT: Final = 1
 
@@ -46,6 +47,7 @@ def json_bytes(document: Mapping[str, Any]) -> bytes:
 def summary_document(project: Project, judgement: Judgement, applications: ProjectApplications,
                      *, now: datetime, version: str,
                      reason_text: Callable[[Any], str],
+                     otdr: OtdrAssessment | None = None,
                      digest: str | None = None) -> dict[str, Any]:
     """summary.json: the contract's keys plus applications and power per link.
 
@@ -55,7 +57,8 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
     ``reason_text`` words an application's reasons (the report's text catalogue, so
     summary.json and the report say the same).
     """
-    link_extras = {link.link_id: applications.link_json(link.link_id, reason_text)
+    link_extras = {link.link_id: {**applications.link_json(link.link_id, reason_text),
+                                  **({"otdr": otdr_json(otdr, link.link_id)} if otdr is not None else {})}
                    for link in project.links}
     meta = {
         "project": {"title": project.info.title, "job_number": project.info.job_number},
@@ -67,3 +70,38 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
     if digest is not None:
         meta["archive"] = {"manifest": MANIFEST_NAME, "manifest_sha256": digest}
     return summary_dict(project, judgement, link_extras, meta)
+
+
+def otdr_json(otdr: OtdrAssessment, link_id: str) -> list[dict[str, Any]]:
+    """A link's ``otdr`` key: per strand and wavelength, its events and checks ([] without OTDR)."""
+    return [
+        {
+            "strand": strand.strand,
+            "wavelength_nm": strand.wavelength_nm,
+            "directions": [trace.direction.value for trace in strand.traces],
+            "files": [trace.source_file for trace in strand.traces],
+            "verdict": strand.verdict,
+            "length_m": round_length_m(strand.length_m),
+            "documented_length_m": round_length_m(strand.documented_length_m),
+            "end_to_end_loss_db": round_db(strand.end_to_end_loss_db),
+            "insertion_loss_db": round_db(strand.insertion_loss_db),
+            "findings": list(strand.findings),
+            "events": [
+                {
+                    "position_m": round_length_m(event.position_m),
+                    "kind": event.kind.value,
+                    "loss_ab_db": round_db(event.loss_ab_db),
+                    "loss_ba_db": round_db(event.loss_ba_db),
+                    "loss_avg_db": round_db(event.loss_avg_db),
+                    "lsa_ab_db": round_db(event.lsa_ab_db),
+                    "lsa_ba_db": round_db(event.lsa_ba_db),
+                    "reflectance_db": round_db(event.reflectance_db),
+                    "allowance_db": round_db(event.allowance_db),
+                    "verdict": event.verdict,
+                    "flags": list(event.flags),
+                }
+                for event in strand.events
+            ],
+        }
+        for strand in otdr.for_link(link_id)
+    ]

@@ -158,11 +158,15 @@ def _fiber_rows(check: Checker, value: Any, where: str) -> tuple[FiberLimits, ..
             check.problem(f"{at}.status", "'verified, secondary', 'derived' or 'from memory'",
                           *(() if status is None else (status,)))
             status = None
-        max_length_m = _loss(check, raw.get("max_length_m"), f"{at}.max_length_m")
+        # null: the standard sets no reach for this row (not checked); the key must be given
+        no_reach = "max_length_m" in raw and raw["max_length_m"] is None
+        max_length_m = None if no_reach else _loss(check, raw.get("max_length_m"),
+                                                   f"{at}.max_length_m")
         max_loss_db = _loss(check, raw.get("max_loss_db"), f"{at}.max_loss_db")
         min_loss = raw.get("min_loss_db")
         min_loss_db = None if min_loss is None else _loss(check, min_loss, f"{at}.min_loss_db")
-        if (not types or status is None or max_length_m is None or max_loss_db is None
+        if (not types or status is None or (max_length_m is None and not no_reach)
+                or max_loss_db is None
                 or (min_loss is not None and min_loss_db is None)):
             complete = False
             continue

@@ -18,8 +18,8 @@ MAX_COMPONENT_LOSS_DB: Final = 60.0
 POWER_RANGE_DBM: Final = (-60.0, 30.0)  # sanity bounds for transceiver powers
 # The receiver's lowest average receive power. IEEE 802.3 gives it as "average receive
 # power, min" (informative), not as the receiver sensitivity (stated in OMA). The earlier
-# key name is still accepted; giving both is refused. The model keeps the field name
-# Transceiver.rx_sensitivity_dbm for this value.
+# key name is still accepted; giving both is refused. The model's field is
+# Transceiver.rx_min_average_dbm.
 RX_MIN_KEY: Final = "rx_min_average_dbm"
 RX_MIN_OLD_KEY: Final = "rx_sensitivity_dbm"
 
@@ -90,7 +90,7 @@ def transceivers(check: Checker, value: Any) -> dict[str, Transceiver] | None:
                           f"{RX_MIN_OLD_KEY}, not both", entry[RX_MIN_OLD_KEY])
             complete = False
         keys = {"tx_min_dbm": "tx_min_dbm", "tx_max_dbm": "tx_max_dbm",
-                "rx_sensitivity_dbm": rx_min_key, "rx_overload_dbm": "rx_overload_dbm"}
+                "rx_min_average_dbm": rx_min_key, "rx_overload_dbm": "rx_overload_dbm"}
         powers = {}
         for field, name in keys.items():  # model field, key as written
             raw = check.get(entry, name, f"{path}.{name}", f"a power from {low:g} to {high:g} dBm",
@@ -103,10 +103,10 @@ def transceivers(check: Checker, value: Any) -> dict[str, Transceiver] | None:
             check.problem(f"{path}.tx_max_dbm",
                           f"at least tx_min_dbm ({powers['tx_min_dbm']:g} dBm)", entry["tx_max_dbm"])
             complete = False
-        if powers["rx_sensitivity_dbm"] is not None and powers["rx_overload_dbm"] is not None \
-                and powers["rx_sensitivity_dbm"] >= powers["rx_overload_dbm"]:
+        if powers["rx_min_average_dbm"] is not None and powers["rx_overload_dbm"] is not None \
+                and powers["rx_min_average_dbm"] >= powers["rx_overload_dbm"]:
             check.problem(f"{path}.rx_overload_dbm",
-                          f"more than {rx_min_key} ({powers['rx_sensitivity_dbm']:g} dBm)",
+                          f"more than {rx_min_key} ({powers['rx_min_average_dbm']:g} dBm)",
                           entry["rx_overload_dbm"])
             complete = False
         if transceiver_id is None or wavelength_nm is None or None in powers.values():

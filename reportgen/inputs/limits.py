@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from importlib import resources
+import re
 from pathlib import Path
 from typing import Any, Final
 
@@ -167,3 +168,37 @@ def describe_rows(limits: LimitSet) -> list[dict[str, Any]]:
                     "source": limits.source_for(f"{key_root}.{fiber.value}"),
                 })
     return rows
+
+
+# A citation in the built-in data ends with its status in parentheses, in the words of
+# DEVELOPERS.md ("verified, secondary", "derived", "from memory"), sometimes per wavelength:
+# "ISO/IEC 11801-1:2017, cabled fibre attenuation, OM3/OM4 (850 nm verified, secondary;
+# 1300 nm from memory)". A project's own limit file may give none.
+STATUS_WORDS: Final[tuple[str, ...]] = ("verified", "derived", "from memory")
+_STATUS_AT_END = re.compile(r"^(?P<citation>.*?)\s*\((?P<status>[^()]*)\)\s*$", re.S)
+_WAVELENGTHS = re.compile(r"^\s*(?P<nm>[0-9]+(?:\s*(?:,|and)\s*[0-9]+)*)\s*nm\s+(?P<rest>.*)$", re.S)
+
+
+def split_citation(text: str) -> tuple[str, str]:
+    """``(citation, status)`` of a source text; status "" when the text states none."""
+    found = _STATUS_AT_END.match(text)
+    if found and any(word in found["status"] for word in STATUS_WORDS):
+        return found["citation"].rstrip(" ,;"), found["status"].strip()
+    return text.strip(), ""
+
+
+def status_at(status: str, wavelength_nm: int | None = None) -> str:
+    """The part of ``status`` that applies at ``wavelength_nm`` ("850 nm verified, ...;
+    1300 nm from memory" at 1300 gives "from memory"); the whole status otherwise."""
+    if wavelength_nm is None or ";" not in status:
+        return status
+    for part in status.split(";"):
+        found = _WAVELENGTHS.match(part)
+        if found and str(wavelength_nm) in re.split(r"\s*(?:,|and)\s*", found["nm"].strip()):
+            return found["rest"].strip()
+    return status
+
+
+def is_unconfirmed(status: str) -> bool:
+    """True when a status says a value was recalled, not checked against a source."""
+    return "from memory" in status

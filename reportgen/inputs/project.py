@@ -8,6 +8,7 @@ within a CSV file by line). The folder is only read, never written.
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Final
@@ -15,9 +16,11 @@ from typing import Final
 import pandas as pd
 
 from reportgen.inputs.apptable import check_application_ids, load_applications
+from reportgen.inputs import imports as importing
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
-from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_bytes, read_yaml
+from reportgen.inputs.otdr import load_otdr
+from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_bytes, read_yaml, shown_path
 from reportgen.model import (
     Component,
     FiberType,
@@ -27,6 +30,8 @@ from reportgen.model import (
     Plant,
     Project,
     Transceiver,
+    ImportSource,
+    InputFile,
 )
 from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, enum_choices, match_enum
 from reportgen.inputs.project_yaml import Settings, check_project_yaml
@@ -40,6 +45,11 @@ RESULTS_DIR: Final = "results"
 LINK_REQUIRED: Final = (("link_id",), ("end_a",), ("end_b",), ("fiber_type",), LENGTH_COLUMNS)
 LINK_OPTIONAL: Final = ("plant", "strands", "connections", "splices", "components", "applications",
                         "transceiver", "notes")
+# What an import profile's rows become (``as:``), with the columns of that contract table.
+IMPORT_KINDS: Final = {
+    "results": importing.Columns(RESULT_REQUIRED, RESULT_OPTIONAL),
+    "links": importing.Columns(LINK_REQUIRED, LINK_OPTIONAL),
+}
 MAX_STRANDS: Final = 1000
 MAX_COUNT: Final = 1000  # connections or splices on one link
 
@@ -59,6 +69,7 @@ def load_project(project_dir: Path) -> Project:
     problems: list[InputProblem] = []
 
     settings = Settings()
+    data = None
     yaml_path = root / "project.yaml"
     if yaml_path.is_symlink() and not is_inside(root, yaml_path):
         problems.append(outside_problem("project.yaml"))
@@ -71,8 +82,20 @@ def load_project(project_dir: Path) -> Project:
         if data is not None or not yaml_problems:  # None with problems: unreadable or bad syntax
             settings, setting_problems = check_project_yaml(data, root)
             problems += setting_problems
+    entries, import_problems, profiles_read, declared = importing.check_imports(data, root, IMPORT_KINDS)
+    problems += import_problems
+    link_entries = [entry for entry in entries if entry.profile.kind == "links"]
+    result_entries = [entry for entry in entries if entry.profile.kind == "results"]
+    sources: list[ImportSource] = []
 
-    links, all_link_ids, link_problems = _load_links(root, settings)
+    links, all_link_ids, link_problems = _load_links(root, settings,
+                                                      required="links" not in declared)
+    if link_entries:
+        links, all_link_ids, imported_problems = _import_links(root, link_entries, settings, links,
+                                                               all_link_ids, sources)
+        link_problems += imported_problems
+    if declared.count("links") > len(link_entries):  # an entry of links could not be used
+        all_link_ids = None  # which link_ids exist is unknown: results are not checked against them
     problems += _wavelength_coverage(settings, links)
     problems += link_problems
     applications = load_applications()
@@ -81,7 +104,9 @@ def load_project(project_dir: Path) -> Project:
 
     context = Context(links=None if all_link_ids is None else {link.link_id: link for link in links},
                       all_link_ids=all_link_ids, limits=settings.limits,
-                      instruments=settings.instruments, units=settings.units)
+                      instruments=settings.instruments, units=settings.units,
+                      applications=applications,
+                      links_from=_links_from(root, sources))
     frames: list[pd.DataFrame] = []
     files: list[str] = []
     for path in _result_files(root, problems):
@@ -99,11 +124,30 @@ def load_project(project_dir: Path) -> Project:
         problems += _by_line(table_problems + row_problems)
         if frame is not None and len(frame):
             frames.append(frame)
+    for entry in result_entries:
+        for path in entry.files:
+            shown = shown_path(root, path)
+            imported, import_problems = _imported_table(entry, path, shown)
+            if imported is None:
+                problems += import_problems
+                continue
+            sources.append(imported.source)
+            frame, row_problems = check_results(imported.table, context)
+            problems += imported.remap(row_problems, positions=True)
+            if frame is not None and len(frame) and not imported.problems:
+                frame["source_line"] = imported.numbers
+                frame["source"] = importing.source_texts(shown, imported.sheet, imported.numbers)
+                frames.append(frame)
+
+    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids)
+    problems += otdr_problems
 
     if problems:
         raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
     results = pd.concat(frames, ignore_index=True) if frames else empty_results()
+    files_read = _files_read(root, settings, [*files, *profiles_read, *(source.file for source in sources),
+                                              *otdr_files])
     return Project(
         root=root,
         info=settings.info,
@@ -117,8 +161,11 @@ def load_project(project_dir: Path) -> Project:
         technicians=settings.technicians,
         report=settings.report,
         result_files=tuple(files),
-        files_read=_files_read(root, settings, files),
+        files_read=files_read,
+        input_files=_input_files(root, files_read, results, links, sources),
+        imports=tuple(sorted(sources, key=lambda source: source.entry)),
         applications=applications,
+        otdr=otdr_traces,
     )
 
 
@@ -147,12 +194,73 @@ def _result_files(root: Path, problems: list[InputProblem]) -> list[Path]:
         key=lambda path: path.name)
 
 
-def _load_links(root: Path, settings: Settings
+def _links_from(root: Path, sources: Sequence[ImportSource]) -> str:
+    """Where the links were read, as a results message names it: links.csv, or the files
+    imported as links (with links.csv when it is there too)."""
+    files = [source.file for source in sources if source.kind == "links"]
+    if not files:
+        return LINKS_FILE
+    if (root / LINKS_FILE).is_file():
+        files.insert(0, LINKS_FILE)
+    return "the links of " + ", ".join(dict.fromkeys(files))
+
+
+def _imported_table(entry: importing.Entry, path: Path, shown: str
+                    ) -> tuple[importing.ImportedTable | None, list[InputProblem]]:
+    """A file of an ``imports:`` entry read and mapped to our fields (None with its problems)."""
+    grid, problems = importing.read_grid(path, shown, entry.profile, entry.sheet)
+    if grid is None:
+        return None, problems
+    return importing.build_table(grid, entry, IMPORT_KINDS[entry.profile.kind])
+
+
+def _import_links(root: Path, entries: Sequence[importing.Entry], settings: Settings, links: list[Link],
+                  all_link_ids: frozenset[str] | None, sources: list[ImportSource]
+                  ) -> tuple[list[Link], frozenset[str] | None, list[InputProblem]]:
+    """Links of the ``imports:`` entries with ``as: links``, after those of links.csv; a link_id
+    given twice across files is a problem at its second place."""
+    problems: list[InputProblem] = []
+    first: dict[str, str] = {link.link_id: f"{LINKS_FILE} line {link.line}" for link in links}
+    ids = set(all_link_ids or ())
+    failed = all_link_ids is None
+    links = list(links)
+    for entry in entries:
+        for path in entry.files:
+            shown = shown_path(root, path)
+            imported, table_problems = _imported_table(entry, path, shown)
+            if imported is None:
+                problems += table_problems
+                failed = True
+                continue
+            table = imported.table
+            found, row_problems = check_links(table, settings)
+            kept: list[Link] = []
+            for link in found:
+                place = (f"{shown} [{imported.sheet}] row {link.line}" if imported.sheet is not None
+                         else f"{shown} line {link.line}")
+                if link.link_id in first:
+                    row_problems.append(InputProblem(shown, link.line, "link_id",
+                                                     f"a link_id not used before (first used in "
+                                                     f"{first[link.link_id]})", clip(link.link_id)))
+                    continue
+                first[link.link_id] = place
+                kept.append(link)
+            problems += imported.remap(row_problems, positions=False)
+            links += kept
+            ids |= set(table.columns.get("link_id", ())) - {""}
+            sources.append(dataclasses.replace(imported.source,
+                                               link_ids=tuple(link.link_id for link in kept)))
+    return links, None if failed else frozenset(ids), problems
+
+
+def _load_links(root: Path, settings: Settings, *, required: bool = True
                 ) -> tuple[list[Link], frozenset[str] | None, list[InputProblem]]:
     path = root / LINKS_FILE
     if path.is_symlink() and not is_inside(root, path):
         return [], None, [outside_problem(LINKS_FILE)]
     if not path.is_file():
+        if not required:  # an import entry provides the links
+            return [], frozenset(), []
         return [], None, [InputProblem(LINKS_FILE, None, None,
                                        "a file links.csv in the project folder (not found)")]
     table, problems = read_csv(path, LINKS_FILE, required=LINK_REQUIRED, optional=LINK_OPTIONAL,
@@ -172,7 +280,8 @@ def _printable(problem: InputProblem) -> InputProblem:
     column names and ids come from the folder); ``found`` is shown quoted and escaped anyway."""
     return dataclasses.replace(problem, file=printable(problem.file),
                                field=None if problem.field is None else printable(problem.field),
-                               expected=printable(problem.expected))
+                               expected=printable(problem.expected),
+                               sheet=None if problem.sheet is None else printable(problem.sheet))
 
 
 def _by_line(problems: list[InputProblem]) -> list[InputProblem]:
@@ -350,9 +459,28 @@ def _wavelength_coverage(settings: Settings, links: Sequence[Link]) -> list[Inpu
     return problems
 
 
+def _input_files(root: Path, files_read: Sequence[str], results: pd.DataFrame, links: Sequence[Link],
+                 sources: Sequence[ImportSource]) -> tuple[InputFile, ...]:
+    """Every file read with its size, SHA-256 and the rows it gave (the report's appendix)."""
+    per_file = results["source_file"].value_counts().to_dict() if len(results) else {}
+    imported_links: dict[str, int] = {}
+    for source in sources:
+        imported_links[source.file] = imported_links.get(source.file, 0) + len(source.link_ids)
+    native_links = len(links) - sum(imported_links.values())
+    listed = []
+    for shown in files_read:
+        data = (root / shown).read_bytes()  # read and checked above; hashed as it is now
+        count = native_links if shown == LINKS_FILE else imported_links.get(shown, 0)
+        listed.append(InputFile(shown, len(data), hashlib.sha256(data).hexdigest(),
+                                results=int(per_file.get(shown, 0)), links=count))
+    return tuple(listed)
+
+
 def _files_read(root: Path, settings: Settings, result_files: list[str]) -> tuple[str, ...]:
     """Project-relative paths of every file read (see ``Project.files_read``)."""
-    read = {"project.yaml", "links.csv", *result_files}
+    read = {"project.yaml", *result_files}
+    if (root / LINKS_FILE).is_file():
+        read.add(LINKS_FILE)
     if settings.limits is not None and settings.limits.origin != "built-in":
         read.add(settings.limits.origin)
     logo = settings.info.contractor.logo if settings.info is not None else None

@@ -18,6 +18,7 @@ from reportgen.inputs import catalogs
 from reportgen.inputs.checker import Checker as _BaseChecker, enum_choices, match_enum
 from reportgen.inputs import limits as limit_sets
 from reportgen.errors import InputError, InputProblem
+from reportgen.inputs.otdr import OTDR_KEYS, otdr_settings
 from reportgen.inputs.files import is_inside, resolve_inside, shown_path, size_in_mb
 from reportgen.model import (
     DEFAULT_ATTENUATORS_DB,
@@ -47,7 +48,8 @@ KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "project": ("title", "site", "customer", "job_number", "contractor"),
     "project.contractor": ("name", "address", "phone", "email", "logo"),
     "testing": ("limits", "reference_method", "directions", "uncertainty_db", "units",
-                "wavelengths", "attenuators_db"),
+                "wavelengths", "attenuators_db", "otdr"),
+    "testing.otdr": OTDR_KEYS,
     "report": ("paper", "templates"),
 }
 REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
@@ -161,13 +163,14 @@ def _testing(check: Checker, data: Mapping[str, Any]):
                                       "of 0 dB or more", 0.0, math.inf)
     override = _wavelengths(check, testing.get("wavelengths"))
     attenuators_db = _attenuators(check, testing.get("attenuators_db"))
+    otdr = otdr_settings(check, testing)
     if None in (limits_id, method, directions, units, uncertainty_db, attenuators_db):
         return None, limit_set, override, units
     wavelengths_nm = dict(DEFAULT_WAVELENGTHS_NM)
     wavelengths_nm.update(override or {})
     result = Testing(limits=limits_id, reference_method=method, directions=directions,
                      uncertainty_db=uncertainty_db, units=units, wavelengths_nm=wavelengths_nm,
-                     attenuators_db=attenuators_db)
+                     attenuators_db=attenuators_db, otdr=otdr)
     return result, limit_set, override, units
 
 
@@ -182,7 +185,11 @@ def _limit_set(check: Checker, written: str) -> tuple[LimitSet | None, str | Non
     if resolved is None:
         check.problem("testing.limits", expected + " (symbolic links are followed)", written)
         return None, None
-    if not resolved.is_file():
+    try:
+        is_file = resolved.is_file()
+    except OSError:  # a name the file system refuses, e.g. longer than its limit
+        is_file = False
+    if not is_file:
         close = difflib.get_close_matches(written.lower(), ids, n=1, cutoff=0.6)
         hint = f" (did you mean {close[0]}?)" if close else ""
         check.problem("testing.limits", expected + hint, written)

@@ -17,7 +17,8 @@ from reportgen.inputs.csvread import CsvTable
 from reportgen.errors import InputProblem
 from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, WAVELENGTH_RANGE_NM, by_lower_case, closest
 from reportgen.inputs.files import clip
-from reportgen.model import RESULT_COLUMNS, Direction, Instrument, LengthUnit, LimitSet, Link, Plant
+from reportgen.model import (RESULT_COLUMNS, ApplicationTable, Direction, Instrument, LengthUnit,
+                             LimitSet, Link, Plant)
 from reportgen.units import M_PER_FT
 
 REQUIRED: Final = (("link_id",), ("wavelength_nm",), ("loss_db",), ("tested_at",))
@@ -41,6 +42,30 @@ class Context:
     limits: LimitSet | None
     instruments: tuple[Instrument, ...] | None
     units: LengthUnit | None
+    # The application table: a wavelength the limit set lacks is accepted for a link when an
+    # application the link lists needs it (a PON class at 1490 nm), not judged by the cabling limit.
+    applications: ApplicationTable | None = None
+    links_from: str = "links.csv"  # where the links were read, as messages name it
+
+
+def application_wavelengths_nm(link: Link, limits: LimitSet,
+                               applications: ApplicationTable | None) -> tuple[int, ...]:
+    """Test wavelengths [nm] the link's listed applications need and the limit set lacks.
+
+    Results there are accepted (not judged against the cabling limit, counted for the
+    application); sorted, without repeats.
+    """
+    if applications is None or not link.applications:
+        return ()
+    defined = set(limits.wavelengths_nm(link.fiber_type, link.plant))
+    needed: set[int] = set()
+    for application_id in link.applications:
+        if application_id not in applications:
+            continue
+        entry = applications.get(application_id)
+        if entry.limits_for(link.fiber_type) is not None:
+            needed |= set(entry.test_wavelengths_nm)
+    return tuple(sorted(needed - defined))
 
 
 class _Collector:
@@ -125,7 +150,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         defined = np.array([link_id in context.all_link_ids for link_id in unique_ids], dtype=bool)
         unknown = ~empty_id & ~defined[id_codes] if len(id_codes) else empty_id
         hints = _link_hints(unique_ids, defined, context.all_link_ids)
-        out.add(unknown, "link_id", lambda row: f"a link_id defined in links.csv{hints[id_codes[row]]}",
+        out.add(unknown, "link_id", lambda row: f"a link_id defined in {context.links_from}{hints[id_codes[row]]}",
                 link_ids)
     links = context.links or {}
     unique_links = [links.get(link_id) for link_id in unique_ids]
@@ -160,15 +185,23 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         ~_whole(wavelengths) | (wavelengths < low_nm) | (wavelengths > high_nm))
     allowed_text = np.full(n, "", dtype=object)
     if context.limits is not None and links:
-        groups = sorted({(link.fiber_type, link.plant) for link in links.values()})
-        index_of = {group: index for index, group in enumerate(groups)}
-        group_of = per_link(lambda link: index_of[link.fiber_type, link.plant], -1).astype(int)
-        for index, (fiber, plant) in enumerate(groups):
-            allowed = context.limits.wavelengths_nm(fiber, plant)
+        limits = context.limits
+
+        def group(link: Link) -> tuple:
+            return (link.fiber_type, link.plant,
+                    application_wavelengths_nm(link, limits, context.applications))
+
+        groups = sorted({group(link) for link in links.values()})
+        index_of = {key: index for index, key in enumerate(groups)}
+        group_of = per_link(lambda link: index_of[group(link)], -1).astype(int)
+        for index, (fiber, plant, extra) in enumerate(groups):
+            allowed = limits.wavelengths_nm(fiber, plant) + extra
             outside = (plant is Plant.OUTSIDE
-                       and fiber in context.limits.attenuation_db_per_km_outside)
-            described = (f"one of {', '.join(map(str, allowed))} for {fiber.value}"
-                         + (", outside plant" if outside else ""))
+                       and fiber in limits.attenuation_db_per_km_outside)
+            described = (f"one of {', '.join(map(str, limits.wavelengths_nm(fiber, plant)))} "
+                         f"for {fiber.value}" + (", outside plant" if outside else "")
+                         + (f", or {', '.join(map(str, extra))} for the link's applications"
+                            if extra else ""))
             in_group = group_of == index
             allowed_text[in_group] = described
             wavelength_bad |= in_group & (wavelength_text != "") & ~np.isin(wavelengths, allowed)
@@ -232,6 +265,7 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
         "technician": pd.Series(column["technician"], dtype="str"),
         "measured_length_m": measured_m,
         "note": pd.Series(column["note"], dtype="str"),
+        "source": table.file + ":" + pd.Series(table.lines, dtype="str"),
     }, columns=list(RESULT_COLUMNS))
     return frame, []
 
@@ -244,7 +278,7 @@ def empty_results() -> pd.DataFrame:
         "strand": np.zeros(0, np.int64), "wavelength_nm": np.zeros(0, np.int64), "direction": text,
         "loss_db": np.zeros(0, np.float64), "tested_at": np.zeros(0, "datetime64[ns]"),
         "tested_at_text": text, "instrument": pd.Series([], dtype=object), "technician": text,
-        "measured_length_m": np.zeros(0, np.float64), "note": text,
+        "measured_length_m": np.zeros(0, np.float64), "note": text, "source": text,
     }, columns=list(RESULT_COLUMNS))
 
 

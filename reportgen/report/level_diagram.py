@@ -3,7 +3,7 @@
 The optical level falls from the launch power through each part of the link to the
 receiver, drawn twice: the highest level (maximum launch power, least loss: solid
 line, round markers) and the lowest (minimum launch power, worst loss: dashed line,
-square markers). The receiver's window, sensitivity to overload, is a hatched band.
+square markers). The receiver's window, lowest average receive power to overload, is a hatched band.
 Readable in grayscale: lines differ by dash pattern and marker shape, not colour.
 
 How the loss is split over the parts: each part (end connections, fiber, connections
@@ -46,7 +46,7 @@ LABELS: Final[dict[str, str]] = {
     "lowest": "lowest level",
     "window": "receiver window",
     "overload": "overload {value} dBm",
-    "sensitivity": "sensitivity {value} dBm",
+    "receive-minimum": "receive min. {value} dBm",
     "axis": "dBm",
     "ok": "within the receiver window",
     "too-weak": "too weak",
@@ -147,7 +147,7 @@ def power_level_svg(
 
     left, right, top, bottom = 52, 150, 44, 50
     plot_w, plot_h = width_px - left - right, height_px - top - bottom
-    levels = high + low + [power.rx_sensitivity_dbm, power.rx_overload_dbm]
+    levels = high + low + [power.rx_min_average_dbm, power.rx_overload_dbm]
     tick_db = _tick_step_db(max(levels) - min(levels) + 2)
     y_top = math.ceil((max(levels) + 0.5) / tick_db) * tick_db
     y_bottom = math.floor((min(levels) - 0.5) / tick_db) * tick_db
@@ -173,10 +173,10 @@ def power_level_svg(
         f"{escape(labels[power.verdict.value])}</text>",
     ]
     # receiver window band and its two edges
-    y_over, y_sens = y(power.rx_overload_dbm), y(power.rx_sensitivity_dbm)
+    y_over, y_sens = y(power.rx_overload_dbm), y(power.rx_min_average_dbm)
     out.append(f'<rect x="{left}" y="{y_over}" width="{plot_w}" height="{round(y_sens - y_over, 1)}" '
                f'fill="url(#{uid}-hatch)" fill-opacity="0.5" stroke="none"/>')
-    for level, key in ((power.rx_overload_dbm, "overload"), (power.rx_sensitivity_dbm, "sensitivity")):
+    for level, key in ((power.rx_overload_dbm, "overload"), (power.rx_min_average_dbm, "receive-minimum")):
         out.append(f'<line x1="{left}" y1="{y(level)}" x2="{left + plot_w}" y2="{y(level)}" '
                    f'stroke="#555" stroke-width="1"/>')
         out.append(f'<text x="{left + plot_w + 6}" y="{y(level) + 3}">'

@@ -87,7 +87,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "action_more": "\u2026 and {count} more on the link\u2019s sheet",
     # register (summary table)
     "register_heading": "Link register",
-    "register_intro": "Every link in the order of links.csv. Worst margin is the smallest margin of the judged results.",
+    "register_intro": "Every link in the order of the link list. Worst margin is the smallest margin of the judged results.",
     "col_link": "Link",
     "col_ends": "From \u2192 to",
     "col_fiber": "Fiber",
@@ -173,6 +173,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "direction_ba": "B\u2192A",
     "direction_any": "either",
     "source_row": "{file} line {line}",
+    "source_sheet_row": "{file}, sheet {sheet}, row {line}",
     "diagram_heading": "Loss build-up",
     "diagram_caption": (
         "Steps: the loss the limit set allows, added up along the link (positions not to scale). "
@@ -185,6 +186,8 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "verdict_incomplete": "incomplete",
     "verdict_invalid": "invalid",
     "verdict_superseded": "superseded",
+    "verdict_not-judged": "not judged",
+    "mark_not-judged": "\u25c7",
     "mark_pass": "\u25cb",
     "mark_fail": "\u25b2",
     "mark_incomplete": "\u25cc",
@@ -196,6 +199,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "flag_retest": "retest",
     "flag_calibration-overdue": "instrument past calibration",
     "flag_not-required": "wavelength not required",
+    "flag_no-cabling-limit": "for the applications only (no cabling limit at this \u03bb)",
     # diagram labels
     "dg_end": "end",
     "dg_fiber": "fiber",
@@ -211,6 +215,8 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "verdict_supported": "supported",
     "verdict_not-supported": "not-supported",
     "verdict_untested": "untested",
+    "verdict_supported-within": "supported, within uncertainty",
+    "mark_supported-within": "\u25d0",
     "verdict_ok": "ok",
     "verdict_too-weak": "too-weak",
     "verdict_too-strong": "too-strong",
@@ -225,11 +231,29 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "cell_not-listed-not-supported": "\u00b7",
     "link_apps_heading": "Applications on this link",
     "link_apps_intro": (
-        "Each application listed for the link in links.csv, checked for {fiber_type} against its "
+        "Each application listed for the link, checked for {fiber_type} against its "
         "maximum channel loss and length. Worst loss: the highest judged loss over every strand "
         "and direction at the wavelengths the application needs."
     ),
-    "link_apps_none": "No application is listed for this link in links.csv.",
+    "link_apps_end_allowance": (
+        "The {method} reference leaves {count} of the 2 end connections out of the measured "
+        "loss; a working channel has them. {added} dB ({count} \u00d7 {connection} dB, the limit set\u2019s "
+        "connection allowance) is therefore added to the worst loss before it is compared with a "
+        "maximum (channel loss, receive minimum); minimums (PON class minimum, overload) use the "
+        "loss as measured."
+    ),
+    "link_apps_none": "No application is listed for this link.",
+    "apps_worst_plus": "{worst} + {added} = {checked}",
+    "apps_all_met_link_fails": "loss within the channel allowance; link fails its cabling limit",
+    "apps_within_uncertainty": "within {value} dB of a limit: the measurement cannot tell on which side",
+    "apps_no_reach": "none set",
+    "apps_transceiver_differs": (
+        "{application} and transceiver {transceiver} disagree. The application allows {channel} dB "
+        "of channel loss on {fiber_type}; the optic\u2019s power window allows {window} dB (its "
+        "lowest launch power, {tx_min} dBm, less its receive minimum, {rx_min} dBm). Whether this "
+        "optic works is decided by its power window, below; the application verdict above judges "
+        "the cabling against the standard\u2019s channel."
+    ),
     "col_application": "Application",
     "col_needs": "Tested at \u03bb nm",
     "col_max_channel": "Channel loss allowed dB",
@@ -246,6 +270,9 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "reason_fiber-type-not-specified": "fiber type {fiber_type} not specified for {application}",
     "reason_too-long": "too long: {value} m documented, {limit} m allowed on {fiber_type}",
     "reason_too-much-loss": "too much loss at {wavelength_nm} nm: {value} dB measured, {limit} dB allowed",
+    "reason_too-much-loss-added": (
+        "too much loss at {wavelength_nm} nm: {value} dB measured + {added} dB for the end "
+        "connections the reference left out = {checked} dB, {limit} dB allowed"),
     "reason_too-little-loss": "too little loss at {wavelength_nm} nm: {value} dB measured, class minimum {limit} dB",
     "reason_untested": "untested at {wavelength_nm} nm: no judged result",
     "power_heading": "Transceiver power budget",
@@ -261,16 +288,17 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "field_received": "Received power",
     "power_dbm_range": "{low} to {high} dBm",
     "power_received_how": "({tx_min} \u2212 {worst}) to ({tx_max} \u2212 {least})",
+    "power_received_how_added": "({tx_min} \u2212 ({worst} + {added} end allowance)) to ({tx_max} \u2212 {least})",
     "field_receiver_window": "Receiver window",
-    "power_receiver_window": "{sensitivity} dBm (sensitivity) to {overload} dBm (overload)",
-    "field_margin_low": "Margin above sensitivity",
+    "power_receiver_window": "{rx_min} dBm (lowest average receive power) to {overload} dBm (overload)",
+    "field_margin_low": "Margin above receive minimum",
     "field_headroom_high": "Headroom below overload",
-    "power_margin_how": "weakest case: lowest received power \u2212 sensitivity",
+    "power_margin_how": "weakest case: lowest received power \u2212 receive minimum",
     "power_headroom_how": "strongest case: overload \u2212 highest received power",
     "field_power_verdict": "Outcome",
     "power_says_ok": "Both the weakest and the strongest case fall inside the receiver window.",
     "power_says_too-weak": (
-        "The weakest case is {short} dB below the sensitivity. An attenuator cannot help: bring the "
+        "The weakest case is {short} dB below the receive minimum. An attenuator cannot help: bring the "
         "link loss down (clean, re-terminate, remove a connection) or use an optic with a larger "
         "power budget."
     ),
@@ -281,7 +309,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "power_says_no-fit": (
         "The strongest case is {excess} dB above the overload level, and no attenuator on the "
         "project\u2019s list ({offered} dB) brings it down while keeping the weakest case at or "
-        "above the sensitivity. Choose a different optic."
+        "above the receive minimum. Choose a different optic."
     ),
     "power_attenuator_label": "Recommended attenuator",
     "power_diagram_caption": (
@@ -292,8 +320,8 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     ),
     "apps_heading": "Applications and optics",
     "apps_intro": (
-        "Which network applications each link carries as measured, and whether the optics named "
-        "in project.yaml receive a usable level. Rules and sources are in the appendix."
+        "Which network applications each link carries as measured, and whether the optics planned "
+        "for the links receive a usable level. Rules and sources are in the appendix."
     ),
     "power_list_heading": "Transceiver power budgets",
     "power_list_intro": "Links fitted with a transceiver; those receiving too little or too much light come first.",
@@ -307,7 +335,7 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "matrix_heading": "Applications by link",
     "matrix_intro": (
         "One table per fiber type: its links against every application one of them lists or would "
-        "support as measured. Framed cells are the applications listed for the link in links.csv; "
+        "support as measured. Framed cells are the applications listed for the link; "
         "unframed grey cells are what the link would also carry."
     ),
     "matrix_group": "{fiber_type} links",
@@ -322,31 +350,40 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
         "every strand and direction of the link (worst loss) is compared with the maximum channel "
         "loss for the link\u2019s fiber type, and the documented length with the maximum length. "
         "Any failed check makes the application not-supported, with every reason listed; a needed "
-        "wavelength without a judged result leaves it untested."
+        "wavelength without a judged result leaves it untested. With a two- or three-cord "
+        "reference the measured loss lacks one or both end connections; the limit set\u2019s "
+        "connection allowance for each is added to the worst loss before the maximum is checked "
+        "(IEC 61280-4-1 / -4-2 reference methods). A compared loss within the measurement "
+        "uncertainty of its limit is marked \u201cwithin uncertainty\u201d."
     ),
     "appx_apps_pon": (
-        "PON loss classes also set a minimum: the lowest judged loss at each needed wavelength must "
-        "not fall below the class minimum, or the receivers may be overloaded."
+        "PON loss classes also set a minimum: the lowest judged loss at each needed wavelength, as "
+        "measured, must not fall below the class minimum, or the receivers may be overloaded. Each "
+        "class is checked at the wavelengths its standard names (GPON, ITU-T G.984.2: 1310 and "
+        "1490 nm; XG-PON and XGS-PON, G.987.2 / G.9807.1: 1270 and 1577 nm). Results at those "
+        "wavelengths have no cabling limit: they are shown as not judged and count only here."
     ),
     "appx_apps_power": (
         "Transceiver power. Received power = launched power \u2212 link loss (common practice). "
-        "The received power lies in the window [tx_min \u2212 worst loss, tx_max \u2212 least "
-        "loss], using the judged losses at the tested wavelength nearest the optic\u2019s (basis "
+        "The received power lies in the window [tx_min \u2212 (worst loss + end allowance), "
+        "tx_max \u2212 least loss], using the judged losses at the tested wavelength nearest the optic\u2019s (basis "
         "measured) or, when the link has no judged result, its limit (basis budget). Margin = "
-        "lowest received power \u2212 sensitivity; headroom = overload \u2212 highest received "
+        "lowest received power \u2212 receive minimum; headroom = overload \u2212 highest received "
         "power. Verdicts: ok; too-weak (margin below zero); too-strong (headroom below zero, an "
         "attenuator fits); no-fit (too strong and none fits)."
     ),
     "appx_apps_attenuator": (
-        "Attenuator: the smallest value from testing.attenuators_db ({offered} dB) that brings the "
-        "highest received power to or below the overload level while keeping the lowest at or "
-        "above the sensitivity."
+        "Attenuator: the smallest value from the project\u2019s list of attenuators ({offered} dB) "
+        "that brings the highest received power to or below the overload level while keeping the "
+        "lowest at or above the receive minimum."
     ),
     "appx_apps_table_intro": "Rows of the built-in application table used in this record: the applications shown, for the fiber types of this project.",
     "appx_apps_status": (
-        "Status: \u201cverified, secondary\u201d = read in a public source reproducing the "
-        "standard\u2019s table; \u201cderived\u201d = arithmetic on such values or a stated rule; "
-        "\u201cfrom memory\u201d = recalled without the document at hand: check before relying on it."
+        "Status: \u201cchecked against a published reproduction of the table\u201d = the value was "
+        "read in a public source reproducing the standard\u2019s table; \u201cworked out from "
+        "checked values\u201d = arithmetic on such values or a stated rule; \u201cnot checked "
+        "against the standard\u2019s text\u201d = the value has not been compared with the "
+        "standard\u2019s own text: confirm it with your copy before relying on a verdict near it."
     ),
     "col_family": "Family",
     "col_fiber_types": "Fiber types",
@@ -355,22 +392,29 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "apps_max_only": "\u2264 {high}",
     # appendix
     "appendix_heading": "Appendix",
-    "files_heading": "Files inside this report",
-    "files_intro": ("This PDF carries a copy of every file the report was made from, and the "
-                    "results and summary it produced, as attachments (open your PDF reader's "
-                    "attachment list). The manifest (manifest.json) lists each file with its "
-                    "size and SHA-256 fingerprint; the report's digest, printed on the cover and "
-                    "at the foot of every page, is the SHA-256 of the manifest. "
-                    "'reportgen verify' checks all of this and judges the measurements again."),
-    "col_file": "File",
-    "col_size_bytes": "Size (bytes)",
-    "col_sha256": "SHA-256",
+    "archive_intro": ("A copy of each of these files, of results.csv and summary.json, and a "
+                      "manifest listing every file with its size and SHA-256 (manifest.json) are "
+                      "attached to this PDF (open your PDF reader's attachment list). The "
+                      "report's digest, {digest}, printed on the cover and at the foot of every "
+                      "page, is the SHA-256 of that manifest; 'reportgen verify' checks all of "
+                      "this and judges the attached measurements again."),
     "field_digest": "Report digest",
     "signoff_digital": "Digital signature of this PDF file (signed copies only; 'reportgen verify' checks it)",
     "signed_by": "Signed digitally by {signer} when this file was made.",
     "digest_note": "SHA-256 of the manifest of the files inside this PDF",
     "instruments_heading": "Test instruments",
-    "instruments_none": "No instruments are listed in project.yaml.",
+    "files_heading": "Input files",
+    "files_intro": (
+        "The files of the project folder this report was made from, with their size and SHA-256 "
+        "checksum: a file whose checksum is the same is the same file, byte for byte. The last "
+        "columns count the results and links each file gave; every result on a link sheet names "
+        "its file and line (or sheet and row)."),
+    "col_file": "File",
+    "col_size_bytes": "Size (bytes)",
+    "col_sha256": "SHA-256",
+    "col_results": "Results",
+    "col_links": "Links",
+    "instruments_none": "No instruments are listed for this project.",
     "col_id": "Id",
     "col_kind": "Kind",
     "col_model": "Model",
@@ -412,6 +456,14 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
         "repeated, the latest test is judged and earlier ones are shown as superseded."
     ),
     "limits_heading": "Limit set and sources",
+    "limits_status_intro": (
+        "Status says how each value was checked: against a published reproduction of the "
+        "standard\u2019s table, or not yet against the standard\u2019s text (confirm those with "
+        "your copy of the standard)."
+    ),
+    "status_none": "as stated by the source named",
+    "cover_values_confirmed": "Every published value this report uses was checked against a published reproduction of its standard\u2019s table (see the appendix).",
+    "cover_values_unconfirmed": "{count} of the published values this report uses are not yet checked against the standard\u2019s text; the appendix lists each value and its status.",
     "limits_id": "Identifier",
     "limits_origin": "Origin",
     "limits_connection": "Mated connection allowance",
@@ -422,10 +474,42 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "col_table": "Construction",
     "col_alpha": "Attenuation dB/km",
     "components_heading": "Component catalogue",
-    "components_source": "project.yaml components",
+    "components_source": "loss stated for the part in this project\u2019s component catalogue",
     "safety_heading": "Safety",
     "glossary_heading": "Terms used",
     "footer_left": "{title}",
+    # OTDR results on a link sheet
+    "otdr_heading": "OTDR: events along the fiber",
+    "otdr_strand": "Strand {strand}, {wavelength} nm",
+    "otdr_length": "Fiber length measured {measured}, documented {documented} (allowed difference {tolerance}).",
+    "otdr_length_missing": "The trace shows no fiber end: length not measured.",
+    "otdr_total": "End-to-end loss by the instrument: {value} dB.",
+    "otdr_files": "Source: {files}",
+    "otdr_caption": "Both directions on one distance axis from end A (from B mirrored); each vertical stroke spans the lowest and highest sample of its pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails.",
+    "col_event_no": "No.",
+    "col_position": "Position",
+    "col_event": "Event",
+    "col_loss_ab": "Loss A→B",
+    "col_loss_ba": "Loss B→A",
+    "col_loss_avg": "Average",
+    "col_lsa": "Re-measured (LSA)",
+    "col_reflectance": "Reflectance",
+    "col_allowance_short": "Allowed",
+    "otdr_kind_launch": "launch",
+    "otdr_kind_connector": "connection",
+    "otdr_kind_splice": "splice",
+    "otdr_kind_bend": "bend",
+    "otdr_kind_reflective": "reflective event",
+    "otdr_kind_end": "fiber end",
+    "otdr_kind_other": "other",
+    "otdr_flag_negative-average": "negative average",
+    "otdr_flag_one-way": "seen from one end only",
+    "otdr_flag_in-cord": "inside a test cord",
+    "otdr_flag_lsa-differs": "trace disagrees with the instrument's table",
+    "otdr_finding_length-differs": "The measured fiber length differs from the documented length by more than allowed.",
+    "otdr_finding_connection-count": "The number of connections found differs from the link's description.",
+    "otdr_finding_splice-count": "The number of splices found differs from the link's description.",
+    "otdr_finding_il-differs": "The OTDR end-to-end loss differs from the insertion-loss result ({value} dB) by more than 0.5 dB.",
 })
 
 GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
@@ -439,12 +523,17 @@ GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
     ("splice", "A permanent joint of two fibers, fused or mechanical."),
     ("strand", "One fiber of a link, numbered from 1."),
     ("OTDR", "Optical time-domain reflectometer: shows loss and reflections along a fiber from one end."),
+    ("reflectance", "The share of light a connection sends back, in dB: the more negative, the better."),
+    ("bidirectional average", "The mean of an event's losses measured from both ends; it cancels the apparent gain or extra loss where two fibers of slightly different backscatter meet."),
+    ("LSA", "Least-squares approximation: straight lines fitted to the trace before and after an event; the step between them is the event's loss."),
     ("OM1\u2013OM5, OS1, OS1a, OS2", "Multimode (OM) and single-mode (OS) fiber categories of ISO/IEC 11801."),
     ("within uncertainty", "A result closer to its limit than the stated measurement uncertainty."),
     ("superseded", "An earlier test of the same strand, wavelength and direction, replaced by a later one."),
     ("channel loss", "The insertion loss an application allows between its transmitter and receiver, connections included."),
-    ("power budget", "Launch power minus link loss, compared with the receiver\u2019s window from sensitivity (weakest usable) to overload (strongest tolerated)."),
+    ("power budget", "Launch power minus link loss, compared with the receiver\u2019s window from its lowest average receive power (weakest usable) to overload (strongest tolerated)."),
+    ("end allowance", "The allowance of the end connections a two- or three-cord reference leaves out of the measured loss, added before an application\u2019s maximum channel loss is checked."),
     ("attenuator", "A passive part that adds a fixed loss, fitted at the receiver when the light would otherwise be too strong."),
+    ("SHA-256", "A checksum computed from every byte of a file (FIPS 180-4): a copy with the same checksum is the same file; any change gives a different one."),
 )
 
 SAFETY: Final[tuple[str, ...]] = (
@@ -461,6 +550,25 @@ def msg(key: str, /, **values: object) -> str:
     return TEXT[key].format(**values)
 
 
+# A value's status in the customer's words (the data's status vocabulary, DEVELOPERS.md).
+STATUS_TEXT: Final[tuple[tuple[str, str], ...]] = (
+    ("verified, secondary against the", "checked against a published reproduction of the"),
+    ("verified, secondary", "checked against a published reproduction of the table"),
+    ("from memory", "not checked against the standard\u2019s text: confirm with your copy"),
+    ("derived", "worked out from checked values"),
+    ("LOW confidence", "low confidence"),
+)
+
+
+def customer_status(status: str) -> str:
+    """A data status ("verified, secondary", "from memory", "850 nm verified, secondary;
+    1300 nm from memory") in words a customer understands; "" stays "" (no status given)."""
+    text = status
+    for word, meaning in STATUS_TEXT:
+        text = text.replace(word, meaning)
+    return text
+
+
 def reason_text(reason: Reason) -> str:
     """Words for why an application is not supported (or untested) on a link.
 
@@ -468,11 +576,16 @@ def reason_text(reason: Reason) -> str:
     a length, two decimals for a loss in dB). summary.json carries the same text.
     """
     number = "{:.0f}".format if reason.kind is ReasonKind.TOO_LONG else units.format_db
-    return TEXT[f"reason_{reason.kind.value}"].format(
+    key = f"reason_{reason.kind.value}"
+    if reason.kind is ReasonKind.TOO_MUCH_LOSS and reason.added_db:
+        key = "reason_too-much-loss-added"
+    return TEXT[key].format(
         application=reason.application, fiber_type=reason.fiber_type,
         wavelength_nm=reason.wavelength_nm,
         value=None if reason.value is None else number(reason.value),
-        limit=None if reason.limit is None else number(reason.limit))
+        limit=None if reason.limit is None else number(reason.limit),
+        added=units.format_db(reason.added_db),
+        checked=None if reason.checked is None else units.format_db(reason.checked))
 
 
 # Number formats: every number the report prints goes through one of these (the
@@ -498,6 +611,8 @@ def format_length(length_m: float, unit: str = "m") -> str:
 
     value = m_to_ft(length_m) if unit == "ft" else length_m
     text = f"{value:.0f}" if abs(value - round(value)) < 0.05 else f"{value:.1f}"
+    if text.startswith("-") and float(text) == 0:  # never "-0 m"
+        text = text[1:]
     return f"{text}\u00a0{unit}"
 
 

@@ -44,8 +44,10 @@ from reportgen.report import messages
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
+from reportgen.report.otdr_figure import trace_svg
+from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.viewmodel import ArchiveView, LinkView, MatrixGroup, ReportView, build_view
+from reportgen.report.viewmodel import ArchiveView, LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -178,6 +180,7 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
     )
     env.filters.update(
         db=messages.format_db,
+        status=messages.customer_status,
         dbm=messages.format_dbm,
         km=messages.format_km,
         length=functools.partial(messages.format_length, unit=length_unit),
@@ -232,7 +235,7 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
                 ("appx-limits", "limits_heading", 2)]
     if apps is not None:
         entries.append(("appx-applications", "appx_apps_heading", 2))
-    if view.archive is not None:
+    if view.input_files:
         entries.append(("appx-files", "files_heading", 2))
     entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
@@ -256,6 +259,16 @@ def power_diagrams(project: Project, judgement: Judgement, view: ReportView,
         budget = judgement.budget_table.get(link.link_id, power.wavelength_nm)
         out[link_view.anchor] = Markup(power_level_svg(power, level_steps(budget)))
     return out
+
+
+def otdr_figures(project: Project, view: ReportView, otdr: OtdrAssessment | None) -> dict[str, Markup]:
+    """The OTDR trace figure (inline SVG) of every strand and wavelength, by figure key."""
+    if otdr is None:
+        return {}
+    anchors = {link.link_id: link.anchor for link in view.links}
+    settings = project.testing.otdr
+    return {otdr_figure_key(anchors[s.link_id], s.strand, s.wavelength_nm): Markup(trace_svg(s, settings))
+            for s in otdr.strands}
 
 
 class _LossDiagrams(Mapping[str, Markup]):
@@ -287,7 +300,8 @@ class _Renderer:
     """Renders the parts of one report from one view model."""
 
     def __init__(self, env: jinja2.Environment, view: ReportView,
-                 power_svgs: Mapping[str, Markup] | None = None) -> None:
+                 power_svgs: Mapping[str, Markup] | None = None,
+                 otdr_svgs: Mapping[str, Markup] | None = None) -> None:
         self.env = env
         self.view = view
         self.template = env.get_template(TEMPLATE_MAIN)
@@ -299,6 +313,7 @@ class _Renderer:
                        "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
             "toc": toc_entries(view),
             "power_diagrams": dict(power_svgs or {}),
+            "otdr_figures": dict(otdr_svgs or {}),
         }
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
@@ -321,6 +336,7 @@ def build_report(
     now: datetime,
     version: str,
     applications: ProjectApplications | None = None,
+    otdr: OtdrAssessment | None = None,
     archive: ArchiveView | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
@@ -330,10 +346,11 @@ def build_report(
     budget sections; ``archive`` (the files embedded in the PDF and the report's digest)
     puts the digest on the cover and the list of files in the appendix.
     """
-    view = build_view(project, judgement, now=now, version=version, assessed=applications,
+    view = build_view(project, judgement, now=now, version=version, assessed=applications, otdr=otdr,
                       archive=archive)
     env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications))
+    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications),
+                         otdr_figures(project, view, otdr))
     makers: list[Callable[[], str]] = [
         functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
         for index, chunk in enumerate(chunk_links(view.links))]

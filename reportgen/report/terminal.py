@@ -4,6 +4,8 @@ from __future__ import annotations
 from collections.abc import Iterator
 from contextlib import contextmanager
 
+import pandas as pd
+from rich import box
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
@@ -119,7 +121,7 @@ def print_applications(console: Console) -> None:
         table.add_column(column, justify=justify, no_wrap=column == "id")
     for row in rows:
         table.add_row(row["id"], row["fiber_types"], row["test_wavelengths_nm"],
-                      f"{row['max_length_m']:,.0f}", _optional_db(row["min_loss_db"]),
+                      "none set" if row["max_length_m"] is None else f"{row['max_length_m']:,.0f}", _optional_db(row["min_loss_db"]),
                       _optional_db(row["max_loss_db"]))
     console.print(table)
     console.print("Sources:")
@@ -153,3 +155,64 @@ def progress_bar(console: Console, enabled: bool = True) -> Iterator:
 
     with bar:
         yield update
+
+
+def print_imports(console: Console, outcome, rows: int = 5) -> None:
+    """Per file read through ``imports:``: entry, profile, rows read, the mapping used, the
+    headers left unmapped and the first rows as they are judged (links: as they are read)."""
+    project = outcome.project
+    if not project.imports:
+        console.print("project.yaml has no imports: entries (links.csv and results/*.csv are read "
+                      "as they are).", markup=False)
+        return
+    judged = outcome.judgement.results
+    links = {link.link_id: link for link in project.links}
+    for source in project.imports:
+        sheet = f", sheet {source.sheet}" if source.sheet is not None else ""
+        console.print(plain(f"imports[{source.entry}]: {source.file}{sheet} — profile {source.profile}, "
+                            f"as {source.kind}"), style="bold")
+        made = (f" → {source.rows_made} {source.kind} rows" if source.rows_made != source.rows_read
+                else "")
+        console.print(plain(f"  {source.rows_read} rows read{made}"))
+        mapping = Table(show_header=True, header_style="bold", box=None, padding=(0, 2, 0, 2))
+        mapping.add_column("our field")
+        mapping.add_column("read from")
+        for name, header in source.mapping:
+            mapping.add_row(plain(name), plain(header))
+        console.print(mapping)
+        unmapped = ", ".join(source.unmapped) if source.unmapped else "none"
+        console.print(plain(f"  columns not mapped (ignored): {unmapped}"))
+        if source.kind == "links":
+            table = Table(title=plain(f"first {rows} links as read"), title_justify="left",
+                          header_style="bold")
+            for name in ("link_id", "end_a", "end_b", "fiber", "length", "strands"):
+                table.add_column(name)
+            for link_id in source.link_ids[:rows]:
+                link = links[link_id]
+                table.add_row(plain(link.link_id), plain(link.end_a), plain(link.end_b),
+                              link.fiber_type.value, f"{link.length_m:g} m", str(link.strands))
+        else:
+            table = Table(title=plain(f"first {rows} results as judged"), title_justify="left",
+                          header_style="bold", box=box.SIMPLE_HEAD, padding=(0, 1), pad_edge=False,
+                          collapse_padding=True)
+            mine = judged[judged["source_file"] == source.file]
+            if source.sheet is not None:
+                mine = mine[mine["source"].str.startswith(f"{source.file}[{source.sheet}]:")]
+            link_width = min(16, max([4, *mine["link_id"].head(rows).str.len()]))
+            for name, width in (("row" if source.sheet is not None else "line", 4), ("link", link_width),
+                                ("s", 1), ("nm", 4), ("dir", 3), ("loss", 5), ("tested", 16),
+                                ("limit", 5), ("margin", 6), ("verdict", 10)):
+                table.add_column(name, justify="right" if name in ("loss", "limit", "margin") else "left",
+                                 min_width=width, no_wrap=True)
+            for row in mine.head(rows).itertuples(index=False):
+                table.add_row(str(row.source_line), plain(row.link_id), str(row.strand),
+                              str(row.wavelength_nm), row.direction, format_db(row.loss_db),
+                              pd.Timestamp(row.tested_at).strftime("%Y-%m-%d %H:%M"),
+                              _db_or_blank(row.limit_db),
+                              _db_or_blank(row.margin_db), str(row.verdict))
+        console.print(table)
+        console.print()
+
+
+def _db_or_blank(value: float) -> str:
+    return "" if value != value else format_db(value)  # NaN: no limit (link not judged)

@@ -9,6 +9,7 @@ catalogue :mod:`reportgen.report.messages`.
 from __future__ import annotations
 
 import base64
+import dataclasses
 import math
 import re
 from collections import Counter
@@ -21,10 +22,12 @@ import pandas as pd
 
 from reportgen.engine.applications import ProjectApplications
 from reportgen.inputs.apptable import describe_rows as describe_application_rows
-from reportgen.engine.budget import Budget
+from reportgen.engine.budget import Budget, TermKind, left_out_end_connections
 from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
-from reportgen.inputs.limits import describe_rows
-from reportgen.model import Instrument, Link, LinkVerdict, Logo, Project, ResultVerdict
+from reportgen.inputs.limits import describe_rows, is_unconfirmed, split_citation, status_at
+from reportgen.model import (Instrument, LimitSet, Link, LinkVerdict, Logo, Project,
+                             ResultVerdict)
+from reportgen.engine.otdr import OtdrAssessment, PairedEvent
 from reportgen.engine.power import PowerBudget
 from reportgen.report import messages
 
@@ -72,8 +75,9 @@ class ResultView:
     instruments: tuple[str, ...]
     tested_at: datetime
     source_file: str
-    source_line: int
+    source_line: int  # line of a text file, or row of a spreadsheet's sheet
     note: str
+    source_sheet: str | None = None  # the sheet, for a row imported from a spreadsheet
 
 
 @dataclass(frozen=True)
@@ -111,14 +115,53 @@ class LinkView:
     worst_margin_db: float | None
     judged: int
     budgets: tuple[BudgetView, ...]
-    results: tuple[ResultView, ...]  # judged results
+    results: tuple[ResultView, ...]  # judged results and not-judged ones (no cabling limit)
     set_aside: tuple[ResultView, ...]  # superseded and invalid rows
     missing: tuple[MissingView, ...]
     failing: tuple[ResultView, ...]  # judged results that fail
+    otdr: tuple[OtdrStrandView, ...] = ()  # OTDR results per strand and wavelength
 
     @property
     def needs_action(self) -> bool:
         return self.verdict != LinkVerdict.PASS.value
+
+
+@dataclass(frozen=True)
+class OtdrStrandView:
+    """One strand at one wavelength measured by OTDR (engine.otdr.StrandOtdr, for the sheet)."""
+
+    figure_key: str  # key of its figure in the renderer's ``otdr_figures``
+    strand: int
+    wavelength_nm: int
+    verdict: str  # "pass" or "fail"
+    length_m: float | None
+    documented_length_m: float
+    length_tolerance_m: float
+    end_to_end_loss_db: float | None
+    insertion_loss_db: float | None
+    pair_tolerance_m: float
+    findings: tuple[str, ...]
+    files: tuple[str, ...]
+    events: tuple[PairedEvent, ...]  # numbered from 1 in the figure and the table
+
+
+def otdr_figure_key(anchor: str, strand: int, wavelength_nm: int) -> str:
+    return f"{anchor}-s{strand}-{wavelength_nm}"
+
+
+def _with_otdr(links: tuple[LinkView, ...], otdr: OtdrAssessment | None) -> tuple[LinkView, ...]:
+    if otdr is None or not otdr.strands:
+        return links
+    out = []
+    for view in links:
+        strands = tuple(
+            OtdrStrandView(otdr_figure_key(view.anchor, s.strand, s.wavelength_nm), s.strand, s.wavelength_nm,
+                           s.verdict, s.length_m, s.documented_length_m, s.length_tolerance_m,
+                           s.end_to_end_loss_db, s.insertion_loss_db, s.pair_tolerance_m, s.findings,
+                           tuple(t.source_file for t in s.traces), s.events)
+            for s in otdr.for_link(view.link_id))
+        out.append(dataclasses.replace(view, otdr=strands) if strands else view)
+    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -146,7 +189,9 @@ class LimitRowView:
     fiber_type: str
     wavelength_nm: int
     attenuation_db_per_km: float
-    source: str
+    source: str  # the citation with its status, as in the limit set
+    citation: str = ""  # the source without its status
+    status: str = ""  # the status at this wavelength ("" when the set states none)
 
 
 @dataclass(frozen=True)
@@ -162,6 +207,9 @@ class ApplicationView:
     least_loss_db: float | None
     max_length_m: float | None
     reasons: tuple[str, ...]  # messages.reason_text of each reason
+    end_allowance_db: float = 0.0  # added to worst_loss_db before the maximum check
+    checked_loss_db: float | None = None  # worst_loss_db + end_allowance_db
+    within_uncertainty: bool = False  # a compared loss within uncertainty_db of its limit
 
 
 @dataclass(frozen=True)
@@ -173,10 +221,22 @@ class PowerView:
 
 
 @dataclass(frozen=True)
+class TransceiverDifference:
+    """A listed application whose channel loss is not the transceiver's window."""
+
+    application: str
+    max_loss_db: float
+    window_db: float  # lowest launch power − receive minimum
+
+
+@dataclass(frozen=True)
 class LinkApplicationsView:
     applications: tuple[ApplicationView, ...]  # listed in links.csv, in that order
     capable: tuple[str, ...]  # every application supported as measured, table order
     power: PowerView | None
+    end_allowance_db: float = 0.0  # added on maximum-side checks (reference method)
+    left_out_ends: int = 0  # end connections the reference method leaves out
+    differences: tuple[TransceiverDifference, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -217,7 +277,7 @@ class ApplicationRuleRow:
     family: str
     fiber_types: str
     test_wavelengths_nm: str
-    max_length_m: float
+    max_length_m: float | None  # None: the standard sets no reach
     min_loss_db: float | None
     max_loss_db: float
     source: str
@@ -239,20 +299,21 @@ class ApplicationsView:
 
 
 @dataclass(frozen=True)
-class ArchiveFileView:
-    """A file embedded in report.pdf and listed in its manifest."""
+class InputFileView:
+    """A file the report was made from (appendix): path, size, SHA-256 and rows it gave."""
 
-    path: str          # embedded name: project/<path> for an input, results.csv
+    path: str
     size_bytes: int
     sha256: str
+    results: int
+    links: int
 
 
 @dataclass(frozen=True)
 class ArchiveView:
-    """The report's digest (SHA-256 of the manifest) and the files the manifest lists."""
+    """The report's digest (SHA-256 of the manifest of the files inside the PDF) and signer."""
 
     digest: str
-    files: tuple[ArchiveFileView, ...]
     signer: str = ""   # who signs the PDF (name on the certificate); "" when unsigned
 
 
@@ -296,6 +357,14 @@ class ReportView:
     generated_at: datetime
     version: str
     apps: ApplicationsView | None = None  # None when applications were not assessed
+    connection_citation: str = ""  # connection_source without its status
+    connection_status: str = ""
+    splice_citation: str = ""
+    splice_status: str = ""
+    # values this report uses (allowances, attenuation of the project's fiber types, rows of
+    # the application table shown) whose status is "from memory"
+    unconfirmed_values: int = 0
+    input_files: tuple[InputFileView, ...] = ()  # every file read, by path
     archive: ArchiveView | None = None    # None when no manifest was made (e.g. golden file)
 
 
@@ -341,7 +410,7 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
         return by_link
     columns = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "limit_db",
                "margin_db", "verdict", "judged", "flags", "technician", "instrument", "tested_at",
-               "source_file", "source_line", "note"]
+               "source_file", "source_line", "note", "source"]
     for row in frame[columns].itertuples(index=False):
         by_link.setdefault(row.link_id, []).append(ResultView(
             strand=int(row.strand), wavelength_nm=int(row.wavelength_nm),
@@ -350,9 +419,16 @@ def _result_views(frame: pd.DataFrame) -> dict[str, list[ResultView]]:
             verdict=str(row.verdict), judged=bool(row.judged), flags=tuple(row.flags), technician=_text(row.technician),
             instruments=tuple(row.instrument), tested_at=pd.Timestamp(row.tested_at).to_pydatetime(),
             source_file=str(row.source_file), source_line=int(row.source_line),
-            note=_text(row.note),
+            note=_text(row.note), source_sheet=_sheet(str(row.source_file), str(row.source)),
         ))
     return by_link
+
+
+def _sheet(file: str, source: str) -> str | None:
+    """The sheet named in a ``source`` cell written ``file[sheet]:row``; None for ``file:line``."""
+    if source.startswith(file + "[") and "]:" in source:
+        return source[len(file) + 1:source.rindex("]:")]
+    return None
 
 
 def _text(value: Any) -> str:
@@ -362,8 +438,9 @@ def _text(value: Any) -> str:
 
 
 def _budget_view(budget: Budget, required: bool) -> BudgetView:
-    terms = tuple(TermView(t.kind.value, t.quantity, t.allowance_db, t.loss_db, t.source,
-                           t.item_id) for t in budget.terms)
+    terms = tuple(TermView(t.kind.value, t.quantity, t.allowance_db, t.loss_db,
+                           messages.TEXT["components_source"] if t.kind is TermKind.COMPONENT
+                           else split_citation(t.source)[0], t.item_id) for t in budget.terms)
     return BudgetView(budget.wavelength_nm, terms, budget.total_db, required)
 
 
@@ -384,8 +461,11 @@ def _sort_key(result: ResultView) -> tuple:
 def build_link_view(project: Project, judgement: Judgement, link: Link, outcome: LinkOutcome,
                     anchor: str, rows: list[ResultView]) -> LinkView:
     """The view of one link: definition, budgets, results, what is missing."""
-    judged = tuple(sorted((r for r in rows if r.judged), key=_sort_key))
-    set_aside = tuple(sorted((r for r in rows if not r.judged), key=_sort_key))
+    # shown with the judged results: results at a wavelength without a cabling limit
+    # (verdict not-judged), counted for the link's applications
+    shown = [r for r in rows if r.judged or r.verdict == ResultVerdict.NOT_JUDGED.value]
+    judged = tuple(sorted(shown, key=_sort_key))
+    set_aside = tuple(sorted((r for r in rows if r not in shown), key=_sort_key))
     components = tuple(
         ComponentView(c, project.components[c].loss_db, project.components[c].description or "")
         for c in link.components if c in project.components)
@@ -479,9 +559,15 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
                 max_loss_db=a.max_loss_db, min_loss_db=a.min_loss_db,
                 worst_loss_db=a.worst_loss_db, least_loss_db=a.least_loss_db,
                 max_length_m=a.max_length_m,
-                reasons=tuple(messages.reason_text(r) for r in a.reasons))
+                reasons=tuple(messages.reason_text(r) for r in a.reasons),
+                end_allowance_db=a.end_allowance_db, checked_loss_db=a.checked_loss_db,
+                within_uncertainty=a.within_uncertainty)
                 for a in found.assessments),
-            capable=found.capable, power=power)
+            capable=found.capable, power=power,
+            end_allowance_db=assessed.checks.end_allowance_db,
+            left_out_ends=left_out_end_connections(project.testing.reference_method),
+            differences=tuple(TransceiverDifference(*d)
+                              for d in assessed.transceiver_differences(link.link_id)))
         if power is not None:
             power_rows.append(PowerRow(link.link_id, anchors[link.link_id], power))
     power_rows.sort(key=lambda row: POWER_ORDER.get(row.power.budget.verdict, len(POWER_ORDER)))
@@ -511,6 +597,7 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
 
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
                assessed: ProjectApplications | None = None,
+               otdr: OtdrAssessment | None = None,
                archive: ArchiveView | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
 
@@ -525,11 +612,21 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
                                   anchors[link.link_id],
                                   rows_by_link.get(link.link_id, []))
                   for link in project.links)
+    links = _with_otdr(links, otdr)
     needs_action = (tuple(v for v in links if v.verdict == LinkVerdict.FAIL.value)
                     + tuple(v for v in links if v.verdict == LinkVerdict.INCOMPLETE.value))
     tested = frame["tested_at"].dropna() if not frame.empty else pd.Series([], dtype=object)
     components = tuple(ComponentView(c.id, c.loss_db, c.description or "")
                        for c in project.components.values())
+    limit_rows = _limit_rows(limits)
+    connection = split_citation(limits.source_for("connection_db"))
+    splice = split_citation(limits.source_for("splice_db"))
+    apps = None if assessed is None else build_applications_view(project, assessed, anchors)
+    fibers = {link.fiber_type.value for link in project.links}
+    used = [connection[1], splice[1]] + [row.status for row in limit_rows
+                                         if row.fiber_type in fibers]
+    used += [row.status for row in apps.rule_rows] if apps is not None else []
+    unconfirmed = sum(1 for status in used if is_unconfirmed(status))
     return ReportView(
         title=info.title, site=info.site or "", customer=info.customer or "",
         job_number=info.job_number or "", contractor_name=info.contractor.name,
@@ -541,7 +638,10 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         limits_origin=limits.origin, limits_notes=limits.notes,
         connection_db=limits.connection_db, connection_source=limits.source_for("connection_db"),
         splice_db=limits.splice_db, splice_source=limits.source_for("splice_db"),
-        limit_rows=tuple(LimitRowView(**row) for row in describe_rows(limits)),
+        limit_rows=limit_rows,
+        connection_citation=connection[0], connection_status=connection[1],
+        splice_citation=splice[0], splice_status=splice[1],
+        unconfirmed_values=unconfirmed,
         reference_method=testing.reference_method.value, directions=testing.directions.value,
         uncertainty_db=testing.uncertainty_db, length_unit=testing.units.value,
         wavelengths_nm={k.value: tuple(v) for k, v in testing.wavelengths_nm.items()},
@@ -552,6 +652,17 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         technicians=_technician_views(project.technicians, frame),
         components=components, paper=project.report.paper.value,
         generated_at=now, version=version,
-        apps=None if assessed is None else build_applications_view(project, assessed, anchors),
+        apps=apps,
+        input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
+                                        results=f.results, links=f.links) for f in project.input_files),
         archive=archive,
     )
+
+
+def _limit_rows(limits: LimitSet) -> tuple[LimitRowView, ...]:
+    rows = []
+    for row in describe_rows(limits):
+        citation, status = split_citation(row["source"])
+        rows.append(LimitRowView(**row, citation=citation,
+                                 status=status_at(status, row["wavelength_nm"])))
+    return tuple(rows)

@@ -1,0 +1,102 @@
+"""Time reading OTDR trace files: 1,000 SR-4731 files of 30,000 samples each (target < 10 s).
+
+Usage (from the repository root)::
+
+    python benchmarks/bench_otdr.py [--files 1000] [--samples 30000]
+    python benchmarks/bench_otdr.py --report 500     # build with and without traces (target < 1.5x)
+
+Writes the files once into a temporary folder (synthesised by ``tests.builders.synth_sor`` and our
+writer; the files differ only in their noise), then times ``reportgen.inputs.sor.read_sor`` on all
+of them, bytes already read (the decode), and again with the file reads included.
+
+``--report N`` writes a synthetic project of N links (``benchmarks/make_synthetic.py``), and a copy
+with two traces per strand (a→b and b→a at the first wavelength of the link's fiber category,
+matched by ``otdr/index.csv``), and times the full build (``reportgen.pipeline.build``, HTML and
+PDF) of each: wall time, target under 1.5 times the build without traces.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+
+from reportgen.inputs.sor import read_sor, write_sor  # noqa: E402
+from tests.builders import synth_sor  # noqa: E402
+
+TARGET_S = 10.0
+
+
+def report_comparison(links: int) -> None:
+    import csv
+    import shutil
+
+    from benchmarks.make_synthetic import make_project
+    from reportgen.pipeline import build
+
+    with tempfile.TemporaryDirectory() as folder:
+        plain = make_project(Path(folder) / "plain", links)
+        traced = Path(folder) / "traced"
+        shutil.copytree(plain, traced)
+        rows = list(csv.DictReader((plain / "links.csv").open(encoding="utf-8")))
+        (traced / "otdr").mkdir()
+        index = ["file,link_id,strand,direction"]
+        for number, row in enumerate(rows):
+            length = float(row["length_m"])
+            wavelength = 1310 if row["fiber_type"].startswith("OS") else 850
+            for strand in range(1, int(row["strands"]) + 1):
+                for direction in ("ab", "ba"):
+                    sor = synth_sor([(length / 2, 0.08, None)], length, seed=number * 10 + strand,
+                                    cable_id=row["link_id"], fiber_id=str(strand),
+                                    nominal_wavelength_nm=wavelength, wavelength_nm=float(wavelength),
+                                    extra_m=100.0)
+                    name = f"t{number:05d}-{strand}-{direction}.sor"
+                    (traced / "otdr" / name).write_bytes(write_sor(sor))
+                    index.append(f"{name},{row['link_id']},{strand},{direction}")
+        (traced / "otdr" / "index.csv").write_text("\n".join(index) + "\n", encoding="utf-8")
+        times = {}
+        for name, project in (("without traces", plain), ("with traces", traced)):
+            start = time.perf_counter()
+            build(project, Path(folder) / f"out-{name.replace(' ', '-')}")
+            times[name] = time.perf_counter() - start
+            print(f"{links} links {name}: {times[name]:.1f} s wall")
+        ratio = times["with traces"] / times["without traces"]
+        print(f"ratio {ratio:.2f} (target < 1.5): {'met' if ratio < 1.5 else 'NOT met'}")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--files", type=int, default=1000)
+    parser.add_argument("--samples", type=int, default=30_000)
+    parser.add_argument("--report", type=int, metavar="LINKS", help="compare full builds instead")
+    args = parser.parse_args()
+    if args.report:
+        report_comparison(args.report)
+        return
+    spacing = 1.0
+    fiber_end = args.samples * spacing - 200.0
+    with tempfile.TemporaryDirectory() as folder:
+        paths = []
+        base = synth_sor([(1000.0, 0.1, None), (fiber_end / 2, 0.3, -48.0)], fiber_end, extra_m=200.0, seed=0)
+        data = write_sor(base)
+        for n in range(args.files):
+            path = Path(folder) / f"t{n:04d}.sor"
+            path.write_bytes(data)
+            paths.append(path)
+        start = time.perf_counter()
+        blobs = [path.read_bytes() for path in paths]
+        read_s = time.perf_counter() - start
+        start = time.perf_counter()
+        points = sum(len(read_sor(blob).samples_db) for blob in blobs)
+        decode_s = time.perf_counter() - start
+    total = read_s + decode_s
+    print(f"{args.files} files, {points // args.files} samples each, {len(data):,} bytes each")
+    print(f"file reads {read_s:.2f} s, decode {decode_s:.2f} s, total {total:.2f} s "
+          f"(target < {TARGET_S:.0f} s): {'met' if total < TARGET_S else 'NOT met'}")
+
+
+if __name__ == "__main__":
+    main()

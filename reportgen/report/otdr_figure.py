@@ -1,0 +1,152 @@
+"""OTDR trace figure of one strand at one wavelength: hand-built SVG text. Pure.
+
+Both directions on one axis of distance along the link from end A: the a→b trace as measured
+(solid black), the b→a trace mirrored so its events line up (dashed mid-grey). A trace of
+thousands of points is reduced for drawing by a min/max envelope per pixel column: each column
+draws a vertical stroke from its lowest to its highest sample, so no reflective peak, however
+narrow, is lost between columns. Events are numbered as in the event table below the figure and
+marked by kind with our own shapes: a connection is a diamond, a splice a circle, any other
+event a square; a failed event is filled black, a passed one open. Meaning is carried by line
+style, shape and fill, never by colour alone, so a grayscale print reads the same.
+
+Texts come from :data:`LABELS` so that they can be translated.
+"""
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Final
+from xml.sax.saxutils import escape
+
+import numpy as np
+
+from reportgen.engine.otdr import JUDGED_AS_CONNECTION, StrandOtdr
+from reportgen.model import Direction, OtdrEventKind, OtdrSettings, OtdrTrace
+
+LABELS: Final[dict[str, str]] = {
+    "title": "OTDR trace, strand {strand}, {wavelength} nm",
+    "ab": "from A (a→b)",
+    "ba": "from B (b→a), mirrored",
+    "axis_x": "distance from end A [m]",
+    "axis_y": "level [dB]",
+    "no_trace": "event table only: no trace samples",
+}
+WIDTH: Final = 640
+HEIGHT: Final = 230
+LEFT, RIGHT, TOP, BOTTOM = 46, 10, 28, 34
+STYLE: Final = {Direction.AB: ('stroke="#111111"', ""), Direction.BA: ('stroke="#777777"', ' stroke-dasharray="4 2"')}
+
+
+def envelope(x_m: np.ndarray, level_db: np.ndarray, x_low: float, x_high: float, columns: int
+             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(column, lowest, highest) of the samples falling into each of ``columns`` pixel columns
+    over [x_low, x_high]; columns without a sample are left out."""
+    inside = (x_m >= x_low) & (x_m <= x_high)
+    col = np.minimum(((x_m[inside] - x_low) / (x_high - x_low) * columns).astype(np.int64), columns - 1)
+    values = level_db[inside]
+    low = np.full(columns, np.inf)
+    high = np.full(columns, -np.inf)
+    np.minimum.at(low, col, values)
+    np.maximum.at(high, col, values)
+    present = np.isfinite(low)
+    return np.nonzero(present)[0], low[present], high[present]
+
+
+def _along(trace: OtdrTrace, settings: OtdrSettings, span_m: float) -> tuple[np.ndarray, np.ndarray]:
+    samples = np.asarray(trace.samples_db, dtype=np.float64)
+    launch = trace.launch_cord_m if trace.launch_cord_m is not None else settings.launch_cord_m
+    x = np.arange(len(samples)) * (trace.sample_spacing_m or 0.0) - launch
+    if trace.direction is Direction.BA:
+        x = span_m - x
+    return x, samples
+
+
+def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
+              labels: Mapping[str, str] = LABELS) -> str:
+    """The figure of ``strand`` as an ``<svg>`` element."""
+    settings = settings or OtdrSettings()
+    span = strand.length_m if strand.length_m is not None else strand.documented_length_m
+    x_low = min([0.0, *(e.position_m for e in strand.events)]) - 10.0
+    x_high = max([span, *(e.position_m for e in strand.events)]) + 10.0
+    plot_w, plot_h = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM
+    drawn = [(t.direction, *_along(t, settings, span)) for t in strand.traces
+             if t.samples_db is not None and len(t.samples_db) and t.sample_spacing_m]
+    # The level axis covers the fiber between the launch and the far end (the drop to the noise
+    # floor past the end is cut at the bottom), with 2 dB to spare below.
+    ends = [e.position_m for e in strand.events if e.kind is OtdrEventKind.END]
+    fiber_to = (min(ends) if ends else x_high) - 2.0
+    levels = [lv[(x >= x_low) & (x <= fiber_to)] for _d, x, lv in drawn]
+    levels = [lv for lv in levels if len(lv)]
+    y_high = math.ceil(max(float(lv.max()) for lv in levels)) if levels else 0.0
+    y_low = math.floor(min(float(np.percentile(lv, 1)) for lv in levels)) - 2.0 if levels else -1.0
+    if y_high - y_low < 1.0:
+        y_low = y_high - 1.0
+
+    def px(x: float) -> float:
+        return LEFT + (x - x_low) / (x_high - x_low) * plot_w
+
+    def py(y: float) -> float:
+        return TOP + (y_high - min(max(y, y_low), y_high)) / (y_high - y_low) * plot_h
+
+    title = labels["title"].format(strand=strand.strand, wavelength=strand.wavelength_nm)
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="otdr-trace" viewBox="0 0 {WIDTH} {HEIGHT}" '
+           f'width="{WIDTH}" height="{HEIGHT}" role="img" aria-label="{escape(title)}" '
+           'font-family="DejaVu Sans, sans-serif" font-size="9">',
+           f'<rect x="{LEFT}" y="{TOP}" width="{plot_w}" height="{plot_h}" fill="none" stroke="#999999" '
+           'stroke-width="0.5"/>']
+    for tick in _ticks(x_low, x_high):
+        out.append(f'<line x1="{px(tick):.1f}" y1="{TOP + plot_h}" x2="{px(tick):.1f}" y2="{TOP + plot_h + 3}" '
+                   'stroke="#111111" stroke-width="0.5"/>'
+                   f'<text x="{px(tick):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{tick:g}</text>')
+    for tick in _ticks(y_low, y_high):
+        out.append(f'<line x1="{LEFT - 3}" y1="{py(tick):.1f}" x2="{LEFT}" y2="{py(tick):.1f}" '
+                   'stroke="#111111" stroke-width="0.5"/>'
+                   f'<text x="{LEFT - 5}" y="{py(tick) + 3:.1f}" text-anchor="end">{tick:g}</text>')
+    out.append(f'<text x="{LEFT + plot_w / 2:.1f}" y="{HEIGHT - 4}" text-anchor="middle">'
+               f'{escape(labels["axis_x"])}</text>')
+    out.append(f'<text x="10" y="{TOP + plot_h / 2:.1f}" text-anchor="middle" '
+               f'transform="rotate(-90 10 {TOP + plot_h / 2:.1f})">{escape(labels["axis_y"])}</text>')
+    for direction, x, level in drawn:
+        cols, low, high = envelope(x, level, x_low, x_high, plot_w)
+        points = []
+        for c, lo, hi in zip(cols, low, high):
+            cx = LEFT + c + 0.5
+            points.append(f"{cx:.1f},{py(lo):.1f} {cx:.1f},{py(hi):.1f}")
+        stroke, dash = STYLE[direction]
+        if points:
+            out.append(f'<polyline fill="none" {stroke}{dash} stroke-width="0.8" points="{" ".join(points)}"/>')
+    if not drawn:
+        out.append(f'<text x="{LEFT + plot_w / 2:.1f}" y="{TOP + plot_h / 2:.1f}" text-anchor="middle">'
+                   f'{escape(labels["no_trace"])}</text>')
+    for number, event in enumerate(strand.events, start=1):
+        cx, cy = px(event.position_m), TOP + 10
+        fill = "#111111" if event.verdict == "fail" else "#ffffff"
+        shape = (f'<path d="M{cx:.1f},{cy - 5:.1f} L{cx + 5:.1f},{cy:.1f} L{cx:.1f},{cy + 5:.1f} '
+                 f'L{cx - 5:.1f},{cy:.1f} Z"' if event.kind in JUDGED_AS_CONNECTION
+                 else f'<circle cx="{cx:.1f}" cy="{cy:.1f}" r="4"' if event.kind is OtdrEventKind.SPLICE
+                 else f'<rect x="{cx - 3.5:.1f}" y="{cy - 3.5:.1f}" width="7" height="7"')
+        out.append(f'<line x1="{cx:.1f}" y1="{cy + 5:.1f}" x2="{cx:.1f}" y2="{TOP + plot_h}" stroke="#bbbbbb" '
+                   'stroke-width="0.5" stroke-dasharray="1 2"/>')
+        out.append(f'{shape} fill="{fill}" stroke="#111111" stroke-width="0.8"/>')
+        out.append(f'<text x="{cx:.1f}" y="{cy - 8:.1f}" text-anchor="middle" font-size="8">{number}</text>')
+    legend_y = 12
+    for i, direction in enumerate((Direction.AB, Direction.BA)):
+        if not any(d is direction for d, _x, _l in drawn):
+            continue
+        stroke, dash = STYLE[direction]
+        x0 = LEFT + 6 + i * 190
+        out.append(f'<line x1="{x0}" y1="{legend_y}" x2="{x0 + 22}" y2="{legend_y}" {stroke}{dash} stroke-width="1.2"/>'
+                   f'<text x="{x0 + 26}" y="{legend_y + 3}">{escape(labels[direction.value])}</text>')
+    out.append("</svg>")
+    return "".join(out)
+
+
+def _ticks(low: float, high: float, count: int = 6) -> list[float]:
+    raw = (high - low) / count
+    step = 10 ** math.floor(math.log10(raw))
+    for factor in (1, 2, 5, 10):
+        if raw <= factor * step:
+            step *= factor
+            break
+    first = math.ceil(low / step) * step
+    return [round(first + i * step, 6) for i in range(int((high - first) / step) + 1)]

@@ -1,0 +1,561 @@
+"""imports: in project.yaml: files as they come, read through the user's profiles.
+
+The main check: one set of invented measurements written twice, once as the project format's
+own CSV files (links.csv, results/*.csv) and once the way spreadsheets and meters write them
+(an .xlsx link schedule with a title row, a cp1252 semicolon export with decimal commas, split
+date and time, "A->B" directions and one loss column per wavelength, an .ods sheet). Both
+folders must give the same verdicts and margins, row by row. Everything here is invented.
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import zipfile
+from pathlib import Path
+
+import openpyxl
+import pandas as pd
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from reportgen.cli import main
+from reportgen.engine.judge import judge_project
+from reportgen.errors import InputError
+from reportgen.export.results_csv import results_csv_bytes
+from reportgen.inputs.project import load_project
+
+PROJECT_YAML = """\
+project:
+  title: Test hall import (invented)
+  contractor: {name: Example Cabling Works (invented)}
+testing:
+  limits: tia-568.3-d
+  reference_method: one-cord
+  directions: both
+"""
+
+# link_id, end_a, end_b, fiber_type, plant, length_m, strands, connections, splices
+LINKS = [
+    ("T-01", "Hall 1 rack A", "Hall 2 rack B", "OM4", "inside", 82.5, 2, 2, 0),
+    ("T-02", "Hall 1 rack A", "Yard cabinet 3", "OS2", "outside", 1240, 1, 0, 2),
+]
+# link_id, strand, direction, date, time, {wavelength_nm: loss_db}
+DAY1 = [
+    ("T-01", 1, "ab", "2030-11-14", "09:30", {850: 1.84, 1300: 1.02}),
+    ("T-01", 1, "ba", "2030-11-14", "09:34", {850: 1.79, 1300: 0.98}),
+    ("T-01", 2, "ab", "2030-11-14", "09:40", {850: 3.61, 1300: 1.10}),  # fails at 850 nm
+    ("T-01", 2, "ba", "2030-11-14", "09:44", {850: 1.88, 1300: 1.05}),
+    ("T-02", 1, "ab", "2030-11-14", "10:05", {1310: 1.234, 1550: 1.12}),
+    ("T-02", 1, "ba", "2030-11-14", "10:09", {1310: 1.25, 1550: 1.1}),
+]
+DAY2 = [  # a retest of T-01 strand 2 after cleaning
+    ("T-01", 2, "ab", "2030-11-15", "08:15:30", {850: 1.9, 1300: 1.07}),
+]
+WAVELENGTHS = (850, 1300, 1310, 1550)
+
+
+def _write_native(root: Path, *, links: bool = True, days=(("day1", DAY1), ("day2", DAY2))) -> None:
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "project.yaml").write_text(PROJECT_YAML, encoding="utf-8")
+    if links:
+        lines = ["link_id,end_a,end_b,fiber_type,plant,length_m,strands,connections,splices"]
+        lines += [",".join(map(str, link)) for link in LINKS]
+        (root / "links.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    (root / "results").mkdir(exist_ok=True)
+    for name, day in days:
+        lines = ["link_id,strand,wavelength_nm,direction,loss_db,tested_at,technician"]
+        for link_id, strand, direction, date, time, losses in day:
+            for wavelength, loss in losses.items():
+                lines.append(f"{link_id},{strand},{wavelength},{direction},{loss},{date}T{time},"
+                             "Ö. Example")
+        (root / "results" / f"{name}.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+METER_PROFILE = """\
+as: results
+delimiter: ";"
+decimal: ","
+encoding: cp1252
+skip_rows: 2
+columns:
+  link_id: "Cable ID"
+  strand: ["Fibre", "Fibre No."]
+  direction: "Direction"
+  tested_date: "Date"
+  tested_time: "Time"
+  technician: "Operator"
+values:
+  direction: {ab: ["A->B", "A>B"], ba: ["B->A", "B>A"]}
+date_format: ["%d.%m.%Y", "%Y-%m-%d"]
+wide:
+  loss_db:
+    "Loss 850 nm": {wavelength_nm: 850}
+    "Loss 1300 nm": {wavelength_nm: 1300}
+    "Loss 1310 nm": {wavelength_nm: 1310}
+    "Loss 1550 nm": {wavelength_nm: 1550}
+"""
+SCHEDULE_PROFILE = """\
+as: links
+skip_rows: 1
+columns:
+  link_id: Link
+  end_a: From
+  end_b: To
+  fiber_type: Fibre
+  plant: Plant
+  length_m: "Length (m)"
+  strands: Strands
+  connections: "Mated pairs"
+  splices: Splices
+"""
+IMPORTS = """\
+imports:
+  - files: "schedule/links.xlsx"
+    sheet: Links
+    profile: profiles/schedule.yaml
+  - files: "exports/*.csv"
+    profile: profiles/meter.yaml
+  - files: "exports/*.ods"
+    profile: profiles/meter.yaml
+"""
+ARROWS = {"ab": "A->B", "ba": "B->A"}
+HEADER = ["Cable ID", "Fibre No.", "Direction", "Date", "Time", "Operator",
+          *(f"Loss {wavelength} nm" for wavelength in WAVELENGTHS), "Temperature (°C)"]
+
+
+def _wide_rows(day):
+    for link_id, strand, direction, date, time, losses in day:
+        yield link_id, strand, direction, dt.date.fromisoformat(date), time, losses
+
+
+def _write_imported(root: Path, extra: str = "") -> None:
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "project.yaml").write_text(PROJECT_YAML + IMPORTS + extra, encoding="utf-8")
+    (root / "profiles").mkdir()
+    (root / "profiles" / "meter.yaml").write_text(METER_PROFILE, encoding="utf-8")
+    (root / "profiles" / "schedule.yaml").write_text(SCHEDULE_PROFILE, encoding="utf-8")
+
+    # the link schedule: a merged title row, the header, numbers as numbers, trailing blank rows
+    (root / "schedule").mkdir()
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Notes"
+    sheet.append(["This sheet is not read"])
+    sheet = book.create_sheet("Links")
+    sheet.append(["Link schedule, test hall (invented)"])
+    sheet.merge_cells("A1:D1")
+    sheet.append(["Link", "From", "To", "Fibre", "Plant", "Length (m)", "Strands", "Mated pairs",
+                  "Splices", "Installer remark"])
+    for link in LINKS:
+        sheet.append([*link, "ok"])
+    sheet["F3"] = "=80+2.5"  # T-01's length as a formula: read as the value the file saved
+    sheet.append([" ", None, None])  # a row of blanks at the end
+    book.save(root / "schedule" / "links.xlsx")
+    _save_cached_value(root / "schedule" / "links.xlsx", "82.5")
+
+    # day 1: the meter's export, cp1252, semicolons, decimal commas, dates as 14.11.2030
+    (root / "exports").mkdir()
+    lines = ["Export of an invented meter", "Unit;T-series", ";".join(HEADER)]
+    for link_id, strand, direction, date, time, losses in _wide_rows(DAY1):
+        cells = [f"{losses[w]}".replace(".", ",") if w in losses else "" for w in WAVELENGTHS]
+        lines.append(";".join([link_id, str(strand), ARROWS[direction], date.strftime("%d.%m.%Y"),
+                               time, "Ö. Example", *cells, "21,5"]))
+    (root / "exports" / "day1.csv").write_bytes(("\r\n".join(lines) + "\r\n").encode("cp1252"))
+
+    # day 2: the same layout saved as an .ods sheet (numbers and dates as the sheet stores them)
+    rows = [["Export of an invented meter"] + [None] * (len(HEADER) - 1), [None] * len(HEADER), HEADER]
+    for link_id, strand, direction, date, time, losses in _wide_rows(DAY2):
+        rows.append([link_id, strand, ARROWS[direction], date, time, "Ö. Example",
+                     *(losses.get(w) for w in WAVELENGTHS), 20.0])
+    pd.DataFrame(rows).to_excel(root / "exports" / "day2.ods", engine="odf", header=False, index=False)
+
+
+def _save_cached_value(path: Path, value: str) -> None:
+    """Store ``value`` as the formula's last computed value, as a spreadsheet program saves it
+    (openpyxl writes formulas without one)."""
+    with zipfile.ZipFile(path) as archive:
+        parts = {name: archive.read(name) for name in archive.namelist()}
+    sheet = "xl/worksheets/sheet2.xml"
+    assert parts[sheet].count(b"<v></v>") == 1
+    parts[sheet] = parts[sheet].replace(b"<v></v>", f"<v>{value}</v>".encode())
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
+        for name, data in parts.items():
+            archive.writestr(name, data)
+
+
+KEY = ["link_id", "strand", "wavelength_nm", "direction", "tested_at"]
+COMPARED = [*KEY, "loss_db", "limit_db", "margin_db", "verdict", "flags"]
+
+
+def _judged(root: Path):
+    project = load_project(root)
+    return project, judge_project(project)
+
+
+def test_imported_files_judge_exactly_like_the_native_folder(tmp_path):
+    _write_native(tmp_path / "native")
+    _write_imported(tmp_path / "imported")
+    native, native_judgement = _judged(tmp_path / "native")
+    imported, imported_judgement = _judged(tmp_path / "imported")
+
+    a = native_judgement.results[COMPARED].sort_values(KEY).reset_index(drop=True)
+    b = imported_judgement.results[COMPARED].sort_values(KEY).reset_index(drop=True)
+    assert len(a) == 2 * len(DAY1) + 2 * len(DAY2) == len(b)
+    for row_a, row_b in zip(a.itertuples(index=False), b.itertuples(index=False)):
+        assert row_a == row_b
+    assert [(link.link_id, link.verdict) for link in native_judgement.links] == \
+        [(link.link_id, link.verdict) for link in imported_judgement.links]
+    # the same links; only the place they were read differs (links.csv line 2, sheet row 3)
+    assert [dataclasses.replace(link, line=0) for link in native.links] == \
+        [dataclasses.replace(link, line=0) for link in imported.links]
+    assert [link.line for link in imported.links] == [3, 4]
+
+    # One margin worked by hand (ANSI/TIA-568.3-D values as our limit file cites them: 0.75 dB per
+    # mated connector pair, OM4 3.0 dB/km at 850 nm): T-01 has 2 mated pairs plus the 2 of a
+    # one-cord reference and 82.5 m: limit 4 x 0.75 + 0.0825 x 3.0 = 3.2475 dB; 1.84 dB measured.
+    first = b[(b.link_id == "T-01") & (b.strand == 1) & (b.wavelength_nm == 850) & (b.direction == "ab")]
+    assert first["margin_db"].item() == pytest.approx(3.2475 - 1.84)
+    # the retest rule across files: the 2030-11-15 row of day2.ods supersedes the failing one
+    retested = b[(b.link_id == "T-01") & (b.strand == 2) & (b.wavelength_nm == 850) & (b.direction == "ab")]
+    assert sorted(retested["verdict"]) == ["pass", "superseded"]
+
+
+def test_imported_rows_name_their_file_and_row_as_evidence(tmp_path):
+    _write_imported(tmp_path)
+    project, judgement = _judged(tmp_path)
+    sources = project.results["source"].tolist()
+    # day1.csv: two lines skipped, the header on line 3, data from line 4; one line per strand
+    # and direction becomes one row per filled loss column
+    assert sources[:3] == ["exports/day1.csv:4", "exports/day1.csv:4", "exports/day1.csv:5"]
+    assert sources[-1] == "exports/day2.ods[Sheet1]:4"
+    text = results_csv_bytes(judgement.results).decode()
+    assert text.splitlines()[0].endswith(",source_file,source_line,source")
+    assert text.splitlines()[1].endswith(",exports/day1.csv,4,exports/day1.csv:4")
+    assert project.files_read == ("exports/day1.csv", "exports/day2.ods", "profiles/meter.yaml",
+                                  "profiles/schedule.yaml", "project.yaml", "schedule/links.xlsx")
+    schedule, day1, day2 = project.imports
+    assert (schedule.file, schedule.sheet, schedule.rows_read, schedule.link_ids) == (
+        "schedule/links.xlsx", "Links", 2, ("T-01", "T-02"))
+    assert schedule.unmapped == ("Installer remark",)
+    assert (day1.rows_read, day1.rows_made, day1.unmapped) == (6, 12, ("Temperature (°C)",))
+    assert ("loss_db", "wide: Loss 850 nm, Loss 1300 nm, Loss 1310 nm, Loss 1550 nm") in day1.mapping
+
+
+def test_retest_rule_spans_native_and_imported_rows(tmp_path):
+    # the native results/ folder holds day 1; the retest of day 2 comes from the .ods export
+    _write_imported(tmp_path)
+    yaml = PROJECT_YAML + IMPORTS.replace('  - files: "exports/*.csv"\n    profile: profiles/meter.yaml\n', "")
+    _write_native(tmp_path, links=False, days=(("day1", DAY1),))
+    (tmp_path / "project.yaml").write_text(yaml, encoding="utf-8")
+    project, judgement = _judged(tmp_path)
+    rows = judgement.results
+    retest = rows[(rows.link_id == "T-01") & (rows.strand == 2) & (rows.wavelength_nm == 850)
+                  & (rows.direction == "ab")]
+    assert list(zip(retest["source"], retest["verdict"])) == [
+        ("results/day1.csv:6", "superseded"), ("exports/day2.ods[Sheet1]:4", "pass")]
+
+
+def test_import_command_shows_the_mapping_and_writes_contract_files(tmp_path, capsys):
+    _write_imported(tmp_path / "imported")
+    out = tmp_path / "normalised"
+    assert main(["import", str(tmp_path / "imported"), "--write", str(out)]) == 0
+    shown = capsys.readouterr().out
+    assert "imports[2]: exports/day1.csv — profile profiles/meter.yaml, as results" in shown
+    assert "6 rows read → 12 results rows" in shown
+    assert "columns not mapped (ignored): Temperature (°C)" in shown
+    assert sorted(path.relative_to(out).as_posix() for path in out.rglob("*.csv")) == [
+        "links.csv", "results/day1.csv", "results/day2-Sheet1.csv"]
+    # the written files with a plain project.yaml build to the same verdicts as the native folder
+    (out / "project.yaml").write_text(PROJECT_YAML, encoding="utf-8")
+    _write_native(tmp_path / "native")
+    _, written = _judged(out)
+    _, native = _judged(tmp_path / "native")
+    compared = ["link_id", "strand", "wavelength_nm", "direction", "loss_db", "margin_db", "verdict"]
+    assert written.results[compared].sort_values(compared[:4] + ["verdict"]).values.tolist() == \
+        native.results[compared].sort_values(compared[:4] + ["verdict"]).values.tolist()
+
+
+def _problems(root: Path) -> list[str]:
+    with pytest.raises(InputError) as caught:
+        load_project(root)
+    return [str(problem) for problem in caught.value.problems]
+
+
+def test_bad_profile_keys_get_a_did_you_mean_all_in_one_run(tmp_path):
+    _write_imported(tmp_path)
+    (tmp_path / "profiles" / "meter.yaml").write_text(
+        METER_PROFILE.replace("delimiter:", "delimeter:").replace("  technician:", "  technican:")
+        .replace("decimal: \",\"", "decimal: \";\""), encoding="utf-8")
+    (tmp_path / "profiles" / "schedule.yaml").write_text(SCHEDULE_PROFILE.replace("as: links", "as: link"),
+                                                         encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "profiles/schedule.yaml, as: expected one of results, links (got 'link')",
+        "profiles/meter.yaml, delimeter: expected one of the keys as, delimiter, decimal, encoding, "
+        "skip_rows, columns, values, date_format, wide, constants; did you mean delimiter?",
+        "profiles/meter.yaml, decimal: expected one of \".\" or \",\" (got ';')",
+        "profiles/meter.yaml, columns.technican: expected one of our fields link_id, wavelength_nm, "
+        "loss_db, tested_at, strand, direction, instrument, technician, note, length, length_m, "
+        "length_ft, tested_date, tested_time; did you mean technician?",
+        "links.csv: expected a file links.csv in the project folder (not found)",
+    ]
+    # a links profile with a mistake: no "links.csv not found" beside its own problem
+    (tmp_path / "profiles" / "meter.yaml").write_text(METER_PROFILE, encoding="utf-8")
+    (tmp_path / "profiles" / "schedule.yaml").write_text(SCHEDULE_PROFILE.replace("  to:", "  tto:")
+                                                         .replace("end_b: To", "end_bb: To"),
+                                                         encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "profiles/schedule.yaml, columns.end_bb: expected one of our fields link_id, end_a, end_b, "
+        "fiber_type, length, length_m, length_ft, plant, strands, connections, splices, components, "
+        "applications, transceiver, notes; did you mean end_b?",
+        "profiles/schedule.yaml, columns: expected a mapping for end_b (under columns, wide or "
+        "constants): a links row needs it",
+    ]
+
+
+def test_header_value_and_date_problems_name_the_cell(tmp_path):
+    _write_imported(tmp_path)
+    (tmp_path / "profiles" / "schedule.yaml").write_text(
+        SCHEDULE_PROFILE.replace("Mated pairs", "Mated pair"), encoding="utf-8")
+    export = tmp_path / "exports" / "day1.csv"
+    text = export.read_bytes().decode("cp1252").replace("B->A", "BA", 1).replace("14.11.2030", "2030/11/14", 1)
+    text = text.replace("3,61", "3,6x")
+    export.write_bytes(text.encode("cp1252"))
+    assert _problems(tmp_path) == [
+        'schedule/links.xlsx, sheet Links, row 2, connections: expected a column headed "Mated pair" '
+        '(columns.connections in profiles/schedule.yaml); closest headers present: "Mated pairs"',
+        'exports/day1.csv, line 4, "Date" (tested_date): expected a date written as %d.%m.%Y or '
+        "%Y-%m-%d (date_format in profiles/meter.yaml) (got '2030/11/14')",
+        'exports/day1.csv, line 5, "Direction" (direction): expected one of the spellings under '
+        "values.direction in profiles/meter.yaml: A->B, A>B, B->A, B>A (got 'BA')",
+        'exports/day1.csv, line 6, "Loss 850 nm" (loss_db): expected a loss in dB, a number of at '
+        "most 100 (got '3.6x')",
+    ]
+
+
+def test_imported_rows_get_the_native_checks(tmp_path):
+    # an unknown link and a strand the link does not have: the messages of results/*.csv rows,
+    # placed at the spreadsheet's row and header
+    _write_imported(tmp_path)
+    rows = [["Title"] + [None] * (len(HEADER) - 1), [None] * len(HEADER), HEADER,
+            ["T-09", 1, "A->B", dt.date(2030, 11, 15), "08:00", "", 1.5, None, None, None, None],
+            ["T-01", 3, "B>A", dt.date(2030, 11, 15), "08:00", "", 1.5, None, None, None, None]]
+    pd.DataFrame(rows).to_excel(tmp_path / "exports" / "day2.ods", engine="odf", header=False, index=False)
+    assert _problems(tmp_path) == [
+        "exports/day2.ods, sheet Sheet1, row 4, \"Cable ID\" (link_id): expected a link_id defined in "
+        "the links of schedule/links.xlsx (got 'T-09')",
+        "exports/day2.ods, sheet Sheet1, row 5, \"Fibre No.\" (strand): expected a strand from 1 to 2 "
+        "for link T-01 (got '3')",
+    ]
+
+
+def test_entries_need_files_and_an_existing_sheet(tmp_path):
+    _write_imported(tmp_path, extra="  - files: \"nothing/*.csv\"\n    profile: profiles/meter.yaml\n"
+                                    "    shet: A\n")
+    (tmp_path / "project.yaml").write_text(
+        (tmp_path / "project.yaml").read_text(encoding="utf-8").replace("sheet: Links", "sheet: Link"),
+        encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "project.yaml, imports[4].shet: expected one of the keys files, sheet, profile; did you mean sheet?",
+        "project.yaml, imports[4].files: expected a pattern matching at least one file in the project "
+        "folder (none matched) (got 'nothing/*.csv')",
+        "schedule/links.xlsx, sheet: expected a sheet of this file: Notes, Links; did you mean Links? "
+        "(got 'Link')",
+    ]
+
+
+def test_a_misspelt_imports_key_is_reported(tmp_path):
+    _write_imported(tmp_path)
+    yaml = (tmp_path / "project.yaml").read_text(encoding="utf-8").replace("imports:", "import:")
+    (tmp_path / "project.yaml").write_text(yaml, encoding="utf-8")
+    assert _problems(tmp_path) == [
+        "project.yaml, import: expected a key the format knows (did you mean imports?)",
+        "links.csv: expected a file links.csv in the project folder (not found)",
+    ]
+
+
+def test_decimal_commas_without_the_profile_saying_so_get_a_hint(tmp_path):
+    _write_imported(tmp_path)
+    profile = tmp_path / "profiles" / "meter.yaml"
+    profile.write_text(METER_PROFILE.replace('decimal: ","\n', ""), encoding="utf-8")
+    problems = _problems(tmp_path)
+    assert len(problems) == 12  # every filled loss cell of day1.csv (6 lines x 2 wavelengths)
+    assert problems[0] == (
+        'exports/day1.csv, line 4, "Loss 850 nm" (loss_db): expected a loss in dB, a number of at most '
+        '100 (for decimal commas write decimal: "," in profiles/meter.yaml) (got \'1,84\')')
+
+
+def test_the_report_names_the_sheet_and_row_of_an_imported_result(tmp_path):
+    from reportgen.report.messages import msg
+    from reportgen.report.viewmodel import build_view
+
+    _write_imported(tmp_path)
+    project, judgement = _judged(tmp_path)
+    view = build_view(project, judgement, now=dt.datetime(2030, 12, 1, tzinfo=dt.timezone.utc),
+                      version="test")
+    t01 = next(link for link in view.links if link.link_id == "T-01")
+    places = {(r.source_file, r.source_sheet, r.source_line) for r in t01.results}
+    assert ("exports/day2.ods", "Sheet1", 4) in places
+    assert ("exports/day1.csv", None, 4) in places
+    assert msg("source_sheet_row", file="exports/day2.ods", sheet="Sheet1", line=4) == \
+        "exports/day2.ods, sheet Sheet1, row 4"
+
+
+def test_tab_separated_text_with_detected_delimiter_and_constants(tmp_path):
+    # no delimiter, no encoding in the profile: tabs are detected, UTF-8 with a byte-order mark
+    _write_native(tmp_path, days=())
+    (tmp_path / "profiles").mkdir()
+    (tmp_path / "profiles" / "otdr-a.yaml").write_text(
+        "as: results\ncolumns:\n  link_id: Link\n  loss_db: [\"Loss [dB]\", \"Loss (dB)\"]\n"
+        "  tested_at: When\nconstants: {wavelength_nm: 1310, direction: ba}\n", encoding="utf-8")
+    (tmp_path / "project.yaml").write_text(
+        PROJECT_YAML + "imports:\n  - {files: \"in/*.txt\", profile: profiles/otdr-a.yaml}\n",
+        encoding="utf-8")
+    (tmp_path / "in").mkdir()
+    (tmp_path / "in" / "a.txt").write_bytes(
+        "\ufeffLink\tLoss (dB)\tWhen\nT-02\t1.3\t2030-11-16T11:00\n".encode("utf-8"))
+    project = load_project(tmp_path)
+    row = project.results.iloc[0]
+    assert (row.link_id, row.wavelength_nm, row.direction, row.loss_db, row.source) == (
+        "T-02", 1310, "ba", 1.3, "in/a.txt:2")
+    (tmp_path / "in" / "a.txt").write_bytes("Link\tLoss (dB)\tWhen\nT-02\t1.3\t16.11.2030 \xe9\n"
+                                            .encode("cp1252"))
+    assert _problems(tmp_path) == [
+        "in/a.txt, line 2: expected text in utf-8 (encoding in profiles/otdr-a.yaml) (got 'byte 0xE9')"]
+
+
+def test_a_tab_delimiter_and_a_header_given_twice(tmp_path):
+    _write_native(tmp_path, days=())
+    (tmp_path / "profiles").mkdir()
+    (tmp_path / "profiles" / "p.yaml").write_text(
+        'as: results\ndelimiter: "\\t"\ncolumns: {link_id: Link, loss_db: Loss, tested_at: When}\n'
+        "constants: {wavelength_nm: 1310}\n", encoding="utf-8")
+    (tmp_path / "project.yaml").write_text(
+        PROJECT_YAML + "imports:\n  - {files: \"in.tsv\", profile: profiles/p.yaml}\n", encoding="utf-8")
+    (tmp_path / "in.tsv").write_text("Link\tLoss\tWhen\tLoss\nT-02\t1.3\t2030-11-16\t1.4\n", encoding="utf-8")
+    assert _problems(tmp_path) == [
+        'in.tsv, line 1, "Loss": expected a header the profile reads to appear once (found in '
+        "columns 2, 4; profiles/p.yaml cannot tell which is meant)"]
+    (tmp_path / "in.tsv").write_text("Link\tLoss\tWhen\tLoss 2\nT-02\t1.3\t2030-11-16\t1.4\n", encoding="utf-8")
+    assert load_project(tmp_path).results["loss_db"].tolist() == [1.3]
+
+
+def test_every_file_read_is_listed_with_size_checksum_and_rows(tmp_path):
+    import hashlib
+
+    _write_imported(tmp_path)
+    project, _ = _judged(tmp_path)
+    listed = {f.path: f for f in project.input_files}
+    assert tuple(listed) == project.files_read
+    export = (tmp_path / "exports" / "day1.csv").read_bytes()
+    day1 = listed["exports/day1.csv"]
+    # SHA-256 of the bytes (FIPS 180-4, via Python's hashlib, not our code)
+    assert (day1.size_bytes, day1.sha256, day1.results, day1.links) == (
+        len(export), hashlib.sha256(export).hexdigest(), 12, 0)
+    assert (listed["schedule/links.xlsx"].links, listed["exports/day2.ods"].results) == (2, 2)
+    assert listed["profiles/meter.yaml"].results == 0
+
+
+def test_import_command_without_imports_and_refusing_an_input_folder(tmp_path, capsys):
+    _write_native(tmp_path)
+    assert main(["import", str(tmp_path)]) == 0
+    assert "project.yaml has no imports: entries" in capsys.readouterr().out
+    assert main(["import", str(tmp_path), "--write", str(tmp_path / "results" / "x")]) == 2
+    assert "is the project folder or one of its input folders" in capsys.readouterr().err
+    assert not (tmp_path / "results" / "x").exists()
+
+
+def test_outputs_never_go_into_a_folder_holding_imported_files(tmp_path, capsys):
+    _write_imported(tmp_path / "p")
+    before = sorted(path.name for path in (tmp_path / "p" / "exports").iterdir())
+    assert main(["build", str(tmp_path / "p"), "--data-only", "-o", str(tmp_path / "p" / "exports")]) == 2
+    assert main(["import", str(tmp_path / "p"), "--write", str(tmp_path / "p" / "schedule")]) == 2
+    err = capsys.readouterr().err
+    assert "holds exports/day1.csv, a file the project reads" in err
+    assert "holds schedule/links.xlsx, a file the project reads" in err
+    assert sorted(path.name for path in (tmp_path / "p" / "exports").iterdir()) == before
+
+
+def test_a_glob_over_the_whole_folder_does_not_read_the_default_output_folder(tmp_path):
+    _write_imported(tmp_path)
+    yaml = (tmp_path / "project.yaml").read_text(encoding="utf-8").replace('"exports/*.csv"', '"**/day1.csv"')
+    (tmp_path / "project.yaml").write_text(yaml, encoding="utf-8")
+    (tmp_path / "report").mkdir()
+    (tmp_path / "report" / "day1.csv").write_text("not an export\n", encoding="utf-8")
+    project = load_project(tmp_path)
+    assert "report/day1.csv" not in project.files_read
+    assert [source.file for source in project.imports] == [
+        "schedule/links.xlsx", "exports/day1.csv", "exports/day2.ods"]
+
+
+def test_a_spreadsheet_that_would_unpack_too_large_is_not_read(tmp_path, monkeypatch):
+    from reportgen.inputs import imports
+
+    _write_imported(tmp_path)
+    with zipfile.ZipFile(tmp_path / "schedule" / "links.xlsx") as archive:
+        unpacked = sum(member.file_size for member in archive.infolist())
+    monkeypatch.setattr(imports, "MAX_UNPACKED_BYTES", unpacked - 1)  # one byte too many
+    problems = _problems(tmp_path)
+    assert problems[0].startswith("schedule/links.xlsx: expected a spreadsheet of at most ")
+    assert "unpacked; this one unpacks to" in problems[0]
+    assert not any(problem.startswith("schedule/links.xlsx, sheet") for problem in problems)
+
+
+# Fuzzing the import route (see tests/test_fuzz.py for the native files): any profile value and
+# any cell must end in a loaded project or an InputError naming a file, never in a crash.
+_SCALARS = st.one_of(st.none(), st.booleans(), st.integers(-5, 10**6), st.floats(allow_nan=True),
+                     st.text(max_size=12), st.lists(st.text(max_size=6), max_size=3),
+                     st.dictionaries(st.text(max_size=6), st.text(max_size=6), max_size=2))
+
+
+@pytest.fixture(scope="module")
+def imported_template(tmp_path_factory):
+    root = tmp_path_factory.mktemp("template") / "p"
+    _write_imported(root)
+    return root
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(key=st.sampled_from(["as", "delimiter", "decimal", "encoding", "skip_rows", "columns", "values",
+                            "date_format", "wide", "constants", "columns.strand", "values.direction",
+                            "wide.loss_db", "constants.note"]),
+       value=_SCALARS, cell=st.text(max_size=10), column=st.integers(0, len(HEADER) - 1))
+def test_fuzzed_profiles_and_cells_end_in_a_result_or_clear_problems(tmp_path_factory, imported_template,
+                                                                    key, value, cell, column):
+    import shutil
+
+    import yaml
+
+    root = tmp_path_factory.mktemp("fuzz") / "p"
+    shutil.copytree(imported_template, root)
+    profile = yaml.safe_load(METER_PROFILE)
+    section, _, name = key.partition(".")
+    if name:
+        profile[section] = dict(profile.get(section) or {})
+        profile[section][name] = value
+    else:
+        profile[section] = value
+    (root / "profiles" / "meter.yaml").write_text(yaml.safe_dump(profile, allow_unicode=True),
+                                                  encoding="utf-8")
+    export = root / "exports" / "day1.csv"
+    lines = export.read_bytes().decode("cp1252").split("\r\n")
+    cells = lines[4].split(";")
+    cells[column] = cell.replace(";", ",")
+    lines[4] = ";".join(cells)
+    export.write_bytes("\r\n".join(lines).encode("cp1252", errors="replace"))
+    try:
+        project = load_project(root)
+    except InputError as error:
+        assert error.problems and all(problem.file for problem in error.problems)
+    else:
+        assert len(project.results) > 0
+
+
+def test_an_unclosed_quote_in_an_export_is_refused_at_its_line(tmp_path):
+    _write_imported(tmp_path)
+    export = tmp_path / "exports" / "day1.csv"
+    text = export.read_bytes().decode("cp1252").replace("Ö. Example", '"Ö. Example', 1)
+    export.write_bytes(text.encode("cp1252"))
+    assert _problems(tmp_path) == [
+        'exports/day1.csv, line 4: expected a closing quote " for the cell opened on this line '
+        "(otherwise every line after it would be read as part of that cell)"]

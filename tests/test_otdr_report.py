@@ -1,0 +1,71 @@
+"""The OTDR part of a link sheet: the trace figure (min/max envelope, grayscale) and the event table."""
+from __future__ import annotations
+
+import re
+from datetime import datetime, timezone
+
+import numpy as np
+
+from builders import synth_sor, well_formed
+from reportgen.engine.judge import judge_project
+from reportgen.engine.otdr import assess_otdr
+from reportgen.inputs.project import load_project
+from reportgen.inputs.sor import write_sor
+from reportgen.report.otdr_figure import envelope, trace_svg
+from reportgen.report.render import build_report
+
+YAML = (
+    "project:\n  title: Test backbone\n  contractor: {name: Test Cabling}\n"
+    "testing:\n  limits: tia-568.3-d\n  reference_method: one-cord\n"
+    "  otdr: {launch_cord_m: 100, receive_cord_m: 100}\n"
+    "instruments:\n  - {id: SRC-1, kind: light-source}\n  - {id: PM-1, kind: power-meter}\n"
+)
+LINKS = "link_id,end_a,end_b,fiber_type,length_m,strands,splices\nL1,Room 1,Room 2,OM4,120,2,0\nL2,Room 1,Hut 3,OS2,1500,1,1\n"
+
+
+def test_envelope_keeps_a_one_sample_peak():
+    x = np.arange(100_000) * 0.1
+    level = -10.0 - x / 1000
+    level[54_321] = -1.0  # one sample of 100,000, far narrower than a pixel column
+    cols, low, high = envelope(x, level, 0.0, x[-1], 500)
+    assert len(cols) == 500 and high.max() == -1.0
+    assert low.min() == level.min()
+
+
+def project_with_traces(make_project):
+    files = {"project.yaml": YAML, "links.csv": LINKS}
+    for origin, direction in (("Room 1", "ab"), ("Hut 3", "ba")):
+        sor = synth_sor([(100.0, 0.3, -50.0), (800.0 if direction == "ab" else 900.0, 0.08, None),
+                         (1600.0, 0.3, -48.0)], 1700.0, cable_id="L2", fiber_id="1", origin=origin,
+                        nominal_wavelength_nm=1310, wavelength_nm=1310.0, seed=len(direction + origin))
+        files[f"otdr/L2-{direction}.sor"] = write_sor(sor)
+    return load_project(make_project(files))
+
+
+def test_trace_figure_is_grayscale_and_marks_every_event(make_project):
+    project = project_with_traces(make_project)
+    (strand,) = assess_otdr(project).strands
+    svg = trace_svg(strand, project.testing.otdr)
+    colours = set(re.findall(r'#[0-9a-fA-F]{6}', svg))
+    assert all(c[1:3] == c[3:5] == c[5:7] for c in colours)  # grays only: R = G = B
+    assert svg.count("<polyline") == 2  # both directions
+    assert 'stroke-dasharray="4 2"' in svg  # the mirrored one dashed
+    numbers = re.findall(r'font-size="8">(\d+)</text>', svg)
+    assert numbers == [str(n) for n in range(1, len(strand.events) + 1)]
+
+
+def test_link_sheet_shows_the_event_table(make_project):
+    project = project_with_traces(make_project)
+    judgement = judge_project(project)
+    document = build_report(project, judgement, now=datetime(2030, 1, 1, tzinfo=timezone.utc), version="t",
+                            otdr=assess_otdr(project))
+    html = document.html
+    ids = well_formed(html)  # tags balance, every inline SVG parses as XML
+    assert len(ids) == len(set(ids))
+    assert "OTDR: events along the fiber" in html and "Strand 1, 1310 nm" in html
+    assert html.count('class="otdr-trace"') == 1
+    # the splice: 0.08 dB both ways, 800 m into the A trace = 700 m past the 100 m launch cord
+    # (from B: 900 − 100 = 800 m, mirrored 1500 − 800 = 700 m), judged against 0.30 dB
+    row = re.search(r'<tr class="row-pass"><td class="num">3</td><td class="num">700\xa0m</td><td>splice</td>'
+                    r'<td class="num">0.08</td><td class="num">0.08</td><td class="num">0.08</td>', html)
+    assert row is not None
