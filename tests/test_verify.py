@@ -164,11 +164,11 @@ def test_one_input_changed_in_the_project_folder_fails_naming_it(
         demo_build: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     project = tmp_path / "project"
     shutil.copytree(DEMO, project)
-    retests = project / "results" / "day2-retests.csv"
+    retests = project / "results" / "day2-campus.csv"
     retests.write_bytes(retests.read_bytes() + b"\n")   # one byte more, still valid
     assert cli.main(["verify", str(demo_build / "report.pdf"), "--project", str(project)]) == 1
     out = capsys.readouterr().out
-    assert "results/day2-retests.csv differs from the copy in the report" in out
+    assert "results/day2-campus.csv differs from the copy in the report" in out
     assert out.count("FAIL") == 1  # the project check only; the report itself holds
 
 
