@@ -1,8 +1,8 @@
 """Command line: parse, call the pipeline, map outcomes to exit status.
 
-Exit status: 0 done (``check``: every link passes), 1 (``check`` only) some link
-fails or is incomplete, 2 bad input or any other error — with the message on
-standard error and nothing written.
+Exit status: 0 done (``check``: every link passes, no error finding), 1 (``check``
+only) some link fails or is incomplete or an audit finding is an error, 2 bad input
+or any other error — with the message on standard error and nothing written.
 """
 from __future__ import annotations
 
@@ -34,8 +34,8 @@ Examples:
                                           verdicts judged again
   reportgen import demo_project           show what imports: entries read
 
-Exit status: 0 done, 1 (check) a link fails or is incomplete,
-2 bad input or any other error (nothing is written).
+Exit status: 0 done, 1 (check) a link fails or is incomplete or an audit
+finding is an error, 2 bad input or any other error (nothing is written).
 
 -v and --debug go before or after the command.
 """
@@ -154,21 +154,23 @@ def _signing_key(path: Path) -> Any:
 PROJECT = click.argument("project", type=click.Path(path_type=Path))
 
 
-@cli.command(epilog="Exit status: 0 every link passes, 1 some link fails or is incomplete, "
+@cli.command(epilog="Exit status: 0 every link passes and no audit finding is an error, "
+                    "1 some link fails or is incomplete or an audit finding is an error, "
                     "2 bad input.")
 @PROJECT
 @click.option("--all", "show_all", is_flag=True,
-              help="List every link, also in large projects (default: above 100 links only "
-                   "the links that fail or are incomplete).")
+              help="List every link and audit finding, also in large projects (default: above "
+                   "100 links only the links that fail or are incomplete; above 100 findings "
+                   "only the errors).")
 def check(project: Path, show_all: bool) -> None:
-    """Validate and judge PROJECT, print a table of links; write nothing."""
+    """Validate and judge PROJECT, print a table of links and the audit findings; write nothing."""
     from reportgen import pipeline
     from reportgen.report.terminal import print_check_table
 
     outcome = pipeline.compute(pipeline.validate_only(project))
     print_check_table(_stdout(), outcome, show_all=show_all)
     totals = outcome.judgement.totals
-    if totals["fail"] or totals["incomplete"]:
+    if totals["fail"] or totals["incomplete"] or outcome.findings.has_errors:
         raise _Failure(1)
 
 
@@ -179,11 +181,25 @@ def check(project: Path, show_all: bool) -> None:
               help="Output folder (default: PROJECT/report).")
 @click.option("--data-only", is_flag=True,
               help="Write only results.csv and summary.json (no HTML/PDF report).")
+@click.option("-j", "--jobs", type=click.IntRange(min=1), default=None,
+              help="Processes rendering the PDF's parts (default: the cores this process "
+                   "may use).")
+@click.option("--no-cache", is_flag=True,
+              help="Render every part of the PDF again, ignoring the parts kept by earlier "
+                   "builds in OUTPUT/.reportgen-cache.")
+@click.option("--cluster", metavar="ADDRESS", envvar="REPORTGEN_CLUSTER", default=None,
+              help="Render the PDF's parts on the Dask scheduler at ADDRESS, e.g. "
+                   "tcp://10.0.0.5:8786 (also REPORTGEN_CLUSTER; needs reportgen[cluster]).")
 @click.option("--sign", "sign_p12", type=click.Path(path_type=Path), metavar="KEY.p12",
               help="Sign report.pdf with the key and certificate of this PKCS#12 file; its "
                    f"password comes from {SIGN_PASSWORD_VARIABLE} or is asked for.")
-def build(project: Path, output: Path | None, data_only: bool, sign_p12: Path | None) -> None:
-    """Validate, judge and write the report of PROJECT."""
+def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
+          no_cache: bool, cluster: str | None, sign_p12: Path | None) -> None:
+    """Validate, judge and write the report of PROJECT.
+
+    A rebuild into the same output folder renders only the parts of the PDF that
+    changed; the result is the same, byte for byte, as a build from scratch.
+    """
     from reportgen import pipeline
     from reportgen.report.terminal import progress_bar
 
@@ -192,11 +208,14 @@ def build(project: Path, output: Path | None, data_only: bool, sign_p12: Path | 
     sign_key = _signing_key(sign_p12) if sign_p12 is not None else None
     with progress_bar(_stderr(), enabled=not data_only) as progress:
         result = pipeline.build(project, output, report=not data_only, progress=progress,
+                                jobs=jobs, cache=not no_cache, cluster=cluster or None,
                                 sign_key=sign_key)
     totals = result.outcome.judgement.totals
+    counts = result.outcome.findings.counts
     _stdout().print(
         f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
-        f"{totals['incomplete']} incomplete. Written to {result.out_dir}: "
+        f"{totals['incomplete']} incomplete; audit findings: {counts['error']} error, "
+        f"{counts['warning']} warning, {counts['note']} note. Written to {result.out_dir}: "
         + ", ".join(result.files))
 
 
@@ -270,6 +289,11 @@ def applications() -> None:
     from reportgen.report.terminal import print_applications
 
     print_applications(_stdout())
+
+
+from reportgen.cli_archive import register as _register_archive  # noqa: E402
+
+_register_archive(cli, _flag_options)
 
 
 def main(argv: Sequence[str] | None = None) -> int:

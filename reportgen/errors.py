@@ -34,3 +34,15 @@ class InputError(ReportgenError):
     def __init__(self, problems: list[InputProblem]) -> None:
         super().__init__(f"{len(problems)} problem(s) in the project folder")
         self.problems = problems
+
+
+class WorkerTraceback(Exception):
+    """The traceback of a failed worker, as text: the cause of the error the parent raises.
+
+    Raised from by the PDF stage (local worker processes, cluster workers). The command
+    line prints it with ``--debug`` (after the error's own traceback's
+    "direct cause" line); without, only the error's one-line message is shown.
+    """
+
+    def __str__(self) -> str:
+        return "\n" + str(self.args[0]).rstrip()

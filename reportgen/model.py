@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from datetime import date
+from datetime import date, datetime
 from enum import StrEnum
 from pathlib import Path
 from typing import Any, Final
@@ -135,6 +135,35 @@ class ProjectInfo:
     site: str | None = None
     customer: str | None = None
     job_number: str | None = None
+    work_started: date | None = None  # project.work_started
+
+
+class Severity(StrEnum):
+    """How much an audit finding weighs: an error blocks acceptance."""
+
+    ERROR = "error"
+    WARNING = "warning"
+    NOTE = "note"
+
+
+@dataclass(frozen=True)
+class AuditSettings:
+    """Thresholds of the audit rules (``testing.audit`` in project.yaml).
+
+    Defaults and their sources: docs/project-format.md, "Audit findings";
+    ``reportgen.engine.findings.RULES`` names which rule uses which key.
+    """
+
+    asymmetry_db: float = 0.5  # |A->B - B->A| above this: a warning
+    rayleigh_db_um4_per_km: float = 0.7  # fiber loss floor: this / (wavelength in um)^4 [dB/km]
+    low_loss_connection_db: float = 0.02  # loss a mated connection surely adds [dB]
+    repeat_count: int = 6  # this many identical readings of one link and wavelength (or in a row)
+    min_length_inside_m: float = 1.0
+    min_length_outside_m: float = 10.0
+    length_tolerance_percent: float = 10.0  # measured vs documented length
+    length_tolerance_m: float = 5.0  # added to the percentage
+    reference_max_age_h: float = 24.0
+    cord_check_max_db: float = 0.2  # test cord verification reading, at most
 
 
 @dataclass(frozen=True)
@@ -148,6 +177,10 @@ class Testing:
         default_factory=lambda: dict(DEFAULT_WAVELENGTHS_NM)
     )
     attenuators_db: tuple[float, ...] = DEFAULT_ATTENUATORS_DB
+    audit: AuditSettings = field(default_factory=AuditSettings)
+    required_reference_method: ReferenceMethod | None = None  # the customer's specification
+    period_start: date | None = None  # testing.period: results expected within these days
+    period_end: date | None = None
     otdr: OtdrSettings | None = None  # testing.otdr; None: defaults (docs §12)
 
 
@@ -234,6 +267,59 @@ RESULT_COLUMNS: Final[tuple[str, ...]] = (
 )
 
 
+class LinkEnd(StrEnum):
+    A = "a"
+    B = "b"
+
+
+class InspectionResult(StrEnum):
+    PASS = "pass"
+    FAIL = "fail"
+
+
+@dataclass(frozen=True)
+class Reference:
+    """One row of ``references/*.csv``: a meter referenced at one wavelength."""
+
+    instrument: str  # the power meter (an instrument id)
+    wavelength_nm: int
+    reference_dbm: float
+    set_at: datetime
+    cords: tuple[str, ...]  # test cord instrument ids
+    method: ReferenceMethod
+    cord_check_db: float | None  # test cord verification reading, None when not recorded
+    source_file: str
+    source_line: int
+
+
+@dataclass(frozen=True)
+class InspectionImage:
+    """An end-face picture, downscaled by the inputs stage (see inputs/records.py)."""
+
+    path: str  # project-relative, as written
+    mime: str
+    data: bytes = field(repr=False)
+    width: int = 0
+    height: int = 0
+
+
+@dataclass(frozen=True)
+class Inspection:
+    """One row of ``inspections/*.csv``: an end face of one strand at one link end."""
+
+    link_id: str
+    strand: int
+    end: LinkEnd
+    result: InspectionResult
+    inspected_at: datetime
+    criteria: str | None
+    technician: str | None
+    image: InspectionImage | None
+    source_file: str
+    source_line: int
+    note: str | None = None
+
+
 @dataclass(frozen=True)
 class InputFile:
     """A file of the project folder the inputs stage read, as the report's appendix lists it."""
@@ -283,6 +369,8 @@ class Project:
     imports: tuple[ImportSource, ...] = ()  # every file read through imports:, in entry order
     input_files: tuple[InputFile, ...] = ()  # files_read with size, SHA-256 and rows, same order
     applications: ApplicationTable | None = field(default=None, compare=False, repr=False)
+    references: tuple[Reference, ...] | None = None  # None: the project has no references/ folder
+    inspections: tuple[Inspection, ...] | None = None  # None: no inspections/ folder
     otdr: tuple[OtdrTrace, ...] = field(default=(), compare=False, repr=False)  # otdr/ traces
 
     def link(self, link_id: str) -> Link:

@@ -26,8 +26,9 @@ from reportgen.export import manifest as manifest_file
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
+from reportgen.engine.findings import Findings, find_all
 from reportgen.engine.otdr import OtdrAssessment, assess_otdr
-from reportgen.report.messages import PAGE_LABEL, archive_page_label, reason_text
+from reportgen.report.messages import PAGE_LABEL, archive_page_label, finding_text, reason_text
 from reportgen.model import Project
 from reportgen.inputs.apptable import table_version
 from reportgen.inputs.project import load_project, read_files
@@ -47,6 +48,7 @@ class Outcome:
     project: Project
     judgement: Judgement
     applications: ProjectApplications  # applications and transceiver power budgets per link
+    findings: Findings  # audit findings
     otdr: OtdrAssessment | None = None  # OTDR events paired, averaged and judged
 
 
@@ -68,14 +70,18 @@ def validate_only(project_dir: Path) -> Project:
     return load_project(project_dir)
 
 
-def compute(project: Project) -> Outcome:
-    """Steps 2 and 3: judge every result, then assess applications and power budgets."""
+def compute(project: Project, now: datetime | None = None) -> Outcome:
+    """Steps 2 and 3: judge every result, assess applications and power budgets, then
+    audit the project (``now``: the build's clock, see :func:`build_now`)."""
     log.info("Step 2: judging %d results of %d links", len(project.results), len(project.links))
     judgement = judge_project(project)
-    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces",
-             len(project.otdr))
+    log.info("Step 3: assessing applications, transceiver power budgets and %d OTDR traces; "
+             "audit findings", len(project.otdr))
     applications = assess_project(project, judgement)
-    return Outcome(project, judgement, applications, assess_otdr(project, judgement))
+    clock = build_now(now)
+    today = (clock if clock.tzinfo is None else clock.astimezone(timezone.utc)).date()
+    findings = find_all(project, judgement, applications, today=today)
+    return Outcome(project, judgement, applications, findings, assess_otdr(project, judgement))
 
 
 def default_out_dir(project_dir: Path) -> Path:
@@ -126,10 +132,18 @@ def build(
     version: str = __version__,
     report: bool = True,
     progress: Progress | None = None,
+    jobs: int | None = None,
+    cache: bool = True,
+    cluster: str | None = None,
     sign_key: Any = None,
 ) -> BuildResult:
     """Validate, judge, render and write every output; nothing is written on failure.
 
+    ``jobs`` local processes render the PDF's parts (default: the cores this process
+    may use), or the Dask scheduler at ``cluster`` has its workers render them. With
+    ``cache``, parts rendered by an earlier build into the same output folder are
+    reused (``OUT/.reportgen-cache``, :mod:`reportgen.pdf.cache`); the part cache is
+    the one thing written before the outputs, each entry whole or not at all.
     ``sign_key`` (:func:`reportgen.pdf.sign.load_signing_key`) signs report.pdf.
     """
     project_dir = Path(project_dir)
@@ -137,8 +151,8 @@ def build(
     check_out_dir(project_dir, out_dir)
     project = validate_only(project_dir)
     check_out_dir_holds_no_input(project, out_dir)
-    outcome = compute(project)
     now = build_now(now)
+    outcome = compute(project, now)
     results_csv = results_csv_bytes(outcome.judgement.results)
     archive = archive_of(outcome, results_csv, now=now, version=version)
 
@@ -151,7 +165,9 @@ def build(
 
     if report:
         outputs = render_report(outcome, now=now, version=version, progress=progress,
-                                alongside=data_outputs, archive=archive, sign_key=sign_key)
+                                alongside=data_outputs, jobs=jobs,
+                                cache_dir=out_dir if cache else None, cluster=cluster,
+                                archive=archive, sign_key=sign_key)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
         outputs = data_outputs()
@@ -196,6 +212,7 @@ def summary_document(outcome: Outcome, now: datetime, version: str,
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
                                     now=now, version=version, reason_text=reason_text,
+                                    findings=outcome.findings, finding_text=finding_text,
                                     otdr=outcome.otdr, digest=digest)
 
 
@@ -247,22 +264,35 @@ def report_view_archive(archive: Archive, signer: str = "") -> Any:
     return ArchiveView(archive.digest, signer)
 
 
+def default_jobs() -> int:
+    """Worker processes for the PDF parts: the cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on every system
+        return max(1, os.cpu_count() or 1)
+
+
 def render_report(outcome: Outcome, *, now: datetime, version: str,
                   progress: Progress | None = None,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
-                  archive: Archive | None = None, sign_key: Any = None) -> dict[str, bytes]:
+                  jobs: int | None = None, cache_dir: Path | None = None,
+                  cluster: str | None = None, archive: Archive | None = None,
+                  sign_key: Any = None) -> dict[str, bytes]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
 
     Returns the outputs of ``alongside()`` (made first: the PDF embeds them), then
     report.html (made by a thread while the PDF workers are busy) and report.pdf.
+    ``cache_dir`` is the output folder whose part cache is used (None: render every
+    part); ``archive`` is attached to the PDF, ``sign_key`` signs it.
     """
     from reportgen.pdf import engine as pdf
+    from reportgen.pdf.cache import PartCache
     from reportgen.report import render
 
     log.info("Step 4: rendering the report")
     document = render.build_report(
         outcome.project, outcome.judgement, now=now, version=version,
-        applications=outcome.applications, otdr=outcome.otdr,
+        applications=outcome.applications, findings=outcome.findings, otdr=outcome.otdr,
         archive=(report_view_archive(archive, sign_key.subject if sign_key is not None else "")
                  if archive is not None else None))
 
@@ -285,7 +315,11 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                                    page_label=label, progress=progress,
                                    xml_first=document.own_templates,
                                    author=outcome.project.info.contractor.name,
-                                   attachments=attachments, seal=seal)
+                                   attachments=attachments, seal=seal,
+                                   workers=jobs if jobs is not None else default_jobs(),
+                                   cache=(PartCache.in_output_folder(cache_dir)
+                                          if cache_dir is not None else None),
+                                   cluster=cluster)
         return {**made, "report.html": html.result(), "report.pdf": pdf_bytes}
 
 

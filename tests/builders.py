@@ -4,10 +4,12 @@ page numbers printed in a PDF). Test modules import helpers from here (or fixtur
 conftest.py), never from one another or from benchmarks/."""
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import os
 import re
 import xml.etree.ElementTree as ET
+from datetime import datetime
 from html.parser import HTMLParser
 from pathlib import Path
 
@@ -17,6 +19,11 @@ import pypdf
 from reportgen.inputs.apptable import load_applications
 from reportgen.model import (
     RESULT_COLUMNS,
+    AuditSettings,
+    Inspection,
+    InspectionResult,
+    LinkEnd,
+    Reference,
     Contractor,
     Directions,
     FiberType,
@@ -80,14 +87,22 @@ def make_results(rows: list[dict]) -> pd.DataFrame:
 
 def make_project(links, results, *, limits=TEST_LIMITS, method=ReferenceMethod.ONE_CORD,
                  directions=Directions.BOTH, uncertainty_db=0.0, components=None,
-                 instruments=(), wavelengths=None, transceivers=None) -> Project:
+                 instruments=(), wavelengths=None, transceivers=None, audit=None,
+                 required_method=None, period=(None, None), work_started=None,
+                 references=None, inspections=None) -> Project:
+    """An in-memory project; ``audit`` (a dict) sets thresholds of testing.audit, ``references``
+    and ``inspections`` (lists of dicts, see make_reference/make_inspection) the records."""
     testing_fields = dict(limits=limits.id, reference_method=method, directions=directions,
-                          uncertainty_db=uncertainty_db)
+                          uncertainty_db=uncertainty_db, required_reference_method=required_method,
+                          period_start=period[0], period_end=period[1],
+                          audit=dataclasses.replace(AuditSettings(), **(audit or {})))
     if wavelengths is not None:
         testing_fields["wavelengths_nm"] = wavelengths
     return Project(
+        references=None if references is None else tuple(make_reference(**r) for r in references),
+        inspections=None if inspections is None else tuple(make_inspection(**i) for i in inspections),
         root=Path("."),
-        info=ProjectInfo(title="T", contractor=Contractor(name="C")),
+        info=ProjectInfo(title="T", contractor=Contractor(name="C"), work_started=work_started),
         testing=Testing(**testing_fields),
         links=tuple(links),
         results=make_results(results),
@@ -98,6 +113,24 @@ def make_project(links, results, *, limits=TEST_LIMITS, method=ReferenceMethod.O
         applications=load_applications(),
     )
 
+
+
+def make_reference(instrument="PM-1", wavelength_nm=850, set_at="2030-01-15T08:00",
+                   method=ReferenceMethod.ONE_CORD, cords=("TC-1",), cord_check_db=0.05,
+                   reference_dbm=-20.0, line=2) -> Reference:
+    return Reference(instrument=instrument, wavelength_nm=wavelength_nm,
+                     reference_dbm=reference_dbm, set_at=datetime.fromisoformat(set_at),
+                     cords=tuple(cords), method=method, cord_check_db=cord_check_db,
+                     source_file="references/r.csv", source_line=line)
+
+
+def make_inspection(link_id="L1", strand=1, end="a", result="pass",
+                    inspected_at="2030-01-15T07:00", line=2) -> Inspection:
+    return Inspection(link_id=link_id, strand=strand, end=LinkEnd(end),
+                      result=InspectionResult(result),
+                      inspected_at=datetime.fromisoformat(inspected_at), criteria=None,
+                      technician=None, image=None, source_file="inspections/i.csv",
+                      source_line=line)
 
 
 def write_large_project(root: Path, links: int) -> Path:
@@ -201,8 +234,54 @@ def printed_page_refs(reader: pypdf.PdfReader, page_index: int) -> list[tuple[st
             found.append(("".join(inside), target))
     return found
 
-__all__ = ["TEST_LIMITS", "make_link", "make_results", "make_project", "Plant",
+__all__ = ["TEST_LIMITS", "make_link", "make_results", "make_project", "make_reference",
+           "make_inspection", "Plant",
            "write_large_project", "tree_digest", "well_formed", "printed_page_refs"]
+
+
+def write_build_output(folder, links, *, site="Test site (invented)", title="Test campaign",
+                       contractor="Test contractor (invented)"):
+    """A build output folder (summary.json + results.csv) as ``reportgen build`` writes it.
+
+    ``links``: (link_id, verdict, fiber_type, capable applications, result rows), each result
+    row (strand, wavelength_nm, direction, loss_db, tested_at, verdict). Limit and margin
+    columns are left empty: the archive stores them as read and judges nothing.
+    """
+    import csv as _csv
+    import io as _io
+    import json as _json
+    from pathlib import Path as _Path
+
+    from reportgen.export.results_csv import RESULTS_COLUMNS, neutralise_cell
+
+    folder = _Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    # a failing link gets a worst margin of -0.5 dB (invented), the others none
+    entries = [{"link_id": link_id, "verdict": verdict,
+                "worst_margin_db": -0.5 if verdict == "fail" else None, "missing": [],
+                "fiber_type": fiber, "length_m": 100.0, "applications": [],
+                "capable": list(capable)}
+               for link_id, verdict, fiber, capable, _ in links]
+    totals = {"links": len(links),
+              **{v: sum(1 for e in entries if e["verdict"] == v)
+                 for v in ("pass", "fail", "incomplete")}}
+    summary = {"format": 1, "links": entries, "totals": totals,
+               "project": {"title": title, "job_number": None, "site": site,
+                           "customer": None, "contractor": contractor}}
+    (folder / "summary.json").write_text(_json.dumps(summary, indent=2), encoding="utf-8")
+    buffer = _io.StringIO()
+    writer = _csv.writer(buffer, lineterminator="\n")
+    writer.writerow(RESULTS_COLUMNS)
+    line = 1
+    for link_id, _, _, _, rows in links:
+        for strand, wavelength, direction, loss, tested_at, verdict in rows:
+            line += 1
+            cells = [neutralise_cell(link_id), strand, wavelength, direction, f"{loss:.2f}",
+                     tested_at, "", "", verdict, "", "T. Tester", "SRC-1;OPM-1", "", "",
+                     "results/day1.csv", line]
+            writer.writerow(cells + [""] * (len(RESULTS_COLUMNS) - len(cells)))
+    (folder / "results.csv").write_text(buffer.getvalue(), encoding="utf-8")
+    return folder
 
 
 # ------------------------------------------------------------ synthetic OTDR traces

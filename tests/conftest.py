@@ -8,6 +8,10 @@ from pathlib import Path
 import pytest
 
 GOLDEN_DIR = Path(__file__).resolve().parent / "golden"
+# Test data are dated in 2030 (invented). Builds and checks in the tests run on a clock set
+# after them (SOURCE_DATE_EPOCH, 2031-01-01T00:00Z), so the audit rule "result dated after
+# the report date" does not fire on every test project; a test may set its own clock.
+TEST_CLOCK_EPOCH = "1924992000"
 UPDATE_GOLDEN = "python -m pytest -q tests/test_golden.py --update-golden"
 
 
@@ -15,6 +19,12 @@ def pytest_addoption(parser: pytest.Parser) -> None:
     parser.addoption("--update-golden", action="store_true", default=False,
                      help="rewrite the golden files in tests/golden/ from the current output "
                           "instead of comparing with them; review the diff before committing")
+
+
+@pytest.fixture(autouse=True)
+def test_clock(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Every test runs with SOURCE_DATE_EPOCH = TEST_CLOCK_EPOCH unless it sets its own."""
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", TEST_CLOCK_EPOCH)
 
 
 @pytest.fixture
@@ -101,3 +111,70 @@ def make_project(tmp_path: Path) -> Callable[[dict[str, str | bytes | None]], Pa
         return root
 
     return make
+
+
+# ---------------------------------------------------------------- archive databases
+# The archive tests run against SQLite and a real PostgreSQL server: REPORTGEN_TEST_PG (a
+# URL, set by .ci/run), else a throwaway cluster started here with tests/pg_cluster.sh when
+# the server binaries are installed, else the PostgreSQL cases are skipped with the reason.
+PG_ENV = "REPORTGEN_TEST_PG"
+PG_SCRIPT = Path(__file__).resolve().parent / "pg_cluster.sh"
+
+
+def _free_port() -> int:
+    import socket
+
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        return sock.getsockname()[1]
+
+
+@pytest.fixture(scope="session")
+def pg_server(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
+    """The URL of a PostgreSQL server's maintenance database, or a skip with the reason."""
+    import os
+    import shutil
+    import subprocess
+    import tempfile
+
+    url = os.environ.get(PG_ENV)
+    if url:
+        yield url
+        return
+    folder = Path(tempfile.mkdtemp(prefix="reportgen-pg-"))
+    port = _free_port()
+    started = subprocess.run(["bash", str(PG_SCRIPT), "start", str(folder), str(port)],
+                             capture_output=True, text=True, timeout=120)
+    if started.returncode != 0:
+        shutil.rmtree(folder, ignore_errors=True)
+        why = ((started.stderr or started.stdout).strip().splitlines() or ["no reason given"])[-1]
+        pytest.skip(f"PostgreSQL: {PG_ENV} is unset and no server could be started ({why})")
+    try:
+        yield f"postgresql+psycopg://postgres@127.0.0.1:{port}/postgres"
+    finally:
+        subprocess.run(["bash", str(PG_SCRIPT), "stop", str(folder)], capture_output=True,
+                       timeout=120)
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+@pytest.fixture(params=["sqlite", "postgresql"])
+def archive_url(request: pytest.FixtureRequest, tmp_path: Path):  # type: ignore[no-untyped-def]
+    """A fresh, empty archive database: an SQLite file, or a new PostgreSQL database."""
+    if request.param == "sqlite":
+        yield f"sqlite:///{tmp_path / 'archive.sqlite'}"
+        return
+    import uuid
+
+    import sqlalchemy as sa
+
+    server = sa.make_url(request.getfixturevalue("pg_server"))
+    name = f"reportgen_test_{uuid.uuid4().hex[:12]}"
+    admin = sa.create_engine(server, isolation_level="AUTOCOMMIT", poolclass=sa.pool.NullPool)
+    with admin.connect() as connection:
+        connection.exec_driver_sql(f'CREATE DATABASE "{name}"')
+    try:
+        yield server.set(database=name).render_as_string(hide_password=False)
+    finally:
+        with admin.connect() as connection:
+            connection.exec_driver_sql(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)')
+        admin.dispose()

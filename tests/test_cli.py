@@ -61,7 +61,11 @@ def test_demo_summary_matches_results_csv(demo_build):
     verdicts = {link["link_id"]: link["verdict"] for link in summary["links"]}
     assert verdicts["A-BB-07"] == "fail"
     assert verdicts["CB-05"] == "incomplete"
-    assert summary["totals"] == {"links": 30, "pass": 28, "fail": 1, "incomplete": 1}
+    # audit findings the demo plants (README "Audit findings"; each listed in
+    # tests/test_records.py::test_the_demo_gives_exactly_the_findings_its_story_plants)
+    assert summary["totals"] == {"links": 30, "pass": 28, "fail": 1, "incomplete": 1,
+                                 "error_findings": 10, "warning_findings": 2, "note_findings": 0}
+    assert len(summary["findings"]) == 12
     # worst margin = smallest margin of the judged rows of that link in results.csv
     for link in summary["links"]:
         judged = [float(r["margin_db"]) for r in rows

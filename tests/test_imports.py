@@ -292,7 +292,7 @@ def test_bad_profile_keys_get_a_did_you_mean_all_in_one_run(tmp_path):
     assert _problems(tmp_path) == [
         "profiles/schedule.yaml, as: expected one of results, links (got 'link')",
         "profiles/meter.yaml, delimeter: expected one of the keys as, delimiter, decimal, encoding, "
-        "skip_rows, columns, values, date_format, wide, constants; did you mean delimiter?",
+        "skip_rows, header_rows, columns, values, date_format, wide, constants; did you mean delimiter?",
         "profiles/meter.yaml, decimal: expected one of \".\" or \",\" (got ';')",
         "profiles/meter.yaml, columns.technican: expected one of our fields link_id, wavelength_nm, "
         "loss_db, tested_at, strand, direction, instrument, technician, note, length, length_m, "
@@ -516,8 +516,8 @@ def imported_template(tmp_path_factory):
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(key=st.sampled_from(["as", "delimiter", "decimal", "encoding", "skip_rows", "columns", "values",
-                            "date_format", "wide", "constants", "columns.strand", "values.direction",
+@given(key=st.sampled_from(["as", "delimiter", "decimal", "encoding", "skip_rows", "header_rows", "columns",
+                            "values", "date_format", "wide", "constants", "columns.strand", "values.direction",
                             "wide.loss_db", "constants.note"]),
        value=_SCALARS, cell=st.text(max_size=10), column=st.integers(0, len(HEADER) - 1))
 def test_fuzzed_profiles_and_cells_end_in_a_result_or_clear_problems(tmp_path_factory, imported_template,
@@ -559,3 +559,243 @@ def test_an_unclosed_quote_in_an_export_is_refused_at_its_line(tmp_path):
     assert _problems(tmp_path) == [
         'exports/day1.csv, line 4: expected a closing quote " for the cell opened on this line '
         "(otherwise every line after it would be read as part of that cell)"]
+
+
+# A header over two rows, as spreadsheets are often laid out: "Date/Time" merged over the date and
+# time columns, "Loss (dB)" merged over one column per wavelength (the wavelengths, number cells,
+# in the row below), the other headers merged down over both rows. Invented layout.
+TWO_ROW_PROFILE = """\
+as: results
+skip_rows: 1
+header_rows: 2
+decimal: ","
+columns:
+  link_id: "Cable ID"
+  strand: "Fibre No."
+  direction: "Direction"
+  tested_date: "Date/Time Date"
+  tested_time: "Date/Time Time"
+  technician: "Operator"
+values:
+  direction: {ab: ["A->B"], ba: ["B->A"]}
+date_format: "%d.%m.%Y"
+wide:
+  loss_db:
+    "Loss (dB) 850": {wavelength_nm: 850}
+    "Loss (dB) 1300": {wavelength_nm: 1300}
+    "Loss (dB) 1310": {wavelength_nm: 1310}
+    "Loss (dB) 1550": {wavelength_nm: 1550}
+"""
+TWO_ROW_HEADER = [
+    ["Cable ID", "Fibre No.", "Direction", "Date/Time", None, "Operator", "Loss (dB)", None, None, None,
+     "Temperature (°C)"],
+    [None, None, None, "Date", "Time", None, *WAVELENGTHS, None],
+]
+# (first row, first column, last row, last column), 0-based, of each merged range of the sheet
+TWO_ROW_MERGES = [(0, 0, 0, 3), (1, 0, 2, 0), (1, 1, 2, 1), (1, 2, 2, 2), (1, 3, 1, 4), (1, 5, 2, 5),
+                  (1, 6, 1, 9), (1, 10, 2, 10)]
+
+
+def _two_row_sheet() -> list[list]:
+    """The sheet's cells: a title row, the two header rows, then day 1 and day 2 (numbers as
+    numbers, dates as dates)."""
+    rows = [["Export of an invented meter"] + [None] * 10, *(list(row) for row in TWO_ROW_HEADER)]
+    for link_id, strand, direction, date, time, losses in _wide_rows(DAY1 + DAY2):
+        rows.append([link_id, strand, ARROWS[direction], date, time, "Ö. Example",
+                     *(losses.get(w) for w in WAVELENGTHS), 21.5])
+    return rows
+
+
+def _write_xlsx(path: Path, rows: list[list], merges) -> None:
+    from openpyxl.utils import get_column_letter
+
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Sheet"
+    for row in rows:
+        sheet.append(row)
+    for top, left, bottom, right in merges:
+        sheet.merge_cells(f"{get_column_letter(left + 1)}{top + 1}:{get_column_letter(right + 1)}{bottom + 1}")
+    book.save(path)
+
+
+def _write_ods(path: Path, rows: list[list], merges) -> None:
+    """An OpenDocument sheet with merged ranges (odfpy): the first cell of a range spans it, the
+    others are covered cells."""
+    from odf.opendocument import OpenDocumentSpreadsheet
+    from odf.table import CoveredTableCell, Table, TableCell, TableRow
+    from odf.text import P
+
+    spans = {(top, left): (bottom - top + 1, right - left + 1) for top, left, bottom, right in merges}
+    covered = {(r, c) for top, left, bottom, right in merges for r in range(top, bottom + 1)
+               for c in range(left, right + 1)} - set(spans)
+    document = OpenDocumentSpreadsheet()
+    table = Table(name="Sheet")
+    for r, row in enumerate(rows):
+        element = TableRow()
+        for c, value in enumerate(row):
+            if (r, c) in covered:
+                element.addElement(CoveredTableCell())
+                continue
+            span = {}
+            if (r, c) in spans:
+                span = {"numberrowsspanned": spans[r, c][0], "numbercolumnsspanned": spans[r, c][1]}
+            if value is None:
+                cell = TableCell(**span)
+            elif isinstance(value, str):
+                cell = TableCell(valuetype="string", **span)
+            elif isinstance(value, dt.date):
+                cell = TableCell(valuetype="date", datevalue=value.isoformat(), **span)
+            else:
+                cell = TableCell(valuetype="float", value=value, **span)
+            if value is not None:
+                cell.addElement(P(text=str(value)))
+            element.addElement(cell)
+        table.addElement(element)
+    document.spreadsheet.addElement(table)
+    document.save(str(path))
+
+
+def _write_csv_two_rows(path: Path, rows: list[list]) -> None:
+    """The same sheet as a spreadsheet program saves it as semicolon text in a decimal-comma
+    locale: merged cells empty but the first, decimal commas, dates as 14.11.2030."""
+    def text(value) -> str:
+        if value is None:
+            return ""
+        if isinstance(value, dt.date):
+            return value.strftime("%d.%m.%Y")
+        return str(value).replace(".", ",") if isinstance(value, float) else str(value)
+
+    path.write_text("\n".join(";".join(map(text, row)) for row in rows) + "\n", encoding="utf-8")
+
+
+def _two_row_project(root: Path, suffix: str, rows: list[list] | None = None,
+                     profile: str = TWO_ROW_PROFILE) -> Path:
+    _write_native(root, days=())
+    (root / "profiles").mkdir()
+    (root / "profiles" / "meter.yaml").write_text(profile, encoding="utf-8")
+    (root / "project.yaml").write_text(
+        PROJECT_YAML + f'imports:\n  - {{files: "exports/meter{suffix}", profile: profiles/meter.yaml}}\n',
+        encoding="utf-8")
+    (root / "exports").mkdir()
+    path = root / "exports" / f"meter{suffix}"
+    rows = _two_row_sheet() if rows is None else rows
+    if suffix == ".csv":
+        _write_csv_two_rows(path, rows)
+    else:
+        (_write_xlsx if suffix == ".xlsx" else _write_ods)(path, rows, TWO_ROW_MERGES)
+    return path
+
+
+@pytest.mark.parametrize("suffix", [".xlsx", ".ods", ".csv"])
+def test_a_header_over_two_rows_with_merged_cells_judges_like_the_native_folder(tmp_path, suffix):
+    _write_native(tmp_path / "native")
+    _two_row_project(tmp_path / "imported", suffix)
+    _, native = _judged(tmp_path / "native")
+    project, imported = _judged(tmp_path / "imported")
+    a = native.results[COMPARED].sort_values(KEY).reset_index(drop=True)
+    b = imported.results[COMPARED].sort_values(KEY).reset_index(drop=True)
+    assert len(a) == 2 * len(DAY1) + 2 * len(DAY2) == len(b)
+    for row_a, row_b in zip(a.itertuples(index=False), b.itertuples(index=False)):
+        assert row_a == row_b
+    # each column's header: the merged cell's text, carried over the columns it spans, then the
+    # text below it, joined with one space
+    source, = project.imports
+    assert ("tested_date", "Date/Time Date") in source.mapping
+    assert ("tested_time", "Date/Time Time") in source.mapping
+    assert ("loss_db", "wide: Loss (dB) 850, Loss (dB) 1300, Loss (dB) 1310, Loss (dB) 1550") in source.mapping
+    assert source.unmapped == ("Temperature (°C)",)
+    # rows keep the file's numbering: title row 1, header rows 2 and 3, data from row 4
+    place = "exports/meter.csv:" if suffix == ".csv" else f"exports/meter{suffix}[Sheet]:"
+    assert project.results["source"].iloc[0] == place + "4"
+    assert project.results["source"].iloc[-1] == place + str(3 + len(DAY1) + len(DAY2))
+
+
+@pytest.mark.parametrize("suffix", [".xlsx", ".ods"])
+def test_messages_under_a_two_row_header_name_the_joined_header(tmp_path, suffix):
+    rows = _two_row_sheet()
+    rows[4][7] = "x"  # line 5 (T-01 strand 1 B->A), the 1300 nm loss
+    _two_row_project(tmp_path, suffix, rows)
+    assert _problems(tmp_path) == [
+        f'exports/meter{suffix}, sheet Sheet, row 5, "Loss (dB) 1300" (loss_db): expected a loss in dB, a '
+        "number of at most 100 (got 'x')"]
+    # a header written without the merged text above it: the headers present are listed as joined
+    _two_row_project(tmp_path / "p2", suffix,
+                     profile=TWO_ROW_PROFILE.replace('"Date/Time Time"', '"Time"'))
+    assert _problems(tmp_path / "p2") == [
+        f'exports/meter{suffix}, sheet Sheet, row 2, tested_time: expected a column headed "Time" '
+        '(columns.tested_time in profiles/meter.yaml); headers present: "Cable ID", "Fibre No.", '
+        '"Direction", "Date/Time Date", "Date/Time Time", "Operator", "Loss (dB) 850", "Loss (dB) 1300", '
+        '"Loss (dB) 1310", "Loss (dB) 1550", "Temperature (°C)"']
+
+
+def test_header_rows_must_be_a_small_whole_number(tmp_path):
+    _two_row_project(tmp_path, ".csv", profile=TWO_ROW_PROFILE.replace("header_rows: 2", "header_rows: 0"))
+    assert _problems(tmp_path) == [
+        "profiles/meter.yaml, header_rows: expected a whole number of rows from 1 to 10 (got '0')"]
+    # one header row (the default) on this file: line 2 alone is the header, the merged cells'
+    # texts stand alone and the line below is read as data
+    _two_row_project(tmp_path / "p2", ".csv", profile=TWO_ROW_PROFILE.replace("header_rows: 2\n", ""))
+    problems = _problems(tmp_path / "p2")
+    assert problems[:2] == [
+        'exports/meter.csv, line 2, tested_date: expected a column headed "Date/Time Date" (columns.tested_date '
+        'in profiles/meter.yaml); closest headers present: "Date/Time"',
+        'exports/meter.csv, line 2, tested_time: expected a column headed "Date/Time Time" (columns.tested_time '
+        'in profiles/meter.yaml); closest headers present: "Date/Time"']
+    assert problems[2] == (
+        'exports/meter.csv, line 2, loss_db: expected a column headed "Loss (dB) 850" (wide.loss_db in '
+        'profiles/meter.yaml); closest headers present: "Loss (dB)"')
+    assert len(problems) == 6  # and the other three wavelengths' columns
+
+
+POINT_EXPECTED = ('a number with a decimal comma, e.g. 1,5, as decimal: "," in profiles/meter.yaml says '
+                  "(a point is not read: in such a file it is a thousands separator or a slip)")
+
+
+def test_a_point_in_a_decimal_comma_export_is_refused(tmp_path):
+    # decimal: "," in the profile: 1.84 may be a slip for 1,84 and 1.000,98 holds a thousands
+    # separator; neither is guessed
+    _write_imported(tmp_path)
+    export = tmp_path / "exports" / "day1.csv"
+    lines = export.read_bytes().decode("cp1252").split("\r\n")
+    lines[3] = lines[3].replace(";1,84;", ";1.84;")  # line 4, Loss 850 nm
+    lines[4] = lines[4].replace(";0,98;", ";1.000,98;")  # line 5, Loss 1300 nm
+    lines[5] = lines[5].replace("T-01;2;", "T-01;2.0;")  # line 6, the strand
+    export.write_bytes("\r\n".join(lines).encode("cp1252"))
+    assert _problems(tmp_path) == [
+        f"exports/day1.csv, line 4, \"Loss 850 nm\" (loss_db): expected {POINT_EXPECTED} (got '1.84')",
+        f"exports/day1.csv, line 5, \"Loss 1300 nm\" (loss_db): expected {POINT_EXPECTED} (got '1.000,98')",
+        f"exports/day1.csv, line 6, \"Fibre No.\" (strand): expected {POINT_EXPECTED} (got '2.0')",
+    ]
+
+
+def test_decimal_comma_applies_to_text_cells_of_a_sheet_not_to_number_cells(tmp_path):
+    # the .ods of day 2 under the same decimal-comma profile: number cells are numbers as stored
+    # (1.9 is 1.9); a loss typed as text follows decimal: "," (1,07 is read, 1.07 is refused)
+    _write_imported(tmp_path)
+    rows = [["Title"] + [None] * (len(HEADER) - 1), [None] * len(HEADER), HEADER,
+            ["T-01", 2, "A->B", dt.date(2030, 11, 15), "08:15:30", "", 1.9, "1,07", None, None, None]]
+    pd.DataFrame(rows).to_excel(tmp_path / "exports" / "day2.ods", engine="odf", header=False, index=False)
+    project = load_project(tmp_path)
+    retest = project.results[project.results["source"] == "exports/day2.ods[Sheet1]:4"]
+    assert retest[["wavelength_nm", "loss_db"]].values.tolist() == [[850, 1.9], [1300, 1.07]]
+    rows[3][7] = "1.07"
+    pd.DataFrame(rows).to_excel(tmp_path / "exports" / "day2.ods", engine="odf", header=False, index=False)
+    assert _problems(tmp_path) == [
+        f"exports/day2.ods, sheet Sheet1, row 4, \"Loss 1300 nm\" (loss_db): expected {POINT_EXPECTED} "
+        "(got '1.07')"]
+
+
+@pytest.mark.parametrize("decimal", ['decimal: "."\n', ""], ids=["point-written", "point-by-default"])
+def test_a_comma_in_a_decimal_point_export_is_refused_with_the_profile_key_to_write(tmp_path, decimal):
+    _write_imported(tmp_path)
+    (tmp_path / "profiles" / "meter.yaml").write_text(METER_PROFILE.replace('decimal: ","\n', decimal),
+                                                      encoding="utf-8")
+    export = tmp_path / "exports" / "day1.csv"
+    lines = export.read_bytes().decode("cp1252").split("\r\n")
+    lines[3:] = [line.replace(",", ".") for line in lines[3:]]  # every number with a point
+    lines[4] = lines[4].replace(";0.98;", ";0,98;")  # but one, line 5
+    export.write_bytes("\r\n".join(lines).encode("cp1252"))
+    assert _problems(tmp_path) == [
+        'exports/day1.csv, line 5, "Loss 1300 nm" (loss_db): expected a loss in dB, a number of at most '
+        '100 (for decimal commas write decimal: "," in profiles/meter.yaml) (got \'0,98\')']

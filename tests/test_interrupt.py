@@ -18,6 +18,7 @@ import hashlib
 import io
 import json
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -27,6 +28,7 @@ from pathlib import Path
 import pytest
 
 from reportgen.export.atomic import OUTPUT_NAMES, TEMP_PREFIX
+from reportgen.pdf.cache import CACHE_DIR_NAME, ENTRY_SUFFIX, decode_entry
 from tests.builders import tree_digest, write_large_project
 
 REPO = Path(__file__).resolve().parent.parent
@@ -106,12 +108,18 @@ def _kill_at_moments(project: Path, out: Path, fractions: list[float], *, data_o
             unchanged = [name for name in names if now[name] == first[name]]
             assert unchanged == list(names) or summary_is_new(out), (seconds, unchanged)
         _assert_readable(out, names)
-        leftovers = [path.name for path in out.iterdir() if path.name.startswith(".")]
+        leftovers = [path.name for path in out.iterdir()
+                     if path.name.startswith(".") and path.name != CACHE_DIR_NAME]
         assert all(name.startswith(TEMP_PREFIX) for name in leftovers), leftovers
+        # a killed build leaves only whole part-cache entries (and hidden temporary files)
+        for entry in (out / CACHE_DIR_NAME).glob(f"*{ENTRY_SUFFIX}"):
+            decode_entry(entry.stem, entry.read_bytes())
     # The next complete build replaces everything and clears hidden leftovers of killed builds.
     _build(project, out, data_only=data_only)
     assert _digests(out) == first
-    assert not [path for path in out.iterdir() if path.name.startswith(".")]
+    # the part cache (whole entries only, reportgen/pdf/cache.py) is the one hidden folder kept
+    assert [path.name for path in out.iterdir() if path.name.startswith(".")] in (
+        [], [CACHE_DIR_NAME])
     assert tree_digest(project) == before_project
     return killed
 
@@ -134,3 +142,35 @@ def test_killed_report_build_keeps_previous_outputs(tmp_path):
     project = write_large_project(tmp_path / "project", links=12)
     killed = _kill_at_moments(project, tmp_path / "out", [0.2, 0.6, 0.9], data_only=False)
     assert killed >= 2
+
+
+@pytest.mark.slow
+def test_ctrl_c_stops_the_workers_and_keeps_previous_outputs(tmp_path):
+    """SIGINT (what Ctrl-C sends) to the build process only: it exits 2 with a message, its
+    worker processes end, the previous outputs stay byte for byte, the cache keeps whole
+    entries only."""
+    psutil = pytest.importorskip("psutil")
+    project = write_large_project(tmp_path / "project", links=60)
+    out = tmp_path / "out"
+    _build(project, out, data_only=False)
+    first = _digests(out)
+    shutil.rmtree(out / CACHE_DIR_NAME)  # the next build must render again
+    process = subprocess.Popen(_command(project, out, False), env=_environment(SECOND_EPOCH),
+                               cwd=REPO, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+                               text=True)
+    children: list = []
+    deadline = time.monotonic() + 120
+    while process.poll() is None and time.monotonic() < deadline:
+        children = psutil.Process(process.pid).children(recursive=True)
+        if len(children) >= 3:  # the fork server and part workers are running
+            break
+        time.sleep(0.2)
+    assert process.poll() is None, "the build ended before its workers were seen"
+    process.send_signal(signal.SIGINT)
+    _, stderr = process.communicate(timeout=120)
+    assert process.returncode == 2 and "interrupted" in stderr
+    _, alive = psutil.wait_procs(children, timeout=30)
+    assert alive == []
+    assert _digests(out) == first
+    for entry in (out / CACHE_DIR_NAME).glob(f"*{ENTRY_SUFFIX}"):
+        decode_entry(entry.stem, entry.read_bytes())

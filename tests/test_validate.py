@@ -569,8 +569,11 @@ def test_files_read_lists_every_project_file_the_inputs_stage_opened():
     traces = tuple(f"otdr/{link}-s1-{wl}-{d}.sor" for link in ("CB-01", "CB-03", "CB-07")
                    for wl in (1310, 1550) for d in ("ab", "ba"))
     assert project.files_read == (
-        "assets/logo.svg", "exports/retests-2026-04-16.csv", "links.csv", *traces,
-        "profiles/handheld-meter.yaml", "project.yaml", "results/day1-building-a.csv",
+        "assets/logo.svg", "exports/retests-2026-04-16.csv", "inspections/end-faces.csv",
+        "inspections/images/a-bb-03-s1-b-day1.png", "inspections/images/a-bb-03-s1-b-day2.png",
+        "inspections/images/cb-01-s1-a.png", "inspections/images/cb-01-s1-b.png",
+        "links.csv", *traces, "profiles/handheld-meter.yaml", "project.yaml",
+        "references/references.csv", "results/day1-building-a.csv",
         "results/day2-campus.csv", "results/day3-pon-1490.csv")
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import os
 import tempfile
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Final
 
@@ -17,12 +17,13 @@ OUTPUT_NAMES: Final = ("report.html", "report.pdf", "results.csv", "summary.json
 TEMP_PREFIX: Final = ".reportgen-partial-"
 
 
-def write_outputs(out_dir: Path, outputs: Mapping[str, bytes]) -> None:
+def write_outputs(out_dir: Path, outputs: Mapping[str, bytes],
+                  ours: Sequence[str] = OUTPUT_NAMES) -> None:
     """Write all outputs, each atomically; called only after everything is rendered.
 
-    Outputs of ours that this build does not produce are removed so that no
-    stale file sits beside new ones; leftovers of an interrupted earlier build
-    (hidden temporary files) are cleaned up.
+    Outputs of ours (``ours``: a build's four files unless told otherwise) that this run
+    does not produce are removed so that no stale file sits beside new ones; leftovers of
+    an interrupted earlier run (hidden temporary files) are cleaned up.
     """
     out_dir.mkdir(parents=True, exist_ok=True)
     for leftover in out_dir.glob(f"{TEMP_PREFIX}*"):
@@ -31,7 +32,7 @@ def write_outputs(out_dir: Path, outputs: Mapping[str, bytes]) -> None:
     try:
         for name, data in outputs.items():
             staged.append((name, _stage(out_dir, name, data)))
-        for name in OUTPUT_NAMES:
+        for name in ours:
             if name not in outputs:
                 (out_dir / name).unlink(missing_ok=True)
         for name, temp in staged:

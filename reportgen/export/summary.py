@@ -7,6 +7,7 @@ from datetime import datetime
 from typing import Any, Final
 
 from reportgen.engine.applications import ProjectApplications
+from reportgen.engine.findings import Finding, Findings
 from reportgen.engine.judge import Judgement
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.export.manifest import MANIFEST_NAME
@@ -44,24 +45,40 @@ def json_bytes(document: Mapping[str, Any]) -> bytes:
     return (json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode()
 
 
+def findings_json(findings: Findings, finding_text: Callable[[Finding], str]
+                  ) -> tuple[list[dict[str, Any]], dict[str, int]]:
+    """summary.json's ``findings`` list and the counts added to ``totals``
+    (``error_findings``, ``warning_findings``, ``note_findings``)."""
+    listed = [finding.to_json(finding_text(finding)) for finding in findings.items]
+    counts = {f"{severity}_findings": count for severity, count in findings.counts.items()}
+    return listed, counts
+
+
 def summary_document(project: Project, judgement: Judgement, applications: ProjectApplications,
                      *, now: datetime, version: str,
                      reason_text: Callable[[Any], str],
+                     findings: Findings | None = None,
+                     finding_text: Callable[[Finding], str] | None = None,
                      otdr: OtdrAssessment | None = None,
                      digest: str | None = None) -> dict[str, Any]:
-    """summary.json: the contract's keys plus applications and power per link.
+    """summary.json: the contract's keys plus applications and power per link, the OTDR
+    checks and the audit findings.
+
+    ``reason_text`` words an application's reasons and ``finding_text`` a finding (the
+    report's text catalogue, so summary.json and the report say the same).
 
     ``digest`` (the SHA-256 of the manifest, :mod:`reportgen.export.manifest`) is
     written as ``archive.manifest_sha256``.
-
-    ``reason_text`` words an application's reasons (the report's text catalogue, so
-    summary.json and the report say the same).
     """
-    link_extras = {link.link_id: {**applications.link_json(link.link_id, reason_text),
+    link_extras = {link.link_id: {"fiber_type": link.fiber_type.value,
+                                  "length_m": round_length_m(link.length_m),
+                                  **applications.link_json(link.link_id, reason_text),
                                   **({"otdr": otdr_json(otdr, link.link_id)} if otdr is not None else {})}
                    for link in project.links}
+    info = project.info
     meta = {
-        "project": {"title": project.info.title, "job_number": project.info.job_number},
+        "project": {"title": info.title, "job_number": info.job_number, "site": info.site,
+                    "customer": info.customer, "contractor": info.contractor.name},
         "limits": project.limits.id,
         "reference_method": project.testing.reference_method.value,
         "generated_at": now.isoformat(),
@@ -69,7 +86,12 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
     }
     if digest is not None:
         meta["archive"] = {"manifest": MANIFEST_NAME, "manifest_sha256": digest}
-    return summary_dict(project, judgement, link_extras, meta)
+    document = summary_dict(project, judgement, link_extras, meta)
+    if findings is not None and finding_text is not None:
+        listed, counts = findings_json(findings, finding_text)
+        document["totals"] = {**document["totals"], **counts}
+        document["findings"] = listed
+    return document
 
 
 def otdr_json(otdr: OtdrAssessment, link_id: str) -> list[dict[str, Any]]:

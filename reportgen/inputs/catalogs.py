@@ -131,6 +131,9 @@ def _date(check: Checker, value: Any, path: str) -> date | None:
     return None
 
 
+check_date = _date  # a date value of any YAML file checked by a Checker
+
+
 def instruments(check: Checker, value: Any) -> tuple[Instrument, ...] | None:
     if value is None:
         return ()

@@ -37,8 +37,8 @@ from reportgen.inputs.files import (MAX_FILE_BYTES, as_written, clip, is_inside,
 from reportgen.model import Direction, ImportSource
 
 ENTRY_KEYS: Final = ("files", "sheet", "profile")
-PROFILE_KEYS: Final = ("as", "delimiter", "decimal", "encoding", "skip_rows", "columns", "values",
-                       "date_format", "wide", "constants")
+PROFILE_KEYS: Final = ("as", "delimiter", "decimal", "encoding", "skip_rows", "header_rows", "columns",
+                       "values", "date_format", "wide", "constants")
 KINDS: Final = ("results", "links")
 # Fields a results profile may map besides the results columns: tested_at in two cells.
 SPLIT_DATE: Final = ("tested_date", "tested_time")
@@ -49,6 +49,7 @@ SPREADSHEET_SUFFIXES: Final = (".xlsx", ".xlsm", ".xls", ".ods")
 TEXT_SUFFIXES: Final = (".csv", ".txt", ".tsv")
 DETECTED_DELIMITERS: Final = (",", ";", "\t", "|")
 MAX_SKIP_ROWS: Final = 10_000
+MAX_HEADER_ROWS: Final = 10  # rows a header may span (merged cells over sub-headers)
 # largest spreadsheet read, unpacked (a zip packs a sheet some 10-20 times): a guard against
 # a small file that would unpack to gigabytes
 MAX_UNPACKED_BYTES: Final = 4 * MAX_FILE_BYTES
@@ -78,6 +79,7 @@ class Profile:
     decimal: str
     encoding: str
     skip_rows: int
+    header_rows: int  # rows the header spans; their texts are joined per column (_joined_header)
     columns: Mapping[str, tuple[str, ...]]  # our field -> their headers, first present wins
     values: Mapping[str, Mapping[str, str]]  # field -> their spelling (case-folded) -> ours
     spellings: Mapping[str, tuple[str, ...]]  # field -> their spellings as written (for messages)
@@ -165,6 +167,13 @@ def check_profile(data: Any, root: Path, shown: str, kinds: Mapping[str, Columns
             check.problem("skip_rows", f"a whole number of lines from 0 to {MAX_SKIP_ROWS}", value)
         else:
             skip_rows = int(value)
+    header_rows = 1
+    if data.get("header_rows") is not None:
+        value = data["header_rows"]
+        if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= MAX_HEADER_ROWS:
+            check.problem("header_rows", f"a whole number of rows from 1 to {MAX_HEADER_ROWS}", value)
+        else:
+            header_rows = int(value)
 
     given: dict[str, str] = {}  # field -> where the profile gives it (for "given twice")
 
@@ -320,8 +329,8 @@ def check_profile(data: Any, root: Path, shown: str, kinds: Mapping[str, Columns
     if check.problems or kind is None:
         return None, check.problems
     return Profile(path=shown, kind=kind, delimiter=delimiter, decimal=decimal, encoding=encoding,
-                   skip_rows=skip_rows, columns=columns, values=values_of, spellings=spellings,
-                   date_formats=date_formats, wide_field=wide_field, wide=tuple(wide),
+                   skip_rows=skip_rows, header_rows=header_rows, columns=columns, values=values_of,
+                   spellings=spellings, date_formats=date_formats, wide_field=wide_field, wide=tuple(wide),
                    constants=constants), []
 
 
@@ -450,6 +459,26 @@ def _cell_text(value: Any) -> str:
     return str(value).strip()
 
 
+def _joined_header(rows: Sequence[Sequence[str]]) -> list[str]:
+    """The header text of each column from the header's rows (``header_rows``): in every row but
+    the last, an empty cell takes the text on its left (a cell merged over several columns holds
+    its text in the first of them and reads empty in the others), then each column's texts are
+    joined top to bottom with one space, empty ones left out. A column empty in every header row
+    stays without a header. ``Loss (dB)`` merged over two columns above ``850`` and ``1300`` gives
+    ``Loss (dB) 850`` and ``Loss (dB) 1300``; ``Link`` merged over two rows gives ``Link``."""
+    width = max(map(len, rows))
+    grid = [[*row, *[""] * (width - len(row))] for row in rows]
+    named = [any(row[column] for row in grid) for column in range(width)]
+    for row in grid[:-1]:
+        carried = ""
+        for column in range(width):
+            if row[column]:
+                carried = row[column]
+            elif named[column]:
+                row[column] = carried
+    return [" ".join(row[column] for row in grid if row[column]) for column in range(width)]
+
+
 def read_grid(path: Path, shown: str, profile: Profile, sheet: str | None
               ) -> tuple[Grid | None, list[InputProblem]]:
     """The header and data rows of a text file or a spreadsheet (blank rows dropped)."""
@@ -493,26 +522,31 @@ def _text_grid(path: Path, shown: str, profile: Profile) -> tuple[Grid | None, l
     reader = csv.reader(io.StringIO(body, newline=""), delimiter=delimiter)
     rows: list[list[str]] = []
     numbers: list[int] = []
-    header: list[str] | None = None
+    header_rows: list[list[str]] = []
     header_number = 0
     previous = 0
     try:
         for record in reader:
             start = profile.skip_rows + previous + 1
             previous = reader.line_num
-            if not "".join(record).strip():
+            blank = not "".join(record).strip()
+            if len(header_rows) < profile.header_rows and (header_rows or not blank):
+                # the header's first line is the first non-blank one; the lines right below it
+                # complete it (header_rows)
+                header_rows.append([cell.strip() for cell in record])
+                header_number = header_number or start
                 continue
-            if header is None:
-                header, header_number = [cell.strip() for cell in record], start
+            if blank:
                 continue
             rows.append(record)
             numbers.append(start)
     except csv.Error as error:
         return None, [InputProblem(shown, profile.skip_rows + reader.line_num, None, "well-formed CSV",
                                    clip(str(error)))]
-    if header is None:
+    if not header_rows:
         return None, [InputProblem(shown, None, None, "a header row naming the columns (the file has no "
                                    "non-empty line after the lines skipped)")]
+    header = _joined_header(header_rows)
     if rows and any("\n" in cell or "\r" in cell for cell in rows[-1]) and body.count('"') % 2:
         # a quote never closed reads as one cell to the end of the file: refuse, as for native CSV
         return None, [InputProblem(shown, numbers[-1], None,
@@ -548,23 +582,25 @@ def _sheet_grid(path: Path, shown: str, profile: Profile, sheet: str | None
     except Exception as error:  # the reader's own errors: a damaged or password-protected file
         return None, [InputProblem(shown, None, None, "a readable .xlsx, .xlsm, .xls or .ods spreadsheet",
                                    clip(f"{type(error).__name__}: {error}"))]
-    header: list[str] | None = None
+    header_rows: list[list[str]] = []
     header_number = 0
     rows: list[list[Any]] = []
     numbers: list[int] = []
     for index in range(profile.skip_rows, len(cells)):
         row = cells[index]
-        if not any(map(_cell_text, row)):  # blank, also cells holding only spaces
+        blank = not any(map(_cell_text, row))  # also cells holding only spaces
+        if len(header_rows) < profile.header_rows and (header_rows or not blank):
+            header_rows.append([_cell_text(cell) for cell in row])
+            header_number = header_number or index + 1
             continue
-        if header is None:
-            header, header_number = [_cell_text(cell) for cell in row], index + 1
+        if blank:
             continue
         rows.append(row)
         numbers.append(index + 1)
-    if header is None:
+    if not header_rows:
         return None, [InputProblem(shown, None, None, "a header row naming the columns (the sheet has no "
                                    "non-empty row after the rows skipped)", sheet=name)]
-    return Grid(shown, name, header, header_number, rows, numbers), []
+    return Grid(shown, name, _joined_header(header_rows), header_number, rows, numbers), []
 
 
 def _unpacked_size(data: bytes) -> int:
@@ -672,6 +708,11 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
     def column(position: int) -> list[str]:
         return [_cell_text(row[position]) if position < len(row) else "" for row in rows]
 
+    def written_as_text(position: int) -> list[bool]:
+        """Per row, whether the cell holds text (every cell of a text file; a spreadsheet's
+        number cells are numbers as stored, whatever the decimal sign)."""
+        return [position < len(row) and type(row[position]) is str for row in rows]
+
     texts: dict[str, list[str]] = {name: column(position) for name, (_, position) in used.items()}
     labels = {name: _label(header, name) for name, (header, _) in used.items()}
     mapping_problems: list[InputProblem] = []
@@ -696,10 +737,14 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
                 else:
                     cells[row] = ours
 
-    # decimal commas
+    # decimal commas; a point is refused, not guessed
+    point_expected = _point_expected(profile)
     if profile.decimal == ",":
-        for name in NUMBER_FIELDS & set(texts):
-            texts[name] = _decimal_points(texts[name])
+        for name in sorted(NUMBER_FIELDS & set(texts)):
+            written, points = _decimal_commas(texts[name], written_as_text(used[name][1]))
+            for row in points:
+                bad(row, name, name, point_expected, texts[name][row])
+            texts[name] = written
 
     # dates and times
     formats = profile.date_formats
@@ -747,7 +792,13 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
     if wide_columns:
         wide_texts = [column(position) for _, position, _ in wide_columns]
         if profile.decimal == "," and profile.wide_field in NUMBER_FIELDS:
-            wide_texts = [_decimal_points(cells) for cells in wide_texts]
+            for at, (header, position, _) in enumerate(wide_columns):
+                written, points = _decimal_commas(wide_texts[at], written_as_text(position))
+                for row in points:  # the cell gives no result; other cells of the row still do
+                    mapping_problems.append(InputProblem(
+                        grid.file, int(numbers[row]), _label(header, profile.wide_field), point_expected,
+                        clip(wide_texts[at][row]), sheet=grid.sheet))
+                wide_texts[at] = written
         filled = np.array([[text != "" for text in cells] for cells in wide_texts], dtype=bool).reshape(
             len(wide_columns), n)
         rows_at, columns_at = np.nonzero(filled.T)  # row by row, columns in profile order
@@ -780,10 +831,21 @@ def build_table(grid: Grid, entry: Entry, kind_columns: Columns) -> tuple[Import
                          profile.wide_field, mapping_problems, settled), []
 
 
-def _decimal_points(cells: list[str]) -> list[str]:
-    """Numbers written with a decimal comma (``decimal: ","``) with a point instead; a cell that
-    also holds a point is left as written (the usual number check then refuses it)."""
-    return [text.replace(",", ".") if "," in text and "." not in text else text for text in cells]
+def _decimal_commas(cells: list[str], as_text: list[bool]) -> tuple[list[str], list[int]]:
+    """Numbers written with a decimal comma (``decimal: ","``) with a point instead, and the rows
+    whose text holds a point (``1.5``, ``1.234,5``): in a decimal-comma file a point is a
+    thousands separator or a slip, never read as the decimal sign; those cells come back empty.
+    Cells not written as text (a spreadsheet's number cells) are numbers as stored, kept."""
+    points = [row for row, (text, is_text) in enumerate(zip(cells, as_text)) if is_text and "." in text]
+    written = [text.replace(",", ".") if is_text else text for text, is_text in zip(cells, as_text)]
+    for row in points:
+        written[row] = ""
+    return written, points
+
+
+def _point_expected(profile: Profile) -> str:
+    return (f'a number with a decimal comma, e.g. 1,5, as decimal: "," in {profile.path} says (a point '
+            "is not read: in such a file it is a thousands separator or a slip)")
 
 
 def source_texts(file: str, sheet: str | None, numbers: np.ndarray) -> list[str]:

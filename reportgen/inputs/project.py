@@ -35,6 +35,7 @@ from reportgen.model import (
 )
 from reportgen.inputs.checker import DECIMAL_COMMA_TEXT, DECIMAL_HINT, NUMBER_TEXT, enum_choices, match_enum
 from reportgen.inputs.project_yaml import Settings, check_project_yaml
+from reportgen.inputs.records import load_inspections, load_references
 from reportgen.units import ft_to_m
 from reportgen.inputs.results import EMPTY, LENGTH_COLUMNS, MAX_LENGTH_M, Context, check_results, empty_results
 from reportgen.inputs.results import OPTIONAL as RESULT_OPTIONAL
@@ -142,12 +143,18 @@ def load_project(project_dir: Path) -> Project:
     otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids)
     problems += otdr_problems
 
+    record_files: list[str] = []
+    references, record_problems = load_references(root, settings.instruments, record_files)
+    problems += record_problems
+    inspections, record_problems = load_inspections(root, context.links, record_files)
+    problems += record_problems
+
     if problems:
         raise InputError([_printable(problem) for problem in problems])
     assert settings.info and settings.testing and settings.limits and settings.report
     results = pd.concat(frames, ignore_index=True) if frames else empty_results()
     files_read = _files_read(root, settings, [*files, *profiles_read, *(source.file for source in sources),
-                                              *otdr_files])
+                                              *otdr_files, *record_files])
     return Project(
         root=root,
         info=settings.info,
@@ -166,6 +173,8 @@ def load_project(project_dir: Path) -> Project:
         imports=tuple(sorted(sources, key=lambda source: source.entry)),
         applications=applications,
         otdr=otdr_traces,
+        references=references,
+        inspections=inspections,
     )
 
 

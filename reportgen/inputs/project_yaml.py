@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Final
 
-from reportgen.inputs import catalogs
+from reportgen.inputs import audit, catalogs
 from reportgen.inputs.checker import Checker as _BaseChecker, enum_choices, match_enum
 from reportgen.inputs import limits as limit_sets
 from reportgen.errors import InputError, InputProblem
@@ -45,11 +45,14 @@ LOGO_KINDS: Final = {".svg": "image/svg+xml", ".png": "image/png", ".jpg": "imag
                      ".jpeg": "image/jpeg"}  # accepted file endings and their media types
 
 KEYS: Final[Mapping[str, tuple[str, ...]]] = {
-    "project": ("title", "site", "customer", "job_number", "contractor"),
+    "project": ("title", "site", "customer", "job_number", "contractor", "work_started"),
     "project.contractor": ("name", "address", "phone", "email", "logo"),
     "testing": ("limits", "reference_method", "directions", "uncertainty_db", "units",
-                "wavelengths", "attenuators_db", "otdr"),
+                "wavelengths", "attenuators_db", "otdr", "audit", "period",
+                "required_reference_method"),
     "testing.otdr": OTDR_KEYS,
+    "testing.audit": tuple(audit.AUDIT_KEYS),
+    "testing.period": ("start", "end"),
     "report": ("paper", "templates"),
 }
 REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
@@ -111,9 +114,12 @@ def _info(check: Checker, data: Mapping[str, Any]) -> ProjectInfo | None:
     details = {key: check.text(contractor, key, f"project.contractor.{key}")
                for key in ("address", "phone", "email")}
     logo = _logo(check, contractor.get("logo"))
-    if title is None or name is None or (contractor.get("logo") is not None and logo is None):
+    started_ok, started = audit.work_started(check, project.get("work_started"))
+    if title is None or name is None or (contractor.get("logo") is not None and logo is None) \
+            or not started_ok:
         return None
-    return ProjectInfo(title=title, contractor=Contractor(name=name, logo=logo, **details), **texts)
+    return ProjectInfo(title=title, contractor=Contractor(name=name, logo=logo, **details),
+                       work_started=started, **texts)
 
 
 def _logo(check: Checker, value: Any) -> Logo | None:
@@ -164,13 +170,23 @@ def _testing(check: Checker, data: Mapping[str, Any]):
     override = _wavelengths(check, testing.get("wavelengths"))
     attenuators_db = _attenuators(check, testing.get("attenuators_db"))
     otdr = otdr_settings(check, testing)
-    if None in (limits_id, method, directions, units, uncertainty_db, attenuators_db):
+    audit_settings = audit.audit_settings(check, testing.get("audit"))
+    period_ok, period_start, period_end = audit.period(check, testing.get("period"))
+    required_method = None
+    if testing.get("required_reference_method") is not None:
+        required_method = check.choice(testing, "required_reference_method",
+                                       "testing.required_reference_method", ReferenceMethod, None)
+        period_ok &= required_method is not None
+    if None in (limits_id, method, directions, units, uncertainty_db, attenuators_db,
+                audit_settings) or not period_ok:
         return None, limit_set, override, units
     wavelengths_nm = dict(DEFAULT_WAVELENGTHS_NM)
     wavelengths_nm.update(override or {})
     result = Testing(limits=limits_id, reference_method=method, directions=directions,
                      uncertainty_db=uncertainty_db, units=units, wavelengths_nm=wavelengths_nm,
-                     attenuators_db=attenuators_db, otdr=otdr)
+                     attenuators_db=attenuators_db, otdr=otdr, audit=audit_settings,
+                     required_reference_method=required_method, period_start=period_start,
+                     period_end=period_end)
     return result, limit_set, override, units
 
 

@@ -249,7 +249,9 @@ def check_results(table: CsvTable, context: Context) -> tuple[pd.DataFrame | Non
     measured_m = _measured_length(column, table, context.units, out)
 
     problems = out.sorted()
-    if problems or out.absent:
+    # rows too long to read (table.unreadable) are reported by read_csv and were not checked
+    # here: the run fails anyway, and their unchecked cells must not reach the frame
+    if problems or out.absent or table.unreadable:
         return None, problems
     frame = pd.DataFrame({
         "source_file": pd.Series([table.file] * n, dtype="str"),

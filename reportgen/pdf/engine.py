@@ -31,13 +31,17 @@ from functools import partial
 from multiprocessing.connection import Connection, wait
 from multiprocessing.process import BaseProcess
 from pathlib import Path
-from typing import Final
+from typing import TYPE_CHECKING, Final, Protocol
 
-from reportgen.errors import ReportgenError
+from reportgen.errors import ReportgenError, WorkerTraceback
 from reportgen.pdf.archive import Attachment
+from reportgen.pdf.cache import PartCache, part_key
 from reportgen.pdf.weasy import RenderedPart, render_part
 from reportgen.pdf.merge import PageCopier, Seal, finish_pdf
 from reportgen.pdf.stamp import check_label_text
+
+if TYPE_CHECKING:
+    from reportgen.pdf.cluster import ClusterSession
 
 LOGGER = logging.getLogger(__name__)
 
@@ -89,17 +93,6 @@ def page_numbers(parts: Sequence[RenderedPart], first_page: int = 1) -> dict[str
             numbers.setdefault(anchor_id, page + anchor.page_index)
         page += part.page_count
     return numbers
-
-
-class WorkerTraceback(Exception):
-    """The traceback of a failed worker, as text: the cause of the error the parent raises.
-
-    The command line prints it with ``--debug`` (after the error's own traceback's
-    "direct cause" line); without, only the error's one-line message is shown.
-    """
-
-    def __str__(self) -> str:
-        return "\n" + str(self.args[0]).rstrip()
 
 
 def _part_process(jobs: Connection, results: Connection) -> None:
@@ -174,10 +167,76 @@ class _Workers:
             self.spare = None
 
 
+class _LocalSlots:
+    """Renders parts in fresh local worker processes, ``capacity`` at a time."""
+
+    def __init__(self, capacity: int) -> None:
+        self.capacity = capacity
+        self.pool = _Workers()
+        self.running: dict[Connection, tuple[int, BaseProcess]] = {}
+
+    def free(self) -> bool:
+        return len(self.running) < self.capacity
+
+    def busy(self) -> bool:
+        return bool(self.running)
+
+    def send(self, index: int, html: str, root: Path, xml_first: bool) -> None:
+        worker = self.pool.take()
+        worker.jobs.send((html, str(root), xml_first))
+        worker.jobs.close()
+        self.running[worker.results] = (index, worker.process)
+
+    def prepare(self) -> None:
+        self.pool.prepare()
+
+    def wait(self) -> list[tuple[int, RenderedPart]]:
+        finished = []
+        for receiver in wait(list(self.running)):
+            index, process = self.running.pop(receiver)
+            finished.append((index, _receive_part(receiver, index, process)))
+        return finished
+
+    def close(self) -> None:
+        for receiver, (_, process) in self.running.items():
+            process.terminate()
+            process.join()
+            receiver.close()
+        self.running.clear()
+        self.pool.close()
+
+
+class Slots(Protocol):
+    """Where parts are rendered: local processes (:class:`_LocalSlots`) or a cluster
+    (:class:`reportgen.pdf.cluster.ClusterSlots`)."""
+
+    def free(self) -> bool: ...
+    def busy(self) -> bool: ...
+    def send(self, index: int, html: str, root: Path, xml_first: bool) -> None: ...
+    def prepare(self) -> None: ...
+    def wait(self) -> list[tuple[int, RenderedPart]]: ...
+    def close(self) -> None: ...
+
+
+@dataclass(frozen=True)
+class RenderPlan:
+    """Where the parts of one PDF are rendered and kept: local processes or a cluster,
+    and the part cache (None: render every part)."""
+
+    workers: int = 2
+    cache: PartCache | None = None
+    cluster: ClusterSession | None = None
+
+    def slots(self, workers: int | None = None) -> Slots:
+        if self.cluster is not None:
+            return self.cluster.slots()
+        return _LocalSlots(self.workers if workers is None else workers)
+
+
 def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
                    on_done: Callable[[int], None], xml_first: bool,
                    on_part: Callable[[int, RenderedPart], None] | None = None,
-                   ) -> list[RenderedPart]:
+                   plan: RenderPlan | None = None) -> list[RenderedPart]:
     """Render each body in a fresh worker process, ``workers`` at a time, in any order.
 
     A process per part keeps memory flat: everything WeasyPrint built is returned to
@@ -189,37 +248,60 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     ``on_part(index, part)`` with each part, while the others are still rendering.
     ``bodies[index]`` is read only when the part is about to be sent, so ``bodies``
     may produce its documents on demand.
+
+    With ``plan.cache``, a part found in the part cache is not rendered (it counts as
+    finished at once) and each rendered part is stored; with ``plan.cluster``, parts
+    are rendered on the cluster instead of local processes.
     """
-    pool = _Workers()
+    plan = plan or RenderPlan(workers)
+    cache = plan.cache
+    slots = plan.slots(workers)
     waiting = deque(range(len(bodies)))
-    running: dict[Connection, tuple[int, BaseProcess]] = {}
     rendered: list[RenderedPart | None] = [None] * len(bodies)
+    keys: dict[int, str] = {}
+    looked_up: dict[int, RenderedPart | None] = {}
     arrived: list[int] = []
+    done = 0
+
+    def lookup(index: int) -> RenderedPart | None:
+        """The part from the cache, or None; looked up once per part."""
+        if cache is None:
+            return None
+        if index not in looked_up:
+            keys[index] = part_key(bodies[index], root, xml_first)
+            looked_up[index] = cache.get(keys[index], root)
+        return looked_up[index]
+
+    def finished(index: int, part: RenderedPart) -> None:
+        nonlocal done
+        rendered[index] = part
+        arrived.append(index)
+        done += 1
+        on_done(done)
+
     try:
-        while waiting or running:
-            while waiting and len(running) < workers:
+        while waiting or slots.busy():
+            while waiting and slots.free():
                 index = waiting.popleft()
-                worker = pool.take()
-                worker.jobs.send((bodies[index], str(root), xml_first))
-                worker.jobs.close()
-                running[worker.results] = (index, worker.process)
+                part = lookup(index)
+                looked_up.pop(index, None)
+                if part is not None:
+                    finished(index, part)
+                else:
+                    slots.send(index, bodies[index], root, xml_first)
             # the slots are busy again: now the work this process does meanwhile
-            if waiting:
-                pool.prepare()
+            if waiting and lookup(waiting[0]) is None:
+                slots.prepare()
                 bodies[waiting[0]]  # a lazy sequence renders the next document now
             _hand_over(arrived, rendered, on_part)
-            for receiver in wait(list(running)):
-                index, process = running.pop(receiver)
-                rendered[index] = _receive_part(receiver, index, process)
-                arrived.append(index)
-                on_done(len(bodies) - len(waiting) - len(running))
+            if slots.busy():
+                for index, part in slots.wait():
+                    if cache is not None:
+                        cache.put(keys[index], part)
+                    finished(index, part)
         _hand_over(arrived, rendered, on_part)
     finally:
-        for receiver, (_, process) in running.items():
-            process.terminate()
-            process.join()
-            receiver.close()
-        pool.close()
+        slots.close()
     return [part for part in rendered if part is not None]
 
 
@@ -250,7 +332,8 @@ def _receive_part(receiver: Connection, index: int, process: BaseProcess) -> Ren
     return payload[0]
 
 
-def _probe_front(front: FrontMatter, root: Path, xml_first: bool) -> tuple[RenderedPart, bool]:
+def _probe_front(front: FrontMatter, root: Path, xml_first: bool,
+                 plan: RenderPlan | None = None) -> tuple[RenderedPart, bool]:
     """Render the front matter once with placeholder page numbers, to learn its length.
 
     Rendered in its own process, so that its memory is returned when it is done.
@@ -259,12 +342,13 @@ def _probe_front(front: FrontMatter, root: Path, xml_first: bool) -> tuple[Rende
     """
     page_map = PageMap({}, PROBE_PAGE_NUMBER)
     html = front(page_map, PROBE_PAGE_NUMBER)
-    return _render_isolated(html, root, xml_first=xml_first), bool(page_map.used)
+    return _render_isolated(html, root, xml_first=xml_first, plan=plan), bool(page_map.used)
 
 
-def _render_isolated(html: str, root: Path, *, xml_first: bool = False) -> RenderedPart:
+def _render_isolated(html: str, root: Path, *, xml_first: bool = False,
+                     plan: RenderPlan | None = None) -> RenderedPart:
     """Render one document in a worker process (this one stays free for other work)."""
-    return _render_bodies([html], root, 1, lambda finished: None, xml_first)[0]
+    return _render_bodies([html], root, 1, lambda finished: None, xml_first, plan=plan)[0]
 
 
 def _settle_front(front: FrontMatter, bodies: Sequence[RenderedPart], root: Path,
@@ -310,7 +394,8 @@ def _cycle_collector_paused() -> Iterator[None]:
 def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: str,
                page_label: str = "Page {page} of {pages}", created: datetime,
                workers: int = 2, progress: Progress | None = None,
-               xml_first: bool = False, author: str = "",
+               xml_first: bool = False, cache: PartCache | None = None,
+               cluster: str | None = None, author: str = "",
                attachments: Sequence[Attachment] = (), seal: Seal | None = None) -> bytes:
     """Render the front matter and body parts into one PDF and return its bytes.
 
@@ -328,10 +413,19 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
     page_label
         Stamped at the bottom right of every page, with ``{page}`` and ``{pages}``.
     workers
-        Worker processes rendering the bodies.
+        Worker processes rendering the bodies (``reportgen build --jobs``).
     progress
         Called as ``progress(done_parts, total_parts)``; the parts are the bodies
-        plus one last step (front matter and assembly).
+        plus one last step (front matter and assembly). A part taken from the cache
+        counts as done when it is found, a part rendered locally or on a cluster when
+        it arrives.
+    cache
+        The part cache (:mod:`reportgen.pdf.cache`): parts found there are not
+        rendered, rendered parts are stored, and entries this build did not use are
+        removed once the PDF is done. None renders every part.
+    cluster
+        Address of a Dask scheduler (``tcp://host:8786``): the parts are rendered by
+        its workers (:mod:`reportgen.pdf.cluster`); the merge stays here.
     xml_first
         The documents come from our own templates, which write well-formed XML:
         read them with the standard library's XML parser, falling back to
@@ -353,25 +447,51 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
 
     report(0)
     started_s = time.perf_counter()
-    with _cycle_collector_paused(), ThreadPoolExecutor(max_workers=1) as thread:
-        estimate: Future[tuple[RenderedPart, bool]] = thread.submit(
-            _probe_front, front, root, xml_first)
-        copier = PageCopier()  # copies each body's pages while the later ones render
-        body_parts = (_render_bodies(bodies, root, workers, report, xml_first, copier.offer)
-                      if bodies else [])
-        first_front, asked_numbers = estimate.result()
-        bodies_done_s = time.perf_counter()
-        front_part = first_front
-        if asked_numbers:
-            front_part = _settle_front(front, body_parts, root, first_front,
-                                       partial(_render_isolated, xml_first=xml_first))
-        writer = copier.writer
-        front_done_s = time.perf_counter()
-        pdf = finish_pdf(writer, front_part, body_parts, title=title, page_label=page_label,
-                         created=created, author=author, attachments=attachments,
-                         seal=seal)
+    with _cluster_session(cluster) as session:
+        plan = RenderPlan(workers, cache, session)
+        with _cycle_collector_paused(), ThreadPoolExecutor(max_workers=1) as thread:
+            estimate: Future[tuple[RenderedPart, bool]] = thread.submit(
+                _probe_front, front, root, xml_first, plan)
+            copier = PageCopier()  # copies each body's pages while the later ones render
+            body_parts = (_render_bodies(bodies, root, workers, report, xml_first,
+                                         copier.offer, plan)
+                          if bodies else [])
+            first_front, asked_numbers = estimate.result()
+            bodies_done_s = time.perf_counter()
+            front_part = first_front
+            if asked_numbers:
+                front_part = _settle_front(front, body_parts, root, first_front,
+                                           partial(_render_isolated, xml_first=xml_first,
+                                                   plan=plan))
+            writer = copier.writer
+            front_done_s = time.perf_counter()
+            pdf = finish_pdf(writer, front_part, body_parts, title=title,
+                             page_label=page_label, created=created, author=author,
+                             attachments=attachments, seal=seal)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
                 "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)
+    if cache is not None:
+        stats = cache.stats
+        LOGGER.info("PDF parts: %d from the cache, %d rendered %s (%d cache entries ignored)",
+                    stats.hits, stats.misses + stats.ignored,
+                    f"on the cluster at {cluster}" if cluster else f"by {workers} local processes",
+                    stats.ignored)
+        cache.prune()
     report(total_steps)
     return pdf
+
+
+@contextmanager
+def _cluster_session(address: str | None) -> Iterator[ClusterSession | None]:
+    """A connection to the Dask scheduler at ``address`` for one build, or None."""
+    if address is None:
+        yield None
+        return
+    from reportgen.pdf.cluster import ClusterSession
+
+    session = ClusterSession.connect(address)
+    try:
+        yield session
+    finally:
+        session.close()

@@ -68,7 +68,7 @@ from typing import Any, Final
 import cssselect2
 from weasyprint import HTML
 
-from reportgen.pdf.fetcher import make_url_fetcher, root_url
+from reportgen.pdf.fetcher import ProjectURLFetcher, make_url_fetcher, root_url
 
 LOGGER = logging.getLogger(__name__)
 
@@ -143,6 +143,8 @@ class RenderedPart:
     pages: tuple[PageFrame, ...]
     anchors: dict[str, Anchor]          # first occurrence of each id
     bookmarks: tuple[Bookmark, ...]     # in document order
+    # project files the render read: (file URL, digest of the bytes, None if refused)
+    resources: tuple[tuple[str, str | None], ...] = ()
 
     @property
     def page_count(self) -> int:
@@ -290,17 +292,22 @@ def parse_xml(html: str) -> Any | None:
         return None
 
 
-def render_part(html: str, root: Path, *, xml_first: bool = False) -> RenderedPart:
+def render_part(html: str, root: Path, *, xml_first: bool = False,
+                url_fetcher: ProjectURLFetcher | None = None) -> RenderedPart:
     """Render one complete HTML document to PDF bytes plus its anchors and links.
 
-    Resources are read only through :func:`reportgen.pdf.fetcher.make_url_fetcher`.
+    Resources are read only through :func:`reportgen.pdf.fetcher.make_url_fetcher`
+    (or ``url_fetcher``, one of its kind, on a cluster worker); the files read are
+    listed in :attr:`RenderedPart.resources`.
     Internal links, named destinations and WeasyPrint's own outline are left out of
     the part's PDF: the merged report gets them from :mod:`reportgen.pdf.merge`.
     With ``xml_first`` (our own templates), the document is read by :func:`parse_xml`
     when it is well-formed XML; otherwise WeasyPrint parses it as HTML. The pages
     are the same either way.
     """
-    base_url, url_fetcher = root_url(root), make_url_fetcher(root)
+    base_url = root_url(root)
+    if url_fetcher is None:
+        url_fetcher = make_url_fetcher(root)
     tree = parse_xml(html) if xml_first else None
     source = (HTML(string=html, base_url=base_url, url_fetcher=url_fetcher) if tree is None
               else html_from_tree(tree, base_url=base_url, url_fetcher=url_fetcher))
@@ -317,5 +324,6 @@ def render_part(html: str, root: Path, *, xml_first: bool = False) -> RenderedPa
         drop_cross_part_marks(page)
     pdf = document.write_pdf()
     return RenderedPart(pdf, tuple(frames), anchors,
-                        tuple(iter_bookmarks(parsed_tree(source))))
+                        tuple(iter_bookmarks(parsed_tree(source))),
+                        tuple(sorted(url_fetcher.reads.items())))
 

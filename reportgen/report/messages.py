@@ -62,6 +62,59 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
         "results missing): {incomplete}. The work is not ready for acceptance until these "
         "are resolved (see \u201cLinks needing action\u201d)."
     ),
+    "overall_blocked": (
+        "Every one of the {links} links meets the limit set on every required result, but audit "
+        "findings of severity error ({errors}) block acceptance until they are resolved (see "
+        "\u201cLinks needing action\u201d)."
+    ),
+    "overall_errors_too": "Audit findings of severity error ({errors}) also block acceptance.",
+    "findings_heading": "Audit findings",
+    "findings_intro": "Checks of the records beyond the loss limit (rules and thresholds in the appendix).",
+    "findings_count_error": "errors: block acceptance",
+    "findings_count_warning": "warnings: to review",
+    "findings_count_note": "notes",
+    "severity_error": "error",
+    "severity_warning": "warning",
+    "severity_note": "note",
+    "mark_sev_error": "\u25a0",
+    "mark_sev_warning": "\u25c7",
+    "mark_sev_note": "\u00b7",
+    "findings_none_link": "No audit findings for this link.",
+    "sheet_errors": "audit findings blocking acceptance: {count}",
+    "findings_project": "Whole project",
+    "col_severity": "Severity",
+    "col_finding": "Finding",
+    "col_evidence": "Evidence",
+    "evidence_lines": "{file} line {lines}",
+    "evidence_lines_more": "{file} lines {lines} \u2026 ({more} more)",
+    "evidence_setting": "project.yaml",
+    "inspections_heading": "End-face inspections",
+    "inspections_passed": "Strand ends inspected once and passing, without picture or note: {count} ({first} to {last}; criteria: {criteria}). The table lists the others: failures, pictures, notes and repeated inspections.",
+    "col_end": "End",
+    "col_inspection": "Result",
+    "col_criteria_note": "Criteria; note",
+    "col_picture": "Picture",
+    "inspection_pass": "pass",
+    "inspection_fail": "FAIL",
+    "end_a": "A",
+    "end_b": "B",
+    "audit_heading": "Audit rules and thresholds",
+    "audit_intro": (
+        "Each rule gives at most one finding per link (or per instrument or reference for the "
+        "whole project). Severity error blocks acceptance; a warning asks for review; a note "
+        "informs. Thresholds are set under testing.audit in project.yaml; the value used here "
+        "is shown with the default when it differs."
+    ),
+    "audit_references_given": "Reference records (references/) were given: the reference rules were applied.",
+    "audit_references_absent": "No reference records (references/) were given: the reference rules were not applied.",
+    "audit_inspections_given": "End-face inspection records (inspections/) were given: the inspection rules were applied.",
+    "audit_inspections_absent": "No end-face inspection records (inspections/) were given: the inspection rules were not applied.",
+    "col_rule": "Rule",
+    "col_checks": "What it checks",
+    "col_thresholds": "Thresholds",
+    "col_basis": "Basis",
+    "col_found": "Found",
+    "threshold_default": "default {value}",
     "signoff_heading": "Acceptance",
     "signoff_intro": (
         "Signed for the parties below: the links listed in this record were tested as described "
@@ -80,13 +133,17 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "action_heading": "Links needing action",
     "action_none": "None: every link passes.",
     "action_intro": (
-        "These links fail or lack required results. Failing links come first, then incomplete ones."
+        "These links fail, lack required results or have audit findings of severity error. "
+        "Failing links come first, then incomplete ones, then links held only by findings."
     ),
+    "action_none_findings": "None: every link passes and no audit finding blocks acceptance.",
     "action_fail_item": "strand {strand}, {wavelength} nm, {direction}: loss {loss} dB over the {limit} dB limit (margin {margin} dB)",
     "action_missing_item": "strand {strand}, {wavelength} nm, {direction}: {reason}",
     "action_more": "\u2026 and {count} more on the link\u2019s sheet",
     # register (summary table)
     "register_heading": "Link register",
+    "register_errors": "audit findings block acceptance",
+    "register_errors_key": "{mark} after the verdict: audit findings of severity error block acceptance of the link (see its sheet).",
     "register_intro": "Every link in the order of the link list. Worst margin is the smallest margin of the judged results.",
     "col_link": "Link",
     "col_ends": "From \u2192 to",
@@ -545,6 +602,117 @@ SAFETY: Final[tuple[str, ...]] = (
 )
 
 
+# ---------------------------------------------------------------- audit findings
+
+# One line per finding, worded from Finding.values (reportgen.engine.findings). summary.json
+# carries the same line. Placeholders ending _db are dB (2 decimals), _m metres, _h hours.
+FINDING_TEXT: Final[Mapping[str, str]] = MappingProxyType({
+    "calibration-overdue": "Used after its calibration due date: {instruments}, for {results} (last use {last_use}).",
+    "calibration-unknown": "Instrument {instrument} is named by results but has no calibration due date in project.yaml.",
+    "result-in-future": "Dated after the report date {today}: {results} (latest {last}).",
+    "result-before-work": "Dated before the work started on {started}: {results} (earliest {first}).",
+    "result-outside-period": "Dated outside the test period {start} to {end}: {results} ({first} to {last}).",
+    "retest-order": "Dated before an earlier row of the same result in {file}: {rows} (first at line {line}); a retest cannot be older than what it replaces.",
+    "ambiguous-retest": "Two rows with the same time and different losses ({low_db} to {high_db} dB): {results}; which is the retest cannot be told.",
+    "reference-method": "Reference method {used} was used; {required} is required.",
+    "application-not-supported": "Listed application not supported as measured: {applications}.",
+    "transceiver-too-weak": "Transceiver {transceiver}: the weakest received power is {shortfall_db} dB below the receiver\u2019s minimum.",
+    "transceiver-no-fit": "Transceiver {transceiver}: the received power is too strong and no attenuator of testing.attenuators_db fits.",
+    "transceiver-too-strong": "Transceiver {transceiver}: the strongest received power is {excess_db} dB above overload; fit a {attenuator_db} dB attenuator.",
+    "within-uncertainty": "Within the measurement uncertainty of the limit: {results} (smallest margin {worst_margin_db} dB).",
+    "direction-asymmetry": "A\u2192B and B\u2192A differ by more than {threshold_db} dB: {pairs} (largest difference {worst_db} dB).",
+    "implausibly-low-loss": "Below the least loss the link can have: {results} (lowest {least_loss_db} dB, least plausible {bound_db} dB); check the reference.",
+    "repeated-readings": "Identical readings of {loss_db} dB at one wavelength: {results}; {count} or more are unlikely.",
+    "repeated-readings-technician": "Identical readings of {loss_db} dB in a row by {technician}: {results}; {count} or more are unlikely.",
+    "length-implausible": "Documented length {length_m} m is under {minimum_m} m, implausible for {plant} cable: check the unit (km written as m?).",
+    "length-mismatch": "Measured length {measured_m} m differs from the documented {documented_m} m by {difference_m} m (allowed {allowed_m} m; {results} off).",
+    "reference-missing": "No reference of the power meter at the wavelength set before the test: {results}.",
+    "reference-stale": "Measured more than {max_age_h} h after the meter\u2019s reference: {results} (oldest {age_h} h).",
+    "cords-not-verified": "Reference of {instrument} at {wavelength_nm} nm set {set_at}: test cords {cords} not verified ({results} rest on it).",
+    "cords-over-limit": "Reference of {instrument} at {wavelength_nm} nm set {set_at}: test cord check {cord_check_db} dB is over {max_db} dB ({results} rest on it).",
+    "inspection-failed": "The latest end-face inspection failed at {ends}.",
+    "inspection-missing": "No end-face inspection recorded at {ends}.",
+})
+
+# What each rule checks and the basis of its thresholds (appendix; docs/project-format.md
+# "Audit findings" gives the same sources).
+RULE_TEXT: Final[Mapping[str, tuple[str, str]]] = MappingProxyType({
+    "calibration-overdue": ("A judged result made with an instrument after its calibration due date.", "Calibration due dates in project.yaml instruments."),
+    "result-in-future": ("A result dated more than a day after the day the report was made (a day allows for time zones).", "Cannot happen: a date or clock error."),
+    "result-before-work": ("A result dated before project.work_started.", "Cannot belong to this installation."),
+    "retest-order": ("In one file, a row dated before an earlier row of the same strand, wavelength and direction.", "A retest cannot be older than what it replaces."),
+    "ambiguous-retest": ("Two rows of one result with the same time and different losses.", "Which row is the retest cannot be told."),
+    "reference-method": ("The reference method differs from testing.required_reference_method, or a reference record states another method.", "The customer\u2019s specification; the limit counts the end connections of the method used."),
+    "application-not-supported": ("A listed application the link does not support as measured.", "The application table (appendix)."),
+    "transceiver-too-weak": ("The transceiver\u2019s weakest received power is below its receive minimum, or it is too strong and no attenuator fits.", "The transceiver catalogue in project.yaml."),
+    "inspection-failed": ("The latest end-face inspection of a strand at a link end failed.", "Inspection records; criteria as recorded (e.g. IEC 61300-3-35)."),
+    "transceiver-too-strong": ("The transceiver\u2019s strongest received power is above overload; an attenuator fits.", "The transceiver catalogue in project.yaml."),
+    "within-uncertainty": ("A judged result closer to its limit than testing.uncertainty_db.", "The stated measurement uncertainty."),
+    "result-outside-period": ("A result dated outside testing.period.", "The test period of project.yaml."),
+    "direction-asymmetry": ("|A\u2192B \u2212 B\u2192A| of one strand and wavelength above asymmetry_db.", "Common practice: unlike connector pairs at the two ends make the directions differ a little; more than about 0.5 dB points to a dirty or damaged end face or a reference problem."),
+    "implausibly-low-loss": ("A judged result below the least loss the link can have, by more than the uncertainty: fiber length \u00d7 rayleigh_db_um4_per_km / \u03bb[\u00b5m]\u2074 + mated connections in the measurement \u00d7 low_loss_connection_db.", "Recalled, not checked against a published source: Rayleigh scattering of silica fiber is about 0.7\u20130.9 dB/km at 1 \u00b5m, falling as 1/\u03bb\u2074 (0.12 dB/km at 1550 nm with 0.7); common practice: even reference-grade connector pairs lose a few hundredths of a dB. Suggests a wrong reference or a meter referenced through the link."),
+    "repeated-readings": ("repeat_count or more judged results of one link and wavelength with the same loss to 0.01 dB, or that many in a row by one technician.", "Derived: readings scatter by a few hundredths of a dB (common practice), so one repeat has a chance of about 1 in 5 or less and five repeats about 0.2\u2075 = 0.03 %."),
+    "length-implausible": ("A documented length under min_length_inside_m or min_length_outside_m.", "Common practice: an outside-plant cable runs between buildings or to a cabinet; a length of a few metres is usually km written as m."),
+    "length-mismatch": ("A measured length off the documented one by more than length_tolerance_percent of it plus length_tolerance_m.", "Common practice: fiber in a stranded cable is longer than the sheath (helix, about 0.5\u20133 %, recalled); slack loops, patching and the meter\u2019s index setting add the rest."),
+    "reference-missing": ("A judged result without a reference of its power meter at its wavelength set before it (references/ present).", "IEC 61280-4-1 and -4-2: every measurement is made against a reference."),
+    "reference-stale": ("A judged result measured more than reference_max_age_h after its reference.", "Common practice: set the reference at the start of each working day and whenever a test cord is changed."),
+    "cords-not-verified": ("A reference in use whose test cords were not checked, or whose check read more than cord_check_max_db.", "IEC 61280-4-1 and -4-2 describe checking the test cords by mating them; the 0.2 dB limit is recalled, not checked against the standard\u2019s text: a reference-grade pair reads 0.1 to 0.2 dB or less."),
+    "inspection-missing": ("A strand at a link end without any end-face inspection (inspections/ present).", "Common practice: inspect, and clean if needed, every end face before it is mated."),
+    "calibration-unknown": ("An instrument named by results without a calibration due date.", "Calibration cannot be shown."),
+})
+# testing.audit keys as the appendix names them
+THRESHOLD_UNIT: Final[Mapping[str, str]] = MappingProxyType({
+    "asymmetry_db": "dB", "rayleigh_db_um4_per_km": "dB\u00b7\u00b5m\u2074/km",
+    "low_loss_connection_db": "dB", "repeat_count": "", "min_length_inside_m": "m",
+    "min_length_outside_m": "m", "length_tolerance_percent": "%", "length_tolerance_m": "m",
+    "reference_max_age_h": "h", "cord_check_max_db": "dB",
+})
+
+
+def _finding_value(key: str, value: object) -> str:
+    """A value of a finding's message: dB 2 decimals, metres and hours whole or 1 decimal,
+    dates ISO, lists joined."""
+    if value is None:
+        return TEXT["not_given"]
+    if key in ("results", "rows", "pairs"):
+        noun = {"results": "result", "rows": "row", "pairs": "strand and wavelength pair"}[key]
+        return f"{value} {noun}" + ("" if value == 1 else "s")
+    if key == "ends":
+        return ", ".join(f"strand {strand} end {end.upper()}" for strand, end in value)  # type: ignore[union-attr]
+    if isinstance(value, tuple):
+        return ", ".join(str(item) for item in value)
+    if isinstance(value, float):
+        if key.endswith("_db"):
+            return units.format_db(value)
+        return f"{value:.0f}" if abs(value - round(value)) < 0.05 else f"{value:.1f}"
+    if hasattr(value, "year"):
+        return format_date(value, with_time=True)
+    return str(value)
+
+
+def finding_text(finding) -> str:
+    """The one-line message of a ``reportgen.engine.findings.Finding``."""
+    values = dict(finding.values)
+    key = finding.rule
+    if key == "calibration-overdue":
+        values["instruments"] = tuple(f"{name} (due {day.isoformat()})"
+                                      for name, day in zip(values["instruments"], values["due"]))
+    elif key == "transceiver-too-weak":
+        if values.get("verdict") == "no-fit":
+            key = "transceiver-no-fit"
+        values["shortfall_db"] = -values["low_margin_db"]
+    elif key == "transceiver-too-strong":
+        values["excess_db"] = -values["high_margin_db"]
+    elif key == "repeated-readings" and values.get("technician"):
+        key = "repeated-readings-technician"
+    elif key == "cords-not-verified" and values.get("cord_check_db") is not None:
+        key = "cords-over-limit"
+    elif key == "reference-missing" and not values.get("meters"):
+        values["meters"] = ()
+    shown = {name: _finding_value(name, value) for name, value in values.items()}
+    return FINDING_TEXT[key].format(**shown)
+
+
 def msg(key: str, /, **values: object) -> str:
     """The catalogue text ``key`` with its ``{placeholders}`` filled in."""
     return TEXT[key].format(**values)
@@ -614,6 +782,11 @@ def format_length(length_m: float, unit: str = "m") -> str:
     if text.startswith("-") and float(text) == 0:  # never "-0 m"
         text = text[1:]
     return f"{text}\u00a0{unit}"
+
+
+def format_setting(value: float) -> str:
+    """A threshold of project.yaml as written: 24, 0.5, 0.02 (no trailing zeros)."""
+    return f"{value:g}"
 
 
 def format_km(length_km: float) -> str:

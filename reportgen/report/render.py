@@ -42,6 +42,7 @@ from reportgen.report import diagrams
 
 from reportgen.report import messages
 from reportgen.engine.applications import ProjectApplications
+from reportgen.engine.findings import Findings
 from reportgen.engine.judge import Judgement
 from reportgen.report.level_diagram import level_steps, power_level_svg
 from reportgen.report.otdr_figure import trace_svg
@@ -187,9 +188,11 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
         date=messages.format_date,
         datetime=functools.partial(messages.format_date, with_time=True),
         css_string=css_string,
+        setting=messages.format_setting,
     )
     env.globals.update(t=messages.TEXT, msg=messages.msg, glossary=messages.GLOSSARY,
-                       safety=messages.SAFETY)
+                       safety=messages.SAFETY, finding_text=messages.finding_text,
+                       rule_text=messages.RULE_TEXT, threshold_unit=messages.THRESHOLD_UNIT)
     return env
 
 
@@ -235,6 +238,8 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
                 ("appx-limits", "limits_heading", 2)]
     if apps is not None:
         entries.append(("appx-applications", "appx_apps_heading", 2))
+    if view.rules:
+        entries.append(("appx-audit", "audit_heading", 2))
     if view.input_files:
         entries.append(("appx-files", "files_heading", 2))
     entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
@@ -336,6 +341,7 @@ def build_report(
     now: datetime,
     version: str,
     applications: ProjectApplications | None = None,
+    findings: Findings | None = None,
     otdr: OtdrAssessment | None = None,
     archive: ArchiveView | None = None,
 ) -> ReportDocument:
@@ -346,8 +352,8 @@ def build_report(
     budget sections; ``archive`` (the files embedded in the PDF and the report's digest)
     puts the digest on the cover and the list of files in the appendix.
     """
-    view = build_view(project, judgement, now=now, version=version, assessed=applications, otdr=otdr,
-                      archive=archive)
+    view = build_view(project, judgement, now=now, version=version, assessed=applications,
+                      findings=findings, otdr=otdr, archive=archive)
     env = make_environment(project.report.templates, view.length_unit)
     renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications),
                          otdr_figures(project, view, otdr))

@@ -72,6 +72,39 @@ def print_check_table(console: Console, outcome, show_all: bool = False) -> None
     totals = outcome.judgement.totals
     console.print(f"{totals['links']} links: {totals['pass']} pass, {totals['fail']} fail, "
                   f"{totals['incomplete']} incomplete")
+    print_findings(console, outcome.findings, show_all=show_all)
+
+
+def print_findings(console: Console, findings, show_all: bool = False) -> None:
+    """Audit findings after the link table: severity, link, rule and message, then counts.
+
+    Above FULL_TABLE_MAX_LINKS findings only the errors are listed unless ``show_all``.
+    """
+    from reportgen.report.messages import finding_text
+
+    listed = findings.items
+    if not show_all and len(listed) > FULL_TABLE_MAX_LINKS:
+        listed = [f for f in listed if f.severity.value == "error"]
+    if listed:
+        table = Table(title="Audit findings", title_justify="left", header_style="bold")
+        if len(listed) < len(findings.items):
+            table.caption = (f"{len(findings.items) - len(listed)} warnings and notes not listed "
+                             "(reportgen check --all lists every finding)")
+            table.caption_justify = "left"
+        table.add_column("severity")
+        table.add_column("link")
+        table.add_column("rule")
+        table.add_column("finding")
+        for finding in listed:
+            severity = finding.severity.value
+            table.add_row(severity.upper() if severity == "error" else severity,
+                          plain(finding.link_id or "(project)"), finding.rule,
+                          plain(finding_text(finding)),
+                          style="bold" if severity == "error" else None)
+        console.print(table)
+    counts = findings.counts
+    console.print(f"Audit findings: {counts['error']} error, {counts['warning']} warning, "
+                  f"{counts['note']} note")
 
 
 def print_limit_sets(console: Console) -> None:

@@ -25,8 +25,18 @@ from reportgen.inputs.apptable import describe_rows as describe_application_rows
 from reportgen.engine.budget import Budget, TermKind, left_out_end_connections
 from reportgen.engine.judge import Judgement, LinkOutcome, calibration_state
 from reportgen.inputs.limits import describe_rows, is_unconfirmed, split_citation, status_at
-from reportgen.model import (Instrument, LimitSet, Link, LinkVerdict, Logo, Project,
-                             ResultVerdict)
+from reportgen.engine.findings import RULES, SEVERITIES, Finding, Findings
+from reportgen.model import (
+    AuditSettings,
+    Instrument,
+    LimitSet,
+    Link,
+    LinkVerdict,
+    Logo,
+    Project,
+    ResultVerdict,
+    Severity,
+)
 from reportgen.engine.otdr import OtdrAssessment, PairedEvent
 from reportgen.engine.power import PowerBudget
 from reportgen.report import messages
@@ -96,6 +106,64 @@ class ComponentView:
 
 
 @dataclass(frozen=True)
+class EvidenceView:
+    """Where a finding's evidence comes from: a file and its lines ("" for a setting)."""
+
+    file: str
+    lines: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class FindingView:
+    finding: Finding  # the engine's finding; templates word it with finding_text()
+    severity: str  # Severity value
+    rule: str
+    link_id: str  # "" for the whole project
+    anchor: str  # the link sheet's element id, "" for the whole project
+    sources: tuple[EvidenceView, ...]  # evidence rows by file, in order
+
+
+@dataclass(frozen=True)
+class InspectionView:
+    strand: int
+    end: str  # "a" or "b"
+    result: str  # "pass" or "fail"
+    inspected_at: datetime
+    criteria: str
+    technician: str
+    image_uri: str  # data: URI of the downscaled picture, "" without one
+    image_width: int
+    image_height: int
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class InspectionSummary:
+    """The strand ends of a link inspected once, passing, without picture or note."""
+
+    count: int
+    first: datetime
+    last: datetime
+    criteria: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class ThresholdView:
+    key: str  # testing.audit key
+    value: float
+    default: float
+
+
+@dataclass(frozen=True)
+class RuleView:
+    id: str
+    severity: str
+    thresholds: tuple[ThresholdView, ...]
+    settings: tuple[str, ...]
+    findings: int  # findings of this rule in the project
+
+
+@dataclass(frozen=True)
 class LinkView:
     link_id: str
     anchor: str  # element id of the link sheet's first element: "link-<slug>"
@@ -120,10 +188,17 @@ class LinkView:
     missing: tuple[MissingView, ...]
     failing: tuple[ResultView, ...]  # judged results that fail
     otdr: tuple[OtdrStrandView, ...] = ()  # OTDR results per strand and wavelength
+    findings: tuple[FindingView, ...] = ()  # audit findings of the link, errors first
+    inspections: tuple[InspectionView, ...] = ()  # notable end-face inspections (see below)
+    inspections_passed: InspectionSummary | None = None  # strand ends with one plain pass
+
+    @property
+    def errors(self) -> tuple[FindingView, ...]:
+        return tuple(f for f in self.findings if f.severity == Severity.ERROR.value)
 
     @property
     def needs_action(self) -> bool:
-        return self.verdict != LinkVerdict.PASS.value
+        return self.verdict != LinkVerdict.PASS.value or bool(self.errors)
 
 
 @dataclass(frozen=True)
@@ -349,7 +424,7 @@ class ReportView:
     last_test: datetime | None
     totals: Mapping[str, int]
     links: tuple[LinkView, ...]
-    needs_action: tuple[LinkView, ...]  # failing links first, then incomplete ones
+    needs_action: tuple[LinkView, ...]  # failing, then incomplete, then with error findings
     instruments: tuple[InstrumentView, ...]
     technicians: tuple[TechnicianView, ...]
     components: tuple[ComponentView, ...]
@@ -357,6 +432,11 @@ class ReportView:
     generated_at: datetime
     version: str
     apps: ApplicationsView | None = None  # None when applications were not assessed
+    finding_counts: Mapping[str, int] | None = None  # by severity; None: no audit was run
+    project_findings: tuple[FindingView, ...] = ()  # findings of no single link
+    rules: tuple[RuleView, ...] = ()  # every audit rule with its thresholds
+    references_given: bool = False  # the project has a references/ folder
+    inspections_given: bool = False  # the project has an inspections/ folder
     connection_citation: str = ""  # connection_source without its status
     connection_status: str = ""
     splice_citation: str = ""
@@ -595,8 +675,74 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
     )
 
 
+def _finding_views(findings: Iterable[Finding], anchors: Mapping[str, str]
+                   ) -> tuple[FindingView, ...]:
+    """Findings as the templates show them: errors first, then warnings, then notes."""
+    order = {severity: at for at, severity in enumerate(SEVERITIES)}
+    views = []
+    for finding in sorted(findings, key=lambda f: order[f.severity]):
+        by_file: dict[str, list[int]] = {}
+        for row in finding.evidence:
+            if row.get("file"):
+                by_file.setdefault(str(row["file"]), []).append(int(row.get("line") or 0))
+        views.append(FindingView(
+            finding=finding, severity=finding.severity.value, rule=finding.rule,
+            link_id=finding.link_id or "", anchor=anchors.get(finding.link_id or "", ""),
+            sources=tuple(EvidenceView(file, tuple(sorted(set(lines))))
+                          for file, lines in by_file.items())))
+    return tuple(views)
+
+
+def _inspection_views(project: Project
+                      ) -> dict[str, tuple[tuple[InspectionView, ...], InspectionSummary | None]]:
+    """Per link: the inspections worth a row (a strand end with a failure, a picture, a note
+    or more than one inspection) and a summary of the strand ends with one plain pass."""
+    by_end: dict[tuple[str, int, str], list] = {}
+    for i in sorted(project.inspections or (),
+                    key=lambda i: (i.strand, i.end.value, i.inspected_at, i.source_line)):
+        by_end.setdefault((i.link_id, i.strand, i.end.value), []).append(i)
+    shown: dict[str, list[InspectionView]] = {}
+    plain: dict[str, list] = {}
+    for (link_id, _, _), items in by_end.items():
+        notable = len(items) > 1 or any(i.result.value == "fail" or i.image or i.note
+                                        for i in items)
+        if not notable:
+            plain.setdefault(link_id, []).append(items[0])
+            continue
+        for i in items:
+            image = i.image
+            shown.setdefault(link_id, []).append(InspectionView(
+                strand=i.strand, end=i.end.value, result=i.result.value,
+                inspected_at=i.inspected_at, criteria=i.criteria or "",
+                technician=i.technician or "",
+                image_uri="" if image is None else
+                f"data:{image.mime};base64,{base64.b64encode(image.data).decode('ascii')}",
+                image_width=0 if image is None else image.width,
+                image_height=0 if image is None else image.height, note=i.note or ""))
+    out = {}
+    for link_id in {*shown, *plain}:
+        passes = plain.get(link_id, [])
+        summary = None if not passes else InspectionSummary(
+            count=len(passes), first=min(i.inspected_at for i in passes),
+            last=max(i.inspected_at for i in passes),
+            criteria=tuple(sorted({i.criteria for i in passes if i.criteria})))
+        out[link_id] = (tuple(shown.get(link_id, ())), summary)
+    return out
+
+
+def _rule_views(audit: AuditSettings, findings: Findings) -> tuple[RuleView, ...]:
+    defaults = AuditSettings()
+    counts = Counter(f.rule for f in findings.items)
+    return tuple(RuleView(
+        id=rule.id, severity=rule.severity.value,
+        thresholds=tuple(ThresholdView(key, getattr(audit, key), getattr(defaults, key))
+                         for key in rule.thresholds),
+        settings=rule.settings, findings=counts.get(rule.id, 0)) for rule in RULES)
+
+
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
                assessed: ProjectApplications | None = None,
+               findings: Findings | None = None,
                otdr: OtdrAssessment | None = None,
                archive: ArchiveView | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
@@ -613,8 +759,17 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
                                   rows_by_link.get(link.link_id, []))
                   for link in project.links)
     links = _with_otdr(links, otdr)
+    if findings is not None or project.inspections:
+        inspections = _inspection_views(project)
+        links = tuple(dataclasses.replace(
+            view, findings=() if findings is None else _finding_views(
+                findings.for_link(view.link_id), anchors),
+            inspections=inspections.get(view.link_id, ((), None))[0],
+            inspections_passed=inspections.get(view.link_id, ((), None))[1]) for view in links)
     needs_action = (tuple(v for v in links if v.verdict == LinkVerdict.FAIL.value)
-                    + tuple(v for v in links if v.verdict == LinkVerdict.INCOMPLETE.value))
+                    + tuple(v for v in links if v.verdict == LinkVerdict.INCOMPLETE.value)
+                    + tuple(v for v in links if v.verdict == LinkVerdict.PASS.value
+                            and v.needs_action))
     tested = frame["tested_at"].dropna() if not frame.empty else pd.Series([], dtype=object)
     components = tuple(ComponentView(c.id, c.loss_db, c.description or "")
                        for c in project.components.values())
@@ -653,6 +808,12 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         components=components, paper=project.report.paper.value,
         generated_at=now, version=version,
         apps=apps,
+        finding_counts=None if findings is None else findings.counts,
+        project_findings=() if findings is None else _finding_views(findings.for_link(None),
+                                                                    anchors),
+        rules=() if findings is None else _rule_views(project.testing.audit, findings),
+        references_given=project.references is not None,
+        inspections_given=project.inspections is not None,
         input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
                                         results=f.results, links=f.links) for f in project.input_files),
         archive=archive,

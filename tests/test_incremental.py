@@ -1,0 +1,93 @@
+"""Incremental rebuilds of whole reports: after a change, a rebuild into the same output
+folder (part cache) gives the same bytes, in all four outputs, as a build from scratch
+(--no-cache into an empty folder), the project's rule for reproducible builds
+(DEVELOPERS.md, "Byte-identical builds"). Full PDF builds: slow.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import shutil
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pytest
+
+from reportgen import pipeline
+from reportgen.export.atomic import OUTPUT_NAMES
+from reportgen.pdf.cache import CACHE_DIR_NAME
+from reportgen.report.render import templates_dir
+from tests.builders import write_large_project
+
+NOW = datetime(2030, 2, 1, 12, 0, tzinfo=timezone.utc)
+LOGO = ('<svg xmlns="http://www.w3.org/2000/svg" width="60" height="20" viewBox="0 0 60 20">'
+        '<rect width="60" height="20" fill="{colour}"/></svg>')
+
+
+def _digests(out: Path) -> dict[str, str]:
+    return {name: hashlib.sha256((out / name).read_bytes()).hexdigest() for name in OUTPUT_NAMES}
+
+
+def _entries(out: Path) -> set[str]:
+    return {path.name for path in (out / CACHE_DIR_NAME).glob("*.part")}
+
+
+@pytest.fixture
+def project(tmp_path: Path) -> Path:
+    """24 links (three parts of link sheets and the appendix), a logo and one own template."""
+    root = write_large_project(tmp_path / "project", links=24)
+    yaml = (root / "project.yaml").read_text(encoding="utf-8")
+    (root / "project.yaml").write_text(
+        yaml.replace("contractor: {name: Test Cabling}",
+                     "contractor: {name: Test Cabling, logo: assets/logo.svg}")
+        + "report:\n  templates: look\n", encoding="utf-8")
+    (root / "assets").mkdir()
+    (root / "assets" / "logo.svg").write_text(LOGO.format(colour="#204060"), encoding="utf-8")
+    (root / "look" / "partials").mkdir(parents=True)
+    shutil.copy(templates_dir() / "partials" / "appendix.html.j2",
+                root / "look" / "partials" / "appendix.html.j2")
+    return root
+
+
+def _rebuild_equals_full_build(project: Path, out: Path, scratch: Path) -> set[str]:
+    """Rebuild into ``out`` and build from scratch into ``scratch``; same bytes. Returns the
+    cache entries the rebuild reused."""
+    before = _entries(out)
+    pipeline.build(project, out, now=NOW, jobs=2)
+    pipeline.build(project, scratch, now=NOW, jobs=2, cache=False)
+    assert _digests(out) == _digests(scratch)
+    assert not (scratch / CACHE_DIR_NAME).exists()
+    return before & _entries(out)
+
+
+def _edit(path: Path, old: str, new: str) -> None:
+    text = path.read_text(encoding="utf-8")
+    assert old in text
+    path.write_text(text.replace(old, new, 1), encoding="utf-8")
+
+
+@pytest.mark.slow
+def test_rebuilds_after_each_kind_of_change_equal_full_builds(project: Path, tmp_path: Path) -> None:
+    out = tmp_path / "out"
+    pipeline.build(project, out, now=NOW, jobs=2)
+    first = _digests(out)
+    assert len(_entries(out)) >= 5  # front matter (estimate and final may be one), 3 runs, appendix
+
+    # one result of the first link: its run of sheets and the front matter change
+    _edit(project / "results" / "day1.csv", "L00001,1,850,ab,1.00", "L00001,1,850,ab,1.40")
+    reused = _rebuild_equals_full_build(project, out, tmp_path / "full-result")
+    assert _digests(out) != first
+    assert len(reused) >= 2  # at least the other runs of sheets came from the cache
+
+    # one link's length (a link of the last run)
+    _edit(project / "links.csv", "L00023,Room 1,Room 2,OM4,100,2", "L00023,Room 1,Room 2,OM4,180,2")
+    assert len(_rebuild_equals_full_build(project, out, tmp_path / "full-link")) >= 2
+
+    # the logo: same file name, other picture
+    (project / "assets" / "logo.svg").write_text(LOGO.format(colour="#802020"), encoding="utf-8")
+    _rebuild_equals_full_build(project, out, tmp_path / "full-logo")
+
+    # the project's own appendix template
+    _edit(project / "look" / "partials" / "appendix.html.j2", "</section>",
+          "<p>Checked again after the retest.</p></section>")
+    assert len(_rebuild_equals_full_build(project, out, tmp_path / "full-template")) >= 3
