@@ -25,7 +25,7 @@ from reportgen.errors import ReportgenError
 SIGNATURE_FIELD_ID: Final = "signature-field"   # the element's id in the front matter
 SIGNATURE_FIELD_NAME: Final = "ReportSignature"  # the PDF form field's name
 MM_PT: Final = 72 / 25.4
-SIGNATURE_BOX_PT: Final = (80 * MM_PT, 16 * MM_PT)  # print.css: .signature-field 80mm x 16mm
+SIGNATURE_BOX_PT: Final = (80 * MM_PT, 11 * MM_PT)  # report.css: .signature-field 80mm x 11mm
 
 
 @dataclass(frozen=True)
