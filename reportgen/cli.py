@@ -30,6 +30,8 @@ Examples:
   reportgen limits                        list the built-in limit sets
   reportgen limits tia-568.3-d            show one limit set with its sources
   reportgen applications                  list the application table
+  reportgen verify out/report.pdf         check a report: files inside, digest,
+                                          verdicts judged again
   reportgen import demo_project           show what imports: entries read
 
 Exit status: 0 done, 1 (check) a link fails or is incomplete or an audit
@@ -118,6 +120,37 @@ def cli(ctx: click.Context) -> None:
     _configure_logging(ctx.ensure_object(_Settings))
 
 
+SIGN_PASSWORD_VARIABLE = "REPORTGEN_SIGN_PASSWORD"
+
+
+def _signing_key(path: Path) -> Any:
+    """Load the PKCS#12 file: password from the environment, else none, else asked for.
+
+    The password is never a command-line argument (it would show in process lists and
+    shell history).
+    """
+    import os
+
+    from reportgen.pdf.sign import load_signing_key
+
+    try:
+        data = path.read_bytes()
+    except OSError as error:
+        raise ReportgenError(f"{path}: cannot read the signing key ({error.strerror})") from None
+    password = os.environ.get(SIGN_PASSWORD_VARIABLE)
+    if password is not None:
+        return load_signing_key(data, password.encode("utf-8"), str(path))
+    try:
+        return load_signing_key(data, None, str(path))  # a file without a password
+    except ReportgenError:
+        if not sys.stdin.isatty():
+            raise ReportgenError(
+                f"{path}: the PKCS#12 file needs a password; set {SIGN_PASSWORD_VARIABLE} "
+                "(no terminal to ask on)") from None
+    asked = click.prompt(f"Password of {path}", hide_input=True, err=True)
+    return load_signing_key(data, asked.encode("utf-8"), str(path))
+
+
 PROJECT = click.argument("project", type=click.Path(path_type=Path))
 
 
@@ -157,8 +190,11 @@ def check(project: Path, show_all: bool) -> None:
 @click.option("--cluster", metavar="ADDRESS", envvar="REPORTGEN_CLUSTER", default=None,
               help="Render the PDF's parts on the Dask scheduler at ADDRESS, e.g. "
                    "tcp://10.0.0.5:8786 (also REPORTGEN_CLUSTER; needs reportgen[cluster]).")
+@click.option("--sign", "sign_p12", type=click.Path(path_type=Path), metavar="KEY.p12",
+              help="Sign report.pdf with the key and certificate of this PKCS#12 file; its "
+                   f"password comes from {SIGN_PASSWORD_VARIABLE} or is asked for.")
 def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
-          no_cache: bool, cluster: str | None) -> None:
+          no_cache: bool, cluster: str | None, sign_p12: Path | None) -> None:
     """Validate, judge and write the report of PROJECT.
 
     A rebuild into the same output folder renders only the parts of the PDF that
@@ -167,9 +203,13 @@ def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
     from reportgen import pipeline
     from reportgen.report.terminal import progress_bar
 
+    if sign_p12 is not None and data_only:
+        raise click.UsageError("--sign signs report.pdf; --data-only writes none")
+    sign_key = _signing_key(sign_p12) if sign_p12 is not None else None
     with progress_bar(_stderr(), enabled=not data_only) as progress:
         result = pipeline.build(project, output, report=not data_only, progress=progress,
-                                jobs=jobs, cache=not no_cache, cluster=cluster or None)
+                                jobs=jobs, cache=not no_cache, cluster=cluster or None,
+                                sign_key=sign_key)
     totals = result.outcome.judgement.totals
     counts = result.outcome.findings.counts
     _stdout().print(
@@ -177,6 +217,35 @@ def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
         f"{totals['incomplete']} incomplete; audit findings: {counts['error']} error, "
         f"{counts['warning']} warning, {counts['note']} note. Written to {result.out_dir}: "
         + ", ".join(result.files))
+
+
+@cli.command(epilog="Exit status: 0 every check holds, 1 some check fails (named), 2 not a "
+                    "PDF, not a report with its project inside, or a bad option.")
+@click.argument("report_pdf", type=click.Path(path_type=Path))
+@click.option("--project", "project_dir", type=click.Path(path_type=Path),
+              help="Also compare this project folder's files with the copies in the report.")
+@click.option("--trust", type=click.Path(path_type=Path), metavar="CERT.pem",
+              help="Also check that the signature's certificate chains to this certificate.")
+def verify(report_pdf: Path, project_dir: Path | None, trust: Path | None) -> None:
+    """Check REPORT_PDF: signature, files inside, digest, verdicts judged again.
+
+    Each check is printed with its outcome. The verdicts are checked by judging the
+    embedded inputs again with this reportgen and comparing every loss, limit, margin
+    and verdict with the embedded results.csv and summary.json.
+    """
+    from reportgen.verify import verify_report
+
+    checks = verify_report(report_pdf, project_dir, trust)
+    console = _stdout()
+    for check in checks:
+        console.print(f"{'ok  ' if check.ok else 'FAIL'}  {check.name}: {check.detail}",
+                      markup=False, soft_wrap=True)
+    failed = [check for check in checks if not check.ok]
+    if failed:
+        console.print(f"{len(failed)} of {len(checks)} checks failed: "
+                      + ", ".join(check.name for check in failed), markup=False, soft_wrap=True)
+        raise _Failure(1)
+    console.print(f"all {len(checks)} checks hold", markup=False)
 
 
 @cli.command("import", epilog="Exit status: 0 done, 2 bad input (every problem listed).")

@@ -11,6 +11,7 @@ import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
+from functools import partial
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -21,14 +22,16 @@ from reportgen.export.atomic import write_outputs
 from reportgen.export.results_csv import results_csv_bytes
 from reportgen.export import summary
 from reportgen.export.summary import json_bytes
+from reportgen.export import manifest as manifest_file
 from reportgen.errors import InputError, InputProblem, ReportgenError
 from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
 from reportgen.engine.findings import Findings, find_all
 from reportgen.engine.otdr import OtdrAssessment, assess_otdr
-from reportgen.report.messages import PAGE_LABEL, finding_text, reason_text
+from reportgen.report.messages import PAGE_LABEL, archive_page_label, finding_text, reason_text
 from reportgen.model import Project
-from reportgen.inputs.project import load_project
+from reportgen.inputs.apptable import table_version
+from reportgen.inputs.project import load_project, read_files
 
 log = logging.getLogger("reportgen")
 
@@ -132,6 +135,7 @@ def build(
     jobs: int | None = None,
     cache: bool = True,
     cluster: str | None = None,
+    sign_key: Any = None,
 ) -> BuildResult:
     """Validate, judge, render and write every output; nothing is written on failure.
 
@@ -140,6 +144,7 @@ def build(
     ``cache``, parts rendered by an earlier build into the same output folder are
     reused (``OUT/.reportgen-cache``, :mod:`reportgen.pdf.cache`); the part cache is
     the one thing written before the outputs, each entry whole or not at all.
+    ``sign_key`` (:func:`reportgen.pdf.sign.load_signing_key`) signs report.pdf.
     """
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
@@ -148,17 +153,21 @@ def build(
     check_out_dir_holds_no_input(project, out_dir)
     now = build_now(now)
     outcome = compute(project, now)
+    results_csv = results_csv_bytes(outcome.judgement.results)
+    archive = archive_of(outcome, results_csv, now=now, version=version)
 
     def data_outputs() -> dict[str, bytes]:
         return {
-            "results.csv": results_csv_bytes(outcome.judgement.results),
-            "summary.json": json_bytes(summary_document(outcome, now, version)),
+            manifest_file.RESULTS_NAME: results_csv,
+            manifest_file.SUMMARY_NAME: json_bytes(
+                summary_document(outcome, now, version, archive.digest)),
         }
 
     if report:
         outputs = render_report(outcome, now=now, version=version, progress=progress,
                                 alongside=data_outputs, jobs=jobs,
-                                cache_dir=out_dir if cache else None, cluster=cluster)
+                                cache_dir=out_dir if cache else None, cluster=cluster,
+                                archive=archive, sign_key=sign_key)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
         outputs = data_outputs()
@@ -198,12 +207,61 @@ def write_imported(project: Project, out_dir: Path) -> tuple[str, ...]:
     return tuple(written)
 
 
-def summary_document(outcome: Outcome, now: datetime, version: str) -> dict[str, Any]:
+def summary_document(outcome: Outcome, now: datetime, version: str,
+                     digest: str | None = None) -> dict[str, Any]:
     """summary.json of a computed project (export.summary.summary_document)."""
     return summary.summary_document(outcome.project, outcome.judgement, outcome.applications,
                                     now=now, version=version, reason_text=reason_text,
                                     findings=outcome.findings, finding_text=finding_text,
-                                    otdr=outcome.otdr)
+                                    otdr=outcome.otdr, digest=digest)
+
+
+@dataclass(frozen=True)
+class Archive:
+    """The manifest of a build, its digest and the input files it lists (by path)."""
+
+    inputs: dict[str, bytes]
+    results_csv: bytes
+    manifest: bytes
+    document: dict[str, Any]
+
+    @property
+    def digest(self) -> str:
+        return manifest_file.digest_of(self.manifest)
+
+
+def archive_of(outcome: Outcome, results_csv: bytes, *, now: datetime, version: str) -> Archive:
+    """Read the project's files again and make the manifest of the build."""
+    inputs = read_files(outcome.project)
+    document = manifest_file.manifest_document(
+        outcome.project, inputs, results_csv, version=version, now=now,
+        application_table=table_version())
+    return Archive(inputs, results_csv, manifest_file.manifest_bytes(document), document)
+
+
+def attachments_of(archive: Archive, summary_json: bytes) -> list[Any]:
+    """The files embedded in report.pdf: every input, results.csv, summary.json, manifest."""
+    from reportgen.pdf.archive import Attachment
+
+    made = [Attachment(manifest_file.INPUT_PREFIX + path, data, manifest_file.mime_type(path),
+                       "Source", "input file of the project, as read")
+            for path, data in archive.inputs.items()]
+    made += [
+        Attachment(manifest_file.RESULTS_NAME, archive.results_csv, "text/csv", "Data",
+                   "every result with its limit, margin and verdict"),
+        Attachment(manifest_file.SUMMARY_NAME, summary_json, "application/json", "Data",
+                   "verdict of every link, totals and the report's digest"),
+        Attachment(manifest_file.MANIFEST_NAME, archive.manifest, "application/json", "Data",
+                   "size and SHA-256 of every file above; its SHA-256 is the report's digest"),
+    ]
+    return made
+
+
+def report_view_archive(archive: Archive, signer: str = "") -> Any:
+    """The digest and signer the report prints (cover, acceptance block, appendix)."""
+    from reportgen.report.viewmodel import ArchiveView
+
+    return ArchiveView(archive.digest, signer)
 
 
 def default_jobs() -> int:
@@ -218,34 +276,48 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                   progress: Progress | None = None,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
                   jobs: int | None = None, cache_dir: Path | None = None,
-                  cluster: str | None = None) -> dict[str, bytes]:
+                  cluster: str | None = None, archive: Archive | None = None,
+                  sign_key: Any = None) -> dict[str, bytes]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
 
-    Returns the outputs of ``alongside()`` (made by a thread while the PDF workers
-    are busy, like report.html), then report.html and report.pdf. ``cache_dir`` is
-    the output folder whose part cache is used (None: render every part).
+    Returns the outputs of ``alongside()`` (made first: the PDF embeds them), then
+    report.html (made by a thread while the PDF workers are busy) and report.pdf.
+    ``cache_dir`` is the output folder whose part cache is used (None: render every
+    part); ``archive`` is attached to the PDF, ``sign_key`` signs it.
     """
     from reportgen.pdf import engine as pdf
     from reportgen.pdf.cache import PartCache
     from reportgen.report import render
 
     log.info("Step 4: rendering the report")
-    document = render.build_report(outcome.project, outcome.judgement, now=now,
-                                   version=version, applications=outcome.applications,
-                                   findings=outcome.findings, otdr=outcome.otdr)
+    document = render.build_report(
+        outcome.project, outcome.judgement, now=now, version=version,
+        applications=outcome.applications, findings=outcome.findings, otdr=outcome.otdr,
+        archive=(report_view_archive(archive, sign_key.subject if sign_key is not None else "")
+                 if archive is not None else None))
 
-    def meanwhile() -> dict[str, bytes]:
-        made = alongside() if alongside is not None else {}
-        return {**made, "report.html": document.html.encode("utf-8")}
+    # The data files are embedded in the PDF, so they are made first (they are quick);
+    # report.html is written by a thread while the PDF workers are busy.
+    made = alongside() if alongside is not None else {}
+    attachments = (attachments_of(archive, made[manifest_file.SUMMARY_NAME])
+                   if archive is not None and manifest_file.SUMMARY_NAME in made else [])
+    label = (archive_page_label(manifest_file.short_digest(archive.digest))
+             if archive is not None else PAGE_LABEL)
+    seal = None
+    if sign_key is not None:
+        from reportgen.pdf.sign import sign_pdf
 
+        seal = partial(sign_pdf, key=sign_key)
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
-        others = thread.submit(meanwhile)
+        html = thread.submit(lambda: document.html.encode("utf-8"))
         pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
                                    title=outcome.project.info.title, created=now,
-                                   page_label=PAGE_LABEL, progress=progress,
+                                   page_label=label, progress=progress,
                                    xml_first=document.own_templates,
+                                   author=outcome.project.info.contractor.name,
+                                   attachments=attachments, seal=seal,
                                    workers=jobs if jobs is not None else default_jobs(),
                                    cache=(PartCache.in_output_folder(cache_dir)
                                           if cache_dir is not None else None),
                                    cluster=cluster)
-        return {**others.result(), "report.pdf": pdf_bytes}
+        return {**made, "report.html": html.result(), "report.pdf": pdf_bytes}

@@ -552,12 +552,19 @@ def test_hostile_text_and_logo_end_to_end(tmp_path):
     assert "{{ 7*7 }}{% if true %}T{% endif %}" in text  # shown as typed, never evaluated
     assert "\u202eevil" in text
 
-    # PDF: the same texts, literally; no attachment; the outside image was never embedded.
+    # PDF: the same texts, literally; no attachment but the archive copies of the project's
+    # own files and outputs (none from a hostile <link rel=attachment>); the outside image
+    # was never embedded.
     reader = PdfReader(out / "report.pdf")
     pdf_text = "".join("".join(p.extract_text().split()) for p in reader.pages)
     for name in ("script", "attribute", "template", "style"):
         assert "".join(HOSTILE[name].split()) in pdf_text, name
-    assert reader.attachments == {}
+    outputs = {"manifest.json", "results.csv", "summary.json"}
+    attached = dict(reader.attachments)
+    assert outputs <= set(attached)
+    for name in set(attached) - outputs:
+        assert name.startswith("project/"), name
+        assert attached[name] == [(project_dir / name.removeprefix("project/")).read_bytes()]
     sizes = {(int(image.image.width), int(image.image.height))
              for p in reader.pages for image in p.images}
     assert (7, 13) not in sizes

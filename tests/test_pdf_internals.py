@@ -1,7 +1,7 @@
 """Every WeasyPrint and pypdf internal the PDF engine relies on, one test per listed use.
 
-reportgen/pdf/weasy.py (WeasyPrint, uses 1 to 7) and reportgen/pdf/pypdf_access.py
-(pypdf, uses 1 and 2) list what they read beyond the libraries' documented API. Each
+reportgen/pdf/weasy.py (WeasyPrint, uses 1 to 8) and reportgen/pdf/pypdf_access.py
+(pypdf, uses 1 to 3) list what they read beyond the libraries' documented API. Each
 test here checks one of those uses on a tiny document and, when a new release changed
 it, fails with a message naming the use, the reportgen function that depends on it and
 what to look at. Run this file first when raising a bound in pyproject.toml.
@@ -33,7 +33,7 @@ from weasyprint import HTML
 
 from reportgen.pdf import weasy
 from reportgen.pdf.fetcher import make_url_fetcher, root_url
-from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
+from reportgen.pdf.pypdf_access import add_indirect, named_destination_array, set_file_identifier
 
 PX_PER_MM = 96 / 25.4       # CSS Values 4, 5.2: 1in = 96px = 25.4mm
 PX_PER_PT = 96 / 72         # CSS Values 4, 5.2: 1in = 96px = 72pt
@@ -226,6 +226,21 @@ def test_weasyprint_html_keeps_the_parsed_tree(tmp_path: Path) -> None:
         "parsed_tree", "Check HTML.__init__ in weasyprint/__init__.py.")
 
 
+# WeasyPrint, use 8: the sRGB ICC profile shipped as package data.
+
+def test_weasyprint_ships_an_srgb_icc_profile() -> None:
+    # ICC.1:2010, 7.2 (from memory): bytes 12-15 the device class ("mntr" for a display
+    # profile), 16-19 the data colour space ("RGB "), 36-39 the signature "acsp".
+    try:
+        data = weasy.srgb_icc_profile()
+    except (FileNotFoundError, ModuleNotFoundError):
+        data = b""
+    assert data[36:40] == b"acsp" and data[16:20] == b"RGB " and data[12:16] == b"mntr", changed(
+        "weasyprint", "weasyprint/pdf/sRGB2014.icc (gone or not an RGB display profile)",
+        "srgb_icc_profile", "Find the ICC profile WeasyPrint uses for its PDF/A output "
+        "(weasyprint/pdf/pdfa.py).")
+
+
 # pypdf, use 1: PdfWriter._add_object.
 
 def test_pypdf_add_object_makes_a_written_indirect_object() -> None:
@@ -277,3 +292,19 @@ def test_pypdf_named_dest_root_is_the_written_array() -> None:
         "pypdf", "PdfWriter.get_named_dest_root (what is appended to it is not written as "
         "named destinations)", "named_destination_array",
         "Check get_named_dest_root in pypdf/_doc_common.py.")
+
+
+# pypdf, use 3: PdfWriter._ID is written as the trailer's /ID.
+
+def test_pypdf_id_attribute_is_written_as_the_trailer_id() -> None:
+    writer = PdfWriter()
+    writer.add_blank_page(200, 200)
+    identifier = bytes(range(200, 216))  # not text: read back as a byte string
+    set_file_identifier(writer, identifier)
+    buffer = io.BytesIO()
+    writer.write(buffer)
+    written = PdfReader(io.BytesIO(buffer.getvalue())).trailer.get("/ID")
+    assert written is not None and [getattr(part, "original_bytes", part) for part in written] == [
+        identifier] * 2, changed(
+        "pypdf", "PdfWriter._ID (not written as the trailer's /ID)", "set_file_identifier",
+        "Check how PdfWriter writes the trailer (pypdf/_writer.py, _write_trailer).")

@@ -10,6 +10,7 @@ from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.findings import Finding, Findings
 from reportgen.engine.judge import Judgement
 from reportgen.engine.otdr import OtdrAssessment
+from reportgen.export.manifest import MANIFEST_NAME
 from reportgen.model import Project
 from reportgen.units import round_db, round_length_m
 
@@ -58,12 +59,16 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
                      reason_text: Callable[[Any], str],
                      findings: Findings | None = None,
                      finding_text: Callable[[Finding], str] | None = None,
-                     otdr: OtdrAssessment | None = None) -> dict[str, Any]:
+                     otdr: OtdrAssessment | None = None,
+                     digest: str | None = None) -> dict[str, Any]:
     """summary.json: the contract's keys plus applications and power per link, the OTDR
     checks and the audit findings.
 
     ``reason_text`` words an application's reasons and ``finding_text`` a finding (the
     report's text catalogue, so summary.json and the report say the same).
+
+    ``digest`` (the SHA-256 of the manifest, :mod:`reportgen.export.manifest`) is
+    written as ``archive.manifest_sha256``.
     """
     link_extras = {link.link_id: {"fiber_type": link.fiber_type.value,
                                   "length_m": round_length_m(link.length_m),
@@ -79,6 +84,8 @@ def summary_document(project: Project, judgement: Judgement, applications: Proje
         "generated_at": now.isoformat(),
         "generator": f"reportgen {version}",
     }
+    if digest is not None:
+        meta["archive"] = {"manifest": MANIFEST_NAME, "manifest_sha256": digest}
     document = summary_dict(project, judgement, link_extras, meta)
     if findings is not None and finding_text is not None:
         listed, counts = findings_json(findings, finding_text)

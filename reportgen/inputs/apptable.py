@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
+import hashlib
 import math
 from collections.abc import Iterable, Mapping
 from functools import lru_cache
@@ -37,6 +38,12 @@ def load_applications() -> ApplicationTable:
     """
     text = (resources.files("reportgen") / "data" / TABLE_FILE).read_text(encoding="utf-8")
     return read_applications(text, f"built-in {TABLE_FILE}")
+
+
+def table_version() -> str:
+    """The built-in table's version: its file name and the SHA-256 of its bytes (manifest)."""
+    data = (resources.files("reportgen") / "data" / TABLE_FILE).read_bytes()
+    return f"{TABLE_FILE} sha256:{hashlib.sha256(data).hexdigest()}"
 
 
 def read_applications(text: str, shown: str) -> ApplicationTable:

@@ -20,7 +20,7 @@ from reportgen.inputs import imports as importing
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
 from reportgen.inputs.otdr import load_otdr
-from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_yaml, shown_path
+from reportgen.inputs.files import clip, is_inside, outside_problem, printable, read_bytes, read_yaml, shown_path
 from reportgen.model import (
     Component,
     FiberType,
@@ -496,3 +496,22 @@ def _files_read(root: Path, settings: Settings, result_files: list[str]) -> tupl
     if logo is not None:
         read.add(logo.path.relative_to(root).as_posix())
     return tuple(sorted(read))
+
+
+def read_files(project: Project) -> dict[str, bytes]:
+    """The bytes of every file the project was read from (``Project.files_read``).
+
+    For the manifest and the archive copy inside report.pdf. The files are read again,
+    right after :func:`load_project`; a file that cannot be read now raises one
+    :class:`InputError` naming every such file.
+    """
+    found: dict[str, bytes] = {}
+    problems: list[InputProblem] = []
+    for path in project.files_read:
+        data, read_problems = read_bytes(project.root / path, path)
+        problems += read_problems
+        if data is not None:
+            found[path] = data
+    if problems:
+        raise InputError(problems)
+    return found

@@ -34,9 +34,10 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Final, Protocol
 
 from reportgen.errors import ReportgenError, WorkerTraceback
+from reportgen.pdf.archive import Attachment
 from reportgen.pdf.cache import PartCache, part_key
 from reportgen.pdf.weasy import RenderedPart, render_part
-from reportgen.pdf.merge import PageCopier, finish_pdf
+from reportgen.pdf.merge import PageCopier, Seal, finish_pdf
 from reportgen.pdf.stamp import check_label_text
 
 if TYPE_CHECKING:
@@ -394,7 +395,8 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
                page_label: str = "Page {page} of {pages}", created: datetime,
                workers: int = 2, progress: Progress | None = None,
                xml_first: bool = False, cache: PartCache | None = None,
-               cluster: str | None = None) -> bytes:
+               cluster: str | None = None, author: str = "",
+               attachments: Sequence[Attachment] = (), seal: Seal | None = None) -> bytes:
     """Render the front matter and body parts into one PDF and return its bytes.
 
     Parameters
@@ -429,6 +431,10 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         read them with the standard library's XML parser, falling back to
         WeasyPrint's HTML parser for any that is not (see
         :func:`reportgen.pdf.weasy.parse_xml`).
+    author, attachments
+        The archive file's author and embedded files (:mod:`reportgen.pdf.archive`).
+    seal
+        Signs the finished file (see :func:`reportgen.pdf.merge.finish_pdf`).
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1 (got {workers})")
@@ -460,7 +466,8 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
             writer = copier.writer
             front_done_s = time.perf_counter()
             pdf = finish_pdf(writer, front_part, body_parts, title=title,
-                             page_label=page_label, created=created)
+                             page_label=page_label, created=created, author=author,
+                             attachments=attachments, seal=seal)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
                 "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)

@@ -19,7 +19,7 @@ import logging
 import shutil
 import subprocess
 import tempfile
-from collections.abc import Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from datetime import datetime
 from typing import Final
@@ -40,6 +40,7 @@ from pypdf.generic import (
 )
 
 from reportgen import __version__
+from reportgen.pdf.archive import Attachment, make_archival
 from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
 from reportgen.pdf.stamp import Stamper, make_stamp_font
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
@@ -50,6 +51,7 @@ QPDF_OK_STATUSES: Final = (0, 3)  # 3: succeeded with warnings
 MISSING_SLOT_TEXT: Final = "\u2013"
 SLOT_CHARS: Final = "0123456789" + MISSING_SLOT_TEXT
 CREATOR: Final = f"reportgen {__version__}"
+Seal = Callable[[bytes, Mapping[str, tuple[int, float, float]]], bytes]
 PRODUCER: Final = f"WeasyPrint {weasyprint.__version__}, pypdf {pypdf.__version__}"
 
 
@@ -184,11 +186,16 @@ class PageCopier:
 
 
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
-               title: str, page_label: str, created: datetime, compact: bool = True) -> bytes:
+               title: str, page_label: str, created: datetime, compact: bool = True,
+               author: str = "", attachments: Sequence[Attachment] = (),
+               seal: Seal | None = None) -> bytes:
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
 
-    Adds the page-number stamps, links, outline and metadata; with ``compact``, merges
-    identical objects and repacks with qpdf when installed.
+    Adds the page-number stamps, links, outline and metadata, then makes the merged
+    file PDF/A-3b with ``attachments`` embedded (:func:`reportgen.pdf.archive.make_archival`);
+    with ``compact``, merges identical objects and repacks with qpdf when installed.
+    ``seal(pdf, places)``, given, signs the finished file (:mod:`reportgen.pdf.sign`);
+    ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).
     """
     for index, page in enumerate(PdfReader(io.BytesIO(front.pdf)).pages):
         writer.insert_page(page, index)
@@ -210,11 +217,17 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
         "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
         "/CreationDate": date, "/ModDate": date,
     })
+    make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
+                  created=created, attachments=attachments)
     if compact:
         writer.compress_identical_objects()
     buffer = io.BytesIO()
     writer.write(buffer)
-    return repack_with_qpdf(buffer.getvalue()) if compact else buffer.getvalue()
+    pdf = repack_with_qpdf(buffer.getvalue()) if compact else buffer.getvalue()
+    if seal is not None:
+        pdf = seal(pdf, {name: (page, anchor.x_pt, anchor.y_pt)
+                         for name, (page, anchor) in anchors.items()})
+    return pdf
 
 
 def repack_with_qpdf(pdf: bytes) -> bytes:

@@ -15,7 +15,7 @@ one test per use; run it before raising the pypdf bound in pyproject.toml):
    existing reference). pypdf has no public way to add a free-standing object: its
    public methods add pages, outline items and annotations of its own design only.
    Used for the link annotations (merge.add_links), the stamp font's file stream,
-   descriptor and font dictionary, the Helvetica fallback (stamp), the shared ``q``
+   descriptor and font dictionary (stamp), the shared ``q``
    stream and each page's stamp stream (stamp.Stamper). Checked on pypdf 7.1.1.
 2. ``PdfWriter.get_named_dest_root()`` (public name, undocumented behaviour), in
    :func:`named_destination_array`. Returns the live ``/Names`` array of the
@@ -24,6 +24,12 @@ one test per use; run it before raising the pypdf bound in pyproject.toml):
    in sorted order in one pass (the public ``add_named_destination`` inserts one name
    at a time by a linear search, and makes a GoTo action per name that we do not
    want). Checked on pypdf 7.1.1.
+3. ``PdfWriter._ID`` (private attribute), in :func:`set_file_identifier`. The
+   trailer's ``/ID`` pair, which PDF/A requires (ISO 19005-3, 6.1.3) and which pypdf
+   writes only when the attribute is set (it sets it itself only when encrypting).
+   Ours is derived from the content, so builds stay byte-identical (qpdf's
+   ``--deterministic-id`` replaces it by its own, also derived from the content, when
+   the file is repacked). Used by archive.make_archival. Checked on pypdf 7.1.1.
 
 Everything else the pdf package does with pypdf uses documented API: ``PdfReader``,
 ``PdfWriter.add_page``/``insert_page``/``add_outline_item``/``add_metadata``/
@@ -34,7 +40,7 @@ the objects of :mod:`pypdf.generic`.
 from __future__ import annotations
 
 from pypdf import PdfWriter
-from pypdf.generic import ArrayObject, IndirectObject, PdfObject
+from pypdf.generic import ArrayObject, ByteStringObject, IndirectObject, PdfObject
 
 
 def add_indirect(writer: PdfWriter, obj: PdfObject) -> IndirectObject:
@@ -49,3 +55,8 @@ def named_destination_array(writer: PdfWriter) -> ArrayObject:
     in sorted order (ISO 32000-1, 7.9.6: the keys of a name tree are sorted).
     """
     return writer.get_named_dest_root()
+
+
+def set_file_identifier(writer: PdfWriter, identifier: bytes) -> None:
+    """Write ``identifier`` as both halves of the trailer's ``/ID`` (use 3)."""
+    writer._ID = ArrayObject([ByteStringObject(identifier), ByteStringObject(identifier)])

@@ -5,9 +5,9 @@ the total; the numbers are written afterwards, as one small content stream per p
 appended by pypdf. The same stream writes the page number of each page slot left
 by the front matter (:class:`reportgen.pdf.weasy.PageSlot`). The text is set in
 DejaVu Sans, subset to the characters used and embedded once (a simple TrueType
-font, WinAnsi encoding). If no DejaVu Sans font file
-is found, the stamp falls back to the non-embedded base-14 Helvetica, which every PDF
-viewer provides but which is not archival.
+font, WinAnsi encoding). If no DejaVu Sans font file is found the build stops with a
+message naming the package to install: report.pdf is an archive file (PDF/A-3b), where
+every font must be embedded, so there is no fallback to an unembedded standard font.
 
 Each page's original content is wrapped in ``q … Q`` so that the graphics state a
 part leaves behind (WeasyPrint flips the y axis) cannot move the stamp.
@@ -40,14 +40,17 @@ from pypdf.generic import (
     StreamObject,
 )
 
+from reportgen.errors import ReportgenError
 from reportgen.pdf.pypdf_access import add_indirect
 from reportgen.pdf.weasy import PageFrame, PageSlot
 
 STAMP_FONT_SIZE_PT: Final = 8.0
 STAMP_FONT_RESOURCE: Final = "/RgStampFont"
 STAMP_ENCODING: Final = "cp1252"  # WinAnsiEncoding
-FALLBACK_ADVANCE_EM: Final = 0.556  # Helvetica's digit width; the right edge is approximate
+FALLBACK_ADVANCE_EM: Final = 0.556  # a digit's width, for a character missing from the table
 CAP_HEIGHT_EM: Final = 0.73
+FONT_PACKAGE_HINT: Final = ("install DejaVu Sans (Debian/Ubuntu: apt-get install fonts-dejavu-core; "
+                             "other systems: the 'DejaVu Sans' font from their package manager)")
 DEJAVU_CANDIDATES: Final = (
     "/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf",
     "/usr/share/fonts/dejavu/DejaVuSans.ttf",
@@ -160,22 +163,17 @@ def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
     return StampFont(add_indirect(writer, font_dict), advance_em, embedded=True)
 
 
-def _base14_font(writer: PdfWriter) -> StampFont:
-    font_dict = DictionaryObject({
-        NameObject("/Type"): NameObject("/Font"),
-        NameObject("/Subtype"): NameObject("/Type1"),
-        NameObject("/BaseFont"): NameObject("/Helvetica"),
-        NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
-    })
-    return StampFont(add_indirect(writer, font_dict), {}, embedded=False)
-
-
 def make_stamp_font(writer: PdfWriter, texts: Iterable[str]) -> StampFont:
-    """Add the stamp font for ``texts`` to ``writer``: embedded DejaVu Sans, else Helvetica."""
+    """Add the stamp font for ``texts`` to ``writer``: DejaVu Sans, subset and embedded.
+
+    Raises :class:`~reportgen.errors.ReportgenError` when the font is not installed.
+    """
     chars = check_label_text(texts)
     font_path = find_dejavu_sans()
     if font_path is None:
-        return _base14_font(writer)
+        raise ReportgenError(
+            "the page-number stamp of report.pdf needs the font DejaVu Sans, which was not "
+            f"found; {FONT_PACKAGE_HINT}")
     return _embedded_font(writer, font_path, chars)
 
 

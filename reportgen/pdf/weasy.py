@@ -45,6 +45,11 @@ one test per item; run it before raising the WeasyPrint bound in pyproject.toml)
 7. ``HTML.etree_element`` (undocumented attribute), in :func:`parsed_tree`: the
    tree WeasyPrint parsed (or the one set by 6), searched for bookmark elements
    (``data-bookmark``). Checked on WeasyPrint 70.0.
+8. The sRGB ICC profile WeasyPrint ships for its own PDF/A output
+   (``weasyprint/pdf/sRGB2014.icc``, package data, not API), in
+   :func:`srgb_icc_profile`: the output intent of the archive file
+   (:mod:`reportgen.pdf.archive`) uses it, so no profile is downloaded or copied into
+   this repository. Checked on WeasyPrint 70.0.
 
 :mod:`reportgen.pdf.fetcher` uses only WeasyPrint's documented URL fetcher API (a
 subclass of ``weasyprint.urls.URLFetcher`` overriding ``fetch``).
@@ -53,6 +58,7 @@ subclass of ``weasyprint.urls.URLFetcher`` overriding ``fetch``).
 from __future__ import annotations
 
 import logging
+from importlib import resources
 import xml.etree.ElementTree as ET
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -229,6 +235,11 @@ def html_from_tree(root_element: Any, *, base_url: str, url_fetcher: Any) -> HTM
 def parsed_tree(source: HTML) -> Any:
     """The element tree of a WeasyPrint document (use 7)."""
     return source.etree_element
+
+
+def srgb_icc_profile() -> bytes:
+    """The bytes of the sRGB ICC profile shipped inside WeasyPrint (use 8)."""
+    return resources.files("weasyprint").joinpath("pdf", "sRGB2014.icc").read_bytes()
 
 
 # What this module makes of them.

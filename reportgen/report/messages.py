@@ -20,6 +20,14 @@ from reportgen import units
 
 # Stamped by reportgen.pdf at the bottom right of every page after merging.
 PAGE_LABEL: Final = "Page {page} of {pages}"
+# The same, with the start of the report's digest (SHA-256 of its manifest) before it.
+ARCHIVE_PAGE_LABEL: Final = "Digest {digest} \u00b7 Page {{page}} of {{pages}}"
+
+
+def archive_page_label(short_digest: str) -> str:
+    """The page stamp of an archive report: the digest's start, then "Page X of Y"."""
+    return ARCHIVE_PAGE_LABEL.format(digest=short_digest)
+
 
 TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # document
@@ -441,6 +449,16 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "apps_max_only": "\u2264 {high}",
     # appendix
     "appendix_heading": "Appendix",
+    "archive_intro": ("A copy of each of these files, of results.csv and summary.json, and a "
+                      "manifest listing every file with its size and SHA-256 (manifest.json) are "
+                      "attached to this PDF (open your PDF reader's attachment list). The "
+                      "report's digest, {digest}, printed on the cover and at the foot of every "
+                      "page, is the SHA-256 of that manifest; 'reportgen verify' checks all of "
+                      "this and judges the attached measurements again."),
+    "field_digest": "Report digest",
+    "signoff_digital": "Digital signature of this PDF file (signed copies only; 'reportgen verify' checks it)",
+    "signed_by": "Signed digitally by {signer} when this file was made.",
+    "digest_note": "SHA-256 of the manifest of the files inside this PDF",
     "instruments_heading": "Test instruments",
     "files_heading": "Input files",
     "files_intro": (

@@ -48,7 +48,7 @@ from reportgen.report.level_diagram import level_steps, power_level_svg
 from reportgen.report.otdr_figure import trace_svg
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.viewmodel import LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
+from reportgen.report.viewmodel import ArchiveView, LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
@@ -343,15 +343,17 @@ def build_report(
     applications: ProjectApplications | None = None,
     findings: Findings | None = None,
     otdr: OtdrAssessment | None = None,
+    archive: ArchiveView | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
 
     ``now`` and ``version`` are printed as given (determinism: same input, same HTML).
     ``applications`` (applications.assess_project) adds the applications and power
-    budget sections.
+    budget sections; ``archive`` (the files embedded in the PDF and the report's digest)
+    puts the digest on the cover and the list of files in the appendix.
     """
     view = build_view(project, judgement, now=now, version=version, assessed=applications,
-                      findings=findings, otdr=otdr)
+                      findings=findings, otdr=otdr, archive=archive)
     env = make_environment(project.report.templates, view.length_unit)
     renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications),
                          otdr_figures(project, view, otdr))

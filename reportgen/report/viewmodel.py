@@ -385,6 +385,14 @@ class InputFileView:
 
 
 @dataclass(frozen=True)
+class ArchiveView:
+    """The report's digest (SHA-256 of the manifest of the files inside the PDF) and signer."""
+
+    digest: str
+    signer: str = ""   # who signs the PDF (name on the certificate); "" when unsigned
+
+
+@dataclass(frozen=True)
 class ReportView:
     """Everything the templates may use, and nothing else."""
 
@@ -437,6 +445,7 @@ class ReportView:
     # the application table shown) whose status is "from memory"
     unconfirmed_values: int = 0
     input_files: tuple[InputFileView, ...] = ()  # every file read, by path
+    archive: ArchiveView | None = None    # None when no manifest was made (e.g. golden file)
 
 
 def slugify(text: str) -> str:
@@ -734,7 +743,8 @@ def _rule_views(audit: AuditSettings, findings: Findings) -> tuple[RuleView, ...
 def build_view(project: Project, judgement: Judgement, *, now: datetime, version: str,
                assessed: ProjectApplications | None = None,
                findings: Findings | None = None,
-               otdr: OtdrAssessment | None = None) -> ReportView:
+               otdr: OtdrAssessment | None = None,
+               archive: ArchiveView | None = None) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
 
     ``assessed`` (applications.assess_project) adds the applications and power budgets.
@@ -806,6 +816,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         inspections_given=project.inspections is not None,
         input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
                                         results=f.results, links=f.links) for f in project.input_files),
+        archive=archive,
     )
 
 

@@ -1,0 +1,233 @@
+"""report.pdf as an archive file: the requirements of PDF/A-3 (ISO 19005-3) checked on the
+merged file, read back with pikepdf (qpdf), a reader independent of the pypdf that wrote it.
+
+No validator program is run: each test checks one structural requirement and is named
+after the clause of ISO 19005-3 it stands for. Clause numbers and wordings marked
+"verified, secondary" were read in a public list of the PDF/A-2 and -3 validation rules
+that quotes the clauses (parts 2 and 3 share the numbering of these clauses); the others
+are "from memory". The file is a tiny report rendered by the real engine, with an
+internal link, an external link and attached files, so every kind of object the engine
+writes is present.
+"""
+from __future__ import annotations
+
+import io
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pikepdf
+import pytest
+
+from reportgen.errors import ReportgenError
+from reportgen.pdf import stamp
+from reportgen.pdf.archive import Attachment, read_archive, xmp_date
+from reportgen.pdf.engine import render_pdf
+
+CREATED = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
+TITLE = "Archive test report"
+AUTHOR = "Example Installer (fictional)"
+ATTACHMENTS = (
+    Attachment("project/links.csv", b"link_id,fiber\nA-1,OM4\n", "text/csv", "Source",
+               "input file"),
+    Attachment("results.csv", b"link_id,verdict\nA-1,pass\n", "text/csv", "Data", "results"),
+)
+PAGE = ("<html><head><style>@page { size: A5; margin: 15mm } "
+        "body { font-family: DejaVu Sans; font-size: 10pt }</style></head><body>%s</body></html>")
+
+
+def front(page_of: object, total_pages: int) -> str:
+    return (PAGE % '<h1>Cover</h1><p><a href="#sheet">to the sheet</a> '
+                       '<a href="https://example.invalid/">outside</a></p>')
+
+
+@pytest.fixture(scope="module")
+def archive_pdf(tmp_path_factory: pytest.TempPathFactory) -> bytes:
+    root = tmp_path_factory.mktemp("project")
+    return render_pdf(front, [(PAGE % '<h2 id="sheet">Sheet</h2><p>body</p>')], root=root,
+                      title=TITLE, created=CREATED, author=AUTHOR, attachments=ATTACHMENTS)
+
+
+@pytest.fixture(scope="module")
+def pdf(archive_pdf: bytes) -> pikepdf.Pdf:
+    return pikepdf.open(io.BytesIO(archive_pdf))
+
+
+def all_objects(pdf: pikepdf.Pdf) -> list[pikepdf.Object]:
+    return [obj for obj in pdf.objects if isinstance(obj, (pikepdf.Dictionary, pikepdf.Stream))]
+
+
+def test_6_1_2_header_is_pdf_1_x_followed_by_a_binary_comment(archive_pdf: bytes) -> None:
+    # ISO 19005-3, 6.1.2 (verified, secondary): "%PDF-1.n" with n in 0..7, then a comment
+    # line whose first four bytes are above 127.
+    first, second = archive_pdf.split(b"\n")[:2]
+    assert first[:7] == b"%PDF-1." and first[7:8] in b"01234567" and len(first) == 8
+    assert second[:1] == b"%" and all(byte > 127 for byte in second[1:5])
+
+
+def test_6_1_3_trailer_has_a_file_identifier_and_no_encryption(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.1.3 (verified, secondary): ID in the trailer; no Encrypt key.
+    identifier = pdf.trailer.get("/ID")
+    assert identifier is not None and len(identifier) == 2 and len(bytes(identifier[0])) > 0
+    assert "/Encrypt" not in pdf.trailer
+    assert not pdf.is_encrypted
+
+
+def test_6_6_xmp_metadata_identifies_pdfa_3b_with_title_author_dates(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.6.2.1 (catalog Metadata stream) and 6.6.4 (pdfaid:part, pdfaid:conformance)
+    # (from memory); the XMP values equal the document information (6.6.2.3, from memory).
+    assert pdf.Root.Metadata.Type == "/Metadata" and pdf.Root.Metadata.Subtype == "/XML"
+    meta = pdf.open_metadata()
+    assert meta["pdfaid:part"] == "3"
+    assert meta["pdfaid:conformance"] == "B"
+    assert meta["dc:title"] == TITLE == str(pdf.docinfo["/Title"])
+    assert meta["dc:creator"] == [AUTHOR] and str(pdf.docinfo["/Author"]) == AUTHOR
+    assert meta["xmp:CreateDate"] == "2030-01-15T09:30:00Z"
+    assert str(pdf.docinfo["/CreationDate"]) == "D:20300115093000Z"
+    assert meta["xmp:CreatorTool"] == str(pdf.docinfo["/Creator"])
+    assert meta["pdf:Producer"] == str(pdf.docinfo["/Producer"])
+
+
+def test_6_2_2_output_intent_is_srgb_with_an_embedded_icc_profile(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.2.2 (from memory): a GTS_PDFA1 output intent with a DestOutputProfile.
+    # ICC.1:2010, 7.2 (from memory): header bytes 16-19 the colour space ("RGB "), bytes
+    # 36-39 the file signature "acsp"; N = 3 components for RGB (ISO 32000-1, 8.6.5.5).
+    intents = pdf.Root.OutputIntents
+    assert len(intents) == 1
+    intent = intents[0]
+    assert intent.S == "/GTS_PDFA1"
+    assert "sRGB" in str(intent.OutputConditionIdentifier)
+    profile = intent.DestOutputProfile
+    assert int(profile.N) == 3
+    data = profile.read_bytes()
+    assert data[16:20] == b"RGB " and data[36:40] == b"acsp"
+
+
+def _font_file(font: pikepdf.Dictionary) -> bool:
+    if font.get("/Subtype") == "/Type0":
+        return all(_font_file(descendant) for descendant in font.DescendantFonts)
+    descriptor = font.get("/FontDescriptor")
+    return descriptor is not None and any(
+        key in descriptor for key in ("/FontFile", "/FontFile2", "/FontFile3"))
+
+
+def test_6_2_11_4_every_font_is_embedded_the_page_stamp_included(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.2.11.4.1 (from memory): the font programs of all fonts used shall be
+    # embedded. Type 3 fonts are drawn by content streams and need none.
+    fonts = [obj for obj in all_objects(pdf)
+             if obj.get("/Type") == "/Font" and obj.get("/Subtype") != "/Type3"]
+    assert len(fonts) >= 2
+    assert any("DejaVuSans" in str(font.BaseFont) and font.Subtype == "/TrueType"
+               for font in fonts)   # the page stamp's font
+    top = fonts
+    assert [str(font.BaseFont) for font in top if not _font_file(font)] == []
+
+
+def test_6_3_2_every_annotation_is_printed_and_not_hidden(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.3.2 (verified, secondary): the F key's Print flag set; Hidden,
+    # Invisible, ToggleNoView and NoView clear. ISO 32000-1, 12.5.3: Invisible 1,
+    # Hidden 2, Print 4, NoView 32, ToggleNoView 256.
+    annotations = [annotation for page in pdf.pages for annotation in page.get("/Annots", [])]
+    assert {str(annotation.Subtype) for annotation in annotations} == {"/Link"}
+    assert len(annotations) == 2   # the internal and the external link
+    for annotation in annotations:
+        flags = int(annotation.F)
+        assert flags & 4 and not flags & (1 | 2 | 32 | 256)
+
+
+def test_6_8_embedded_files_are_associated_with_mime_type_date_and_relationship(
+        pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.8 (verified, secondary): each embedded file stream has its MIME type as
+    # Subtype, each file specification an AFRelationship, and each is associated with the
+    # document (catalog AF). ModDate in Params (from memory: required by 6.8).
+    associated = {str(spec.UF): spec for spec in pdf.Root.AF}
+    assert set(associated) == {"project/links.csv", "results.csv"}
+    assert set(pdf.attachments) == set(associated)
+    expected = {"project/links.csv": ("/Source", "/text/csv"), "results.csv": ("/Data", "/text/csv")}
+    for name, spec in associated.items():
+        stream = spec.EF.F
+        assert (str(spec.AFRelationship), str(stream.Subtype)) == expected[name]
+        assert str(stream.Params.ModDate).startswith("D:20300115093000")
+        assert "/Desc" in spec
+    assert pdf.attachments["results.csv"].get_file().read_bytes() == ATTACHMENTS[1].data
+
+
+def test_6_5_and_6_6_no_javascript_no_launch_no_external_file_references(
+        pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.5.1 and 6.6.1 (from memory): no JavaScript, no Launch, ImportData or
+    # ResetForm actions; 6.8 (from memory): a file specification refers to an embedded file.
+    forbidden_actions = {"/JavaScript", "/Launch", "/ImportData", "/ResetForm", "/GoToR"}
+    for obj in all_objects(pdf):
+        assert "/JS" not in obj and "/JavaScript" not in obj
+        assert str(obj.get("/S", "")) not in forbidden_actions
+        if obj.get("/Type") == "/Filespec":
+            assert "/EF" in obj
+    assert "/AA" not in pdf.Root and "/OpenAction" not in pdf.Root
+    assert "/JavaScript" not in pdf.Root.get("/Names", {})
+
+
+def test_the_file_claims_level_b_only_because_it_has_no_structure_tree(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.7 (from memory): level A needs a tagged file; ours is untagged, so the
+    # XMP must not claim A (or U, which needs Unicode maps for every font, the stamp's too).
+    assert "/StructTreeRoot" not in pdf.Root
+    assert pdf.open_metadata()["pdfaid:conformance"] == "B"
+
+
+def test_two_renders_with_attachments_are_byte_identical(archive_pdf: bytes,
+                                                         tmp_path: Path) -> None:
+    again = render_pdf(front, [(PAGE % '<h2 id="sheet">Sheet</h2><p>body</p>')],
+                       root=tmp_path, title=TITLE, created=CREATED, author=AUTHOR,
+                       attachments=ATTACHMENTS)
+    assert again == archive_pdf
+
+
+def test_read_archive_returns_the_files_relationships_and_page_texts(archive_pdf: bytes) -> None:
+    contents = read_archive(archive_pdf)
+    assert contents.files == {a.name: a.data for a in ATTACHMENTS}
+    assert contents.relationships == {"project/links.csv": "Source", "results.csv": "Data"}
+    assert contents.pdfa_part == "3"
+    assert "Cover" in contents.page_texts[0] and "Page 2 of 2" in contents.page_texts[1]
+
+
+def test_read_archive_refuses_what_is_not_a_pdf() -> None:
+    with pytest.raises(ReportgenError, match="not a readable PDF"):
+        read_archive(b"project_id,name\nthis is a CSV file\n")
+
+
+def test_without_dejavu_sans_the_stamp_stops_with_the_package_to_install(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    # An unembedded standard font would break ISO 19005-3, 6.2.11.4.1: no fallback.
+    monkeypatch.setattr(stamp, "find_dejavu_sans", lambda: None)
+    from pypdf import PdfWriter
+    with pytest.raises(ReportgenError, match="fonts-dejavu-core"):
+        stamp.make_stamp_font(PdfWriter(), ["Page 1 of 1"])
+
+
+@pytest.mark.parametrize(("moment", "expected"), [
+    # ISO 8601 extended format with a UTC designator or offset (XMP Part 1, 8.2.1.6 Date,
+    # from memory)
+    (datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc), "2030-01-15T09:30:00Z"),
+    (datetime(2030, 1, 15, 9, 30), "2030-01-15T09:30:00"),
+])
+def test_xmp_date(moment: datetime, expected: str) -> None:
+    assert xmp_date(moment) == expected
+
+
+def test_attachment_relationship_is_source_or_data() -> None:
+    with pytest.raises(ValueError, match="relationship"):
+        Attachment("x.csv", b"", "text/csv", "Alternative", "x")
+
+
+@pytest.mark.parametrize("xmp", [
+    # RDF 1.1 XML Syntax, 2.2 (property elements) and 2.5 (property attributes), from memory:
+    # the same property written as an element or as an attribute of rdf:Description.
+    b'<?xpacket begin="" id="W5M0MpCehiHzreSzNTczkc9d"?><x:xmpmeta xmlns:x="adobe:ns:meta/">'
+    b'<rdf:RDF xmlns:rdf="http://www.w3.org/1999/02/22-rdf-syntax-ns#"><rdf:Description '
+    b'xmlns:pdfaid="http://www.aiim.org/pdfa/ns/id/"><pdfaid:part>3</pdfaid:part>'
+    b'</rdf:Description></rdf:RDF></x:xmpmeta><?xpacket end="w"?>',
+    b'<x:xmpmeta xmlns:x="adobe:ns:meta/"><rdf:RDF '
+    b'xmlns:rdf="http://www.w3.org/1999/02/22-rdf-syntax-ns#"><rdf:Description '
+    b'xmlns:pdfaid="http://www.aiim.org/pdfa/ns/id/" pdfaid:part="3"/></rdf:RDF></x:xmpmeta>',
+])
+def test_pdfa_part_is_read_in_element_and_attribute_form(xmp: bytes) -> None:
+    from reportgen.pdf.archive import pdfa_part
+    assert pdfa_part(xmp) == "3"
