@@ -288,6 +288,16 @@ class ClusterSlots:
                     f"body part {task.index + 1} was not back from the cluster after "
                     f"{PART_TIMEOUT_S:.0f} s")
 
+    def _answer(self, future: Any) -> Any:
+        """A finished task's answer. Its data sits on the worker that rendered it; when that
+        worker dies before we fetch it, Dask renders the part again elsewhere, and with no
+        worker left at all it would wait for ever: poll, and let the watch give up."""
+        while True:
+            try:
+                return future.result(timeout=POLL_S)
+            except TimeoutError:  # asyncio's and distributed's TimeoutError are this one
+                self._watch()
+
     def _result(self, future: Any, task: _Task) -> RenderedPart | None:
         from distributed import KilledWorker
 
@@ -301,7 +311,7 @@ class ClusterSlots:
             raise ReportgenError(
                 f"rendering {part_name} on the cluster failed ({type(error).__name__}: {error}); "
                 f"{INSTALL_HINT}") from None
-        status, worker, fingerprint, *payload = future.result()
+        status, worker, fingerprint, *payload = self._answer(future)
         self.session.check_answer(worker, fingerprint)
         if status == "failed":
             message, details = payload
