@@ -179,6 +179,49 @@ def history(site: str, link_id: str, db_url: str | None, threshold_db: float, fm
         console.print(table)
 
 
+@archive.command()
+@DB_OPTION
+@_threshold()
+@click.option("--format", "fmt", type=click.Choice(["table", "csv", "json"]), default="table",
+              show_default=True)
+def retests(db_url: str | None, threshold_db: float, fmt: str) -> None:
+    """Per contractor: how the links it handed over fared at the next campaign.
+
+    Every link tested in more than one campaign gives one pair per campaign after the first;
+    the pair counts for the contractor of the earlier campaign. A pair failed when the later
+    campaign's verdict is fail, and degraded when a result is worse by more than the threshold
+    (the comparison of 'reportgen compare'). Highest share of failed or degraded first.
+    """
+    from reportgen.archive.store import retest_records
+
+    records = retest_records(_archive(db_url), threshold_db)
+    rows = [record.as_json() for record in records]
+    if fmt == "json":
+        click.echo(json.dumps({"format": 1, "threshold_db": threshold_db, "contractors": rows},
+                              indent=2, ensure_ascii=False))
+        return
+    if fmt == "csv":
+        buffer = io.StringIO()
+        writer = csv.DictWriter(buffer, fieldnames=list(RETEST_COLUMNS), lineterminator="\n")
+        writer.writeheader()
+        writer.writerows(rows)
+        click.echo(buffer.getvalue(), nl=False)
+        return
+    if not rows:
+        _out().print("No link of the archive was tested in more than one campaign.")
+        return
+    table = Table(show_header=True, header_style="bold")
+    for column in RETEST_COLUMNS:
+        table.add_column(column.replace("_", " "), justify="left" if column == "contractor"
+                         else "right")
+    for row in rows:
+        table.add_row(*(str(row[column]) for column in RETEST_COLUMNS))
+    _out().print(table)
+
+
+RETEST_COLUMNS = ("contractor", "retests", "failed", "degraded", "failed_or_degraded")
+
+
 def parse_age(text: str, today: date) -> date:
     """'5y', '18m' or '90d' before TODAY."""
     cleaned = text.strip().lower()

@@ -111,6 +111,29 @@ def test_history_oldest_first_with_the_change(archive_url, campaigns, capsys):
     assert status == 2 and "not in the archive; it is known at: North depot" in err
 
 
+def test_retests_rank_contractors_by_what_failed_or_degraded_later(archive_url, campaigns,
+                                                                    tmp_path, capsys):
+    # A fourth campaign: South 2032 re-tests S-1 (now passing, 3.00 -> 2.50 dB, better).
+    south_2032 = write_build_output(tmp_path / "south-2032", [
+        ("S-1", "pass", "OM3", [], _rows(2.50, "2032-05-01T09:00")),
+    ], site=SITE_S, title="South re-test", contractor="Birch Testing (invented)")
+    run(capsys, "archive", "add", *campaigns, south_2032, "--db", archive_url)
+    document = _json(capsys, "archive", "retests", "--db", archive_url, "--format", "json")
+    # Hand count: Alder handed over N-1 (re-tested 2031: +0.70 dB > 0.60 dB, degraded, pass)
+    # and S-1 (re-tested 2032: pass, -0.50 dB, neither): 2 pairs, 0 failed, 1 degraded.
+    # Birch's campaigns were never followed by another: no pair. N-2 and N-3: one campaign.
+    assert document["contractors"] == [
+        {"contractor": "Alder Fiber (invented)", "retests": 2, "failed": 0, "degraded": 1,
+         "failed_or_degraded": 1}]
+    # with a 1.0 dB threshold the +0.70 dB change is no longer degraded
+    document = _json(capsys, "archive", "retests", "--db", archive_url, "--format", "json",
+                     "--threshold", "1.0")
+    assert document["contractors"][0]["degraded"] == 0
+    status, out, _ = run(capsys, "archive", "retests", "--db", archive_url, "--format", "csv")
+    assert status == 0 and out.splitlines() == [
+        "contractor,retests,failed,degraded,failed_or_degraded", "Alder Fiber (invented),2,0,1,1"]
+
+
 def test_due_counts_age_from_the_latest_test(archive_url, campaigns, capsys):
     run(capsys, "archive", "add", *campaigns, "--db", archive_url)
     # as of 2029-06-01, 5 years back is 2024-06-01: N-2 (2024-03-01) and S-1 (2019) are due;

@@ -393,3 +393,68 @@ def first_and_latest_losses(archive: Archive) -> list[dict[str, Any]]:
              "after": counted_losses(rows.get((latest.campaign_id, ref), []))}
             for ref, (first, latest) in pairs.items()]
 
+
+
+@dataclass(frozen=True)
+class RetestRecord:
+    """How one contractor's handed-over links fared when tested again later."""
+
+    contractor: str
+    retests: int  # (link, later campaign) pairs: a link this contractor's campaign tested last
+    failed: int  # ... whose next campaign's verdict is fail
+    degraded: int  # ... with a result worse by more than the threshold (compare_link)
+
+    @property
+    def failed_or_degraded(self) -> int:
+        return self.failed + self.degraded - self.both
+
+    both: int = 0  # pairs counted in failed and in degraded
+
+    def as_json(self) -> dict[str, Any]:
+        return {"contractor": self.contractor, "retests": self.retests, "failed": self.failed,
+                "degraded": self.degraded, "failed_or_degraded": self.failed_or_degraded}
+
+
+def retest_records(archive: Archive, threshold_db: float) -> list[RetestRecord]:
+    """Per contractor: how often a link it tested failed or degraded at the next campaign.
+
+    Each link's campaigns are taken oldest first; every pair of consecutive campaigns is
+    compared by the comparison rule of ``reportgen compare`` (:func:`compare_link`) and
+    counted for the contractor of the earlier one (who handed the link over). Sorted by
+    the share of pairs that failed or degraded, highest first.
+    """
+    s, r, c = t.link_states, t.results, t.campaigns
+    with archive.connect(write=False) as conn:
+        if not archive.check_schema(conn, create=False):
+            return []
+        states = conn.execute(
+            sa.select(s.c.link_ref, s.c.campaign_id, s.c.verdict, c.c.contractor,
+                      t.links.c.link_id)
+            .join(c, c.c.id == s.c.campaign_id)
+            .join(t.links, t.links.c.id == s.c.link_ref)
+            .order_by(s.c.link_ref, sa.func.coalesce(s.c.tested_last, ""), s.c.campaign_id)).all()
+        rows = conn.execute(sa.select(r.c.campaign_id, r.c.link_ref, r.c.strand, r.c.wavelength_nm,
+                                      r.c.direction, r.c.loss_db, r.c.verdict)
+                            .order_by(r.c.campaign_id, r.c.row_number)).all()
+    by_pair: dict[tuple[int, int], list[Any]] = {}
+    for row in rows:
+        by_pair.setdefault((row.campaign_id, row.link_ref), []).append(_KeyedRow(row))
+    sequences: dict[int, list[Any]] = {}
+    for state in states:
+        sequences.setdefault(state.link_ref, []).append(state)
+    counts: dict[str, list[int]] = {}
+    for ref, sequence in sequences.items():
+        for earlier, later in zip(sequence, sequence[1:]):
+            change = compare_link(
+                earlier.link_id, counted_losses(by_pair.get((earlier.campaign_id, ref), [])),
+                counted_losses(by_pair.get((later.campaign_id, ref), [])),
+                earlier.verdict, later.verdict, threshold_db)
+            failed = later.verdict == "fail"
+            tally = counts.setdefault(earlier.contractor or "(contractor not recorded)",
+                                      [0, 0, 0, 0])
+            tally[0] += 1
+            tally[1] += failed
+            tally[2] += change.degraded
+            tally[3] += failed and change.degraded
+    records = [RetestRecord(name, *tally[:3], both=tally[3]) for name, tally in counts.items()]
+    return sorted(records, key=lambda rec: (-rec.failed_or_degraded / rec.retests, rec.contractor))
