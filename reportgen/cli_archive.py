@@ -58,14 +58,16 @@ def archive() -> None:
                              "its summary.json, else its title).")
 @DB_OPTION
 def add(paths: Sequence[Path], site: str | None, db_url: str | None) -> None:
-    """Add build output folders (summary.json + results.csv), each in one transaction.
+    """Add builds, each in one transaction: output folders (summary.json + results.csv) or
+    report.pdf files, which carry both inside.
 
-    The same build added again is recognised by the digest of its two files and stored once.
+    The same build added again is recognised by the digest of its two files and stored once,
+    whether it came as its folder or as its report.pdf.
     """
-    from reportgen.archive.campaign import read_build_folder
+    from reportgen.archive.campaign import read_build
     from reportgen.archive.store import add_campaign
 
-    campaigns = [read_build_folder(path) for path in paths]  # all checked before any write
+    campaigns = [read_build(path) for path in paths]  # all checked before any write
     store = _archive(db_url, create=True)
     for campaign in campaigns:
         added = add_campaign(store, campaign, site)

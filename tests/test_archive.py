@@ -404,3 +404,21 @@ def test_sigkill_during_add_leaves_the_campaign_whole_or_absent(archive_url, tmp
     # stored the campaign whole); the run left alone stored it whole
     assert all(opened or done for opened, done in outcomes[:3])
     assert outcomes[-1][1] is True
+
+
+@pytest.mark.slow
+def test_a_report_pdf_adds_the_build_it_carries(archive_url, tmp_path, capsys, monkeypatch):
+    # The archive-grade report.pdf embeds summary.json and results.csv: adding the PDF and
+    # then its build folder stores the build once (same digest of the two files).
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1924992000")  # 2031-01-01, after the fixture's tests
+    out = tmp_path / "out"
+    status, _, err = run(capsys, "build", REPO / "tests" / "fixtures" / "small_project", "-o", out)
+    assert status == 0, err
+    status, out_text, err = run(capsys, "archive", "add", out / "report.pdf", "--db", archive_url)
+    assert status == 0 and "added as campaign 1" in out_text, err
+    status, out_text, _ = run(capsys, "archive", "add", out, "--db", archive_url)
+    assert status == 0 and "already in the archive (campaign 1" in out_text
+    not_ours = tmp_path / "other.pdf"
+    not_ours.write_bytes(b"%PDF-1.4\n%%EOF\n")
+    status, _, err = run(capsys, "archive", "add", not_ours, "--db", archive_url)
+    assert status == 2 and "other.pdf" in err

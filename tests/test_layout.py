@@ -13,7 +13,7 @@ ALLOWED = {
     "report": {"inputs", "engine"},
     "pdf": set(),
     "export": {"engine"},
-    "archive": {"engine", "export"},
+    "archive": {"engine", "export", "pdf"},
 }
 
 

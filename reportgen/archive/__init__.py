@@ -6,5 +6,6 @@ first), stores it with SQLAlchemy core in SQLite or PostgreSQL, answers question
 campaigns and compares two campaigns link by link (``compare.py``, the one comparison rule,
 used by ``reportgen compare`` and by ``reportgen archive history``).
 
-May import: model, errors, units, engine, export.
+May import: model, errors, units, engine, export, and pdf (to read the data a report.pdf
+carries).
 """

@@ -88,6 +88,9 @@ def campaign_digest(summary_bytes: bytes, results_bytes: bytes) -> str:
     return digest.hexdigest()
 
 
+MAX_PDF_BYTES: Final = 2**30  # largest report.pdf read by 'archive add' (1 GB)
+
+
 def read_build_folder(folder: Path) -> Campaign:
     """Read FOLDER/summary.json and FOLDER/results.csv as a build wrote them."""
     folder = Path(folder)
@@ -109,6 +112,34 @@ def read_build_folder(folder: Path) -> Campaign:
                                  "not a build output")
         data[name] = path.read_bytes()
     return parse_campaign(str(folder), data[SUMMARY], data[RESULTS])
+
+
+def read_build(path: Path) -> Campaign:
+    """A build output folder, or a report.pdf that carries its summary.json and results.csv
+    (the archive-grade PDF embeds both; see docs/project-format.md §10)."""
+    path = Path(path)
+    if path.is_file() and path.suffix.lower() == ".pdf":
+        return read_report_pdf(path)
+    return read_build_folder(path)
+
+
+def read_report_pdf(path: Path) -> Campaign:
+    """The campaign embedded in a report.pdf written by 'reportgen build'."""
+    from reportgen.export.manifest import RESULTS_NAME, SUMMARY_NAME
+    from reportgen.pdf.archive import read_archive
+
+    if path.stat().st_size > MAX_PDF_BYTES:
+        raise ReportgenError(f"{path}: larger than {MAX_PDF_BYTES // 2**20} MB; not read")
+    try:
+        files = read_archive(path.read_bytes()).files
+    except ReportgenError as error:
+        raise ReportgenError(f"{path}: {error}") from None
+    missing = [name for name in (SUMMARY_NAME, RESULTS_NAME) if name not in files]
+    if missing:
+        raise ReportgenError(f"{path}: expected a report.pdf written by 'reportgen build' with "
+                             f"summary.json and results.csv inside; missing: {', '.join(missing)} "
+                             f"(give the build output folder instead)")
+    return parse_campaign(str(path), files[SUMMARY_NAME], files[RESULTS_NAME])
 
 
 def parse_campaign(label: str, summary_bytes: bytes, results_bytes: bytes) -> Campaign:
