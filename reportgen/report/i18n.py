@@ -1,7 +1,7 @@
 """The report's language: gettext catalogues and the locale's number and date forms.
 
 The words of the report are English in the source (``reportgen/report/messages.py`` and
-its siblings, marked with :func:`N_` and :func:`Np_` so that Babel extracts them, and the
+its siblings, marked with :func:`N_`, :func:`Np_` and :func:`C_` so that Babel extracts them, and the
 templates, which may call ``_``/``gettext``/``ngettext`` of ``jinja2.ext.i18n``). Their
 translations are the catalogues ``reportgen/locale/<code>/LC_MESSAGES/reportgen.po``
 (DEVELOPERS.md "Translate the report"); a built wheel carries them compiled (``.mo``,
@@ -43,6 +43,24 @@ def N_(text: str) -> str:
     return text
 
 
+class Contextual(str):
+    """A catalogue text whose English reads the same as another's but whose translation
+    may differ (``Position`` of a person, ``Position`` along a fiber): translated with
+    pgettext under its context."""
+
+    context: str
+
+    def __new__(cls, context: str, text: str) -> Contextual:
+        made = super().__new__(cls, text)
+        made.context = context
+        return made
+
+
+def C_(context: str, text: str) -> Contextual:
+    """Mark ``text`` for translation under ``context`` (msgctxt)."""
+    return Contextual(context, text)
+
+
 def Np_(singular: str, plural: str) -> tuple[str, str]:
     """Mark a text with a count (singular, plural) for translation with ngettext."""
     return (singular, plural)
@@ -80,6 +98,8 @@ class Language:
     translations: gettext.NullTranslations
 
     def gettext(self, text: str) -> str:
+        if isinstance(text, Contextual):
+            return self.translations.pgettext(text.context, text)
         return self.translations.gettext(text)
 
     def ngettext(self, singular: str, plural: str, count: int) -> str:

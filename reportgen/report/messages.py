@@ -18,7 +18,7 @@ from types import MappingProxyType
 from typing import Final
 
 from reportgen.report.formats import NO_VALUE, NOT_GIVEN
-from reportgen.report.i18n import ENGLISH, N_, Language, Np_
+from reportgen.report.i18n import C_, ENGLISH, N_, Language, Np_
 from reportgen.report.messages_appendix import APPENDIX_TEXT, GLOSSARY, SAFETY
 from reportgen.report.messages_apps import APPS_TEXT
 
@@ -125,7 +125,7 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "signoff_contractor": N_("For the installer"),
     "signoff_customer": N_("For the customer"),
     "signoff_name": N_("Name"),
-    "signoff_role": N_("Position"),
+    "signoff_role": C_("a person's position", "Position"),
     "signoff_signature": N_("Signature"),
     "signoff_date": N_("Date"),
     # contents
@@ -278,7 +278,7 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr_files": N_("Source: {files}"),
     "otdr_caption": N_("Both directions on one distance axis from end A (from B mirrored); each vertical stroke spans the lowest and highest sample of its pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails."),
     "col_event_no": N_("No."),
-    "col_position": N_("Position"),
+    "col_position": C_("along the fiber", "Position"),
     "col_event": N_("Event"),
     "col_loss_ab": N_("Loss A→B"),
     "col_loss_ba": N_("Loss B→A"),

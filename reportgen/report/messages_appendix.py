@@ -86,6 +86,7 @@ APPENDIX_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "cover_values_confirmed": N_("Every published value this report uses was checked against a published reproduction of its standard\u2019s table (see the appendix)."),
     "limits_id": N_("Identifier"),
     "limits_origin": N_("Origin"),
+    "limits_origin_builtin": N_("built-in"),
     "limits_connection": N_("Mated connection allowance"),
     "limits_splice": N_("Splice allowance"),
     "limits_table_all": N_("all"),

@@ -87,6 +87,9 @@ COUNTED: Final[Mapping[str, tuple[str, str]]] = MappingProxyType({
     "pairs": Np_("{count} strand and wavelength pair", "{count} strand and wavelength pairs"),
 })
 STRAND_END: Final = N_("strand {strand} end {end}")
+# a link's plant (reportgen.model.Plant) inside a finding's sentence: "... for {plant} cable"
+PLANT_WORD: Final[Mapping[str, str]] = MappingProxyType({"inside": N_("inside"),
+                                                         "outside": N_("outside")})
 INSTRUMENT_DUE: Final = N_("{name} (due {day})")
 
 
@@ -129,6 +132,8 @@ def finding_text(finding, lang: Language = ENGLISH) -> str:
         key = "repeated-readings-technician"
     elif key == "cords-not-verified" and values.get("cord_check_db") is not None:
         key = "cords-over-limit"
+    elif key == "length-implausible" and values.get("plant") in PLANT_WORD:
+        values["plant"] = lang.gettext(PLANT_WORD[str(values["plant"])])
     elif key == "reference-method":
         words = Words(lang)
         values.update({name: ", ".join(words.get(f"method_name_{method}", method)
