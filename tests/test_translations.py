@@ -306,3 +306,66 @@ def test_the_page_stamp_and_its_font_cover_the_languages_characters():
     assert labels[1] == "Prüfsumme 0123abcd · Seite 12 von 34"
     assert labels[2] == "Empreinte 0123abcd · Page 12 sur 34"
     assert labels[3] == "Huella 0123abcd · Página 12 de 34"
+
+
+# ---------------------------------------------------------------- PDF and package (slow)
+
+
+@pytest.mark.slow
+def test_a_german_pdf_and_data_files_identical_to_the_english_build(make_project, tmp_path):
+    """report.pdf follows the language (/Lang, XMP dc:language, outline, page stamp);
+    results.csv and summary.json are byte for byte those of the English build."""
+    import pypdf
+
+    root = make_project()
+    english, german = tmp_path / "en", tmp_path / "de"
+    pipeline.build(root, english, jobs=1, cache=False)
+    pipeline.build(root, german, jobs=1, cache=False, language="de")
+    for name in ("results.csv", "summary.json"):
+        assert (german / name).read_bytes() == (english / name).read_bytes()
+    reader = pypdf.PdfReader(german / "report.pdf")
+    assert reader.trailer["/Root"]["/Lang"] == "de"
+    assert b"<dc:language><rdf:Bag><rdf:li>de</rdf:li></rdf:Bag></dc:language>" in \
+        reader.trailer["/Root"]["/Metadata"].get_object().get_data()
+    outline = [item.title for item in reader.outline if not isinstance(item, list)]
+    assert outline[:4] == ["Abnahmeprotokoll Glasfaserstrecken", "Inhalt",
+                           "Strecken mit Handlungsbedarf", "Streckenverzeichnis"]
+    pages = len(reader.pages)
+    assert f"Seite 1 von {pages}" in reader.pages[0].extract_text()
+    assert f"Seite {pages} von {pages}" in reader.pages[-1].extract_text()
+    english_outline = [item.title for item in pypdf.PdfReader(english / "report.pdf").outline
+                       if not isinstance(item, list)]
+    assert set(outline) & set(english_outline) == set()
+
+
+@pytest.mark.slow
+def test_the_wheel_carries_the_compiled_catalogues(tmp_path):
+    """hatch_build.py compiles every .po into the wheel; the installed package reads the .mo."""
+    import importlib.util
+    import os
+    import subprocess
+    import sys
+    import zipfile
+
+    if importlib.util.find_spec("hatchling") is None:
+        pytest.skip("hatchling (the build backend) is not installed")
+    built = subprocess.run([sys.executable, "-m", "pip", "wheel", str(ROOT), "--no-deps",
+                            "--no-build-isolation", "-w", str(tmp_path / "dist"), "-q"],
+                           capture_output=True, text=True)
+    assert built.returncode == 0, built.stderr
+    wheel = next((tmp_path / "dist").glob("reportgen-*.whl"))
+    names = zipfile.ZipFile(wheel).namelist()
+    assert sorted(n for n in names if "/locale/" in n) == [
+        f"reportgen/locale/{code}/LC_MESSAGES/reportgen.mo" for code in ("de", "es", "fr")]
+    target = tmp_path / "site"
+    installed = subprocess.run([sys.executable, "-m", "pip", "install", "--no-deps", "-q",
+                                "--target", str(target), str(wheel)], capture_output=True, text=True)
+    assert installed.returncode == 0, installed.stderr
+    probe = ("from reportgen.report import i18n, messages\n"
+             "assert not i18n.catalogue_path('fr').exists() and i18n.catalogue_path('fr', '.mo').is_file()\n"
+             "print(i18n.language('fr').gettext(messages.PAGE_LABEL))\n")
+    env = {**os.environ, "PYTHONPATH": str(target)}
+    done = subprocess.run([sys.executable, "-c", probe], cwd=tmp_path, env=env,
+                          capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "Page {page} sur {pages}"
