@@ -285,7 +285,7 @@ def report(db_url: str | None, output: Path, age: str, as_of: datetime | None,
     from reportgen.archive import html, store
     from reportgen.archive.compare import compare_link
     from reportgen.export.atomic import write_outputs
-    from reportgen.report.messages import SAFETY
+    from reportgen.report.messages_appendix import SAFETY
     from reportgen.report.render import templates_dir
 
     archive_ = _archive(db_url)
@@ -456,7 +456,7 @@ def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: flo
     from reportgen.archive.compare import (comparison_csv_bytes, comparison_json,
                                            comparison_json_bytes, compare_campaigns)
     from reportgen.export.atomic import write_outputs
-    from reportgen.report.messages import SAFETY
+    from reportgen.report.messages_appendix import SAFETY
     from reportgen.report.render import templates_dir
 
     before, after = load_campaign(baseline), load_campaign(retest)

@@ -32,6 +32,7 @@ from reportgen.model import (
     LimitSet,
     Logo,
     Paper,
+    ReportLanguage,
     ProjectInfo,
     ReferenceMethod,
     ReportOptions,
@@ -53,7 +54,7 @@ KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "testing.otdr": OTDR_KEYS,
     "testing.audit": tuple(audit.AUDIT_KEYS),
     "testing.period": ("start", "end"),
-    "report": ("paper", "templates"),
+    "report": ("paper", "templates", "language"),
 }
 REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
                                   ("project.contractor", "name"), ("testing", "limits"),
@@ -270,10 +271,11 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
     if value is None:
         return ReportOptions()
     if not isinstance(value, Mapping):
-        check.problem("report", "a mapping with paper and/or templates", value)
+        check.problem("report", "a mapping with paper, templates and/or language", value)
         return None
     check.misspelt_keys(value, "report")
     paper = check.choice(value, "paper", "report.paper", Paper, Paper.A4)
+    language = check.choice(value, "language", "report.language", ReportLanguage, ReportLanguage.EN)
     templates = None
     if value.get("templates") is not None:
         templates = check.inside_path(value["templates"], "report.templates", "a templates folder")
@@ -289,4 +291,6 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
                 templates = None
         if templates is None:
             return None
-    return None if paper is None else ReportOptions(paper=paper, templates=templates)
+    if paper is None or language is None:
+        return None
+    return ReportOptions(paper=paper, templates=templates, language=language)

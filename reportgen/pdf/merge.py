@@ -188,7 +188,7 @@ class PageCopier:
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
                title: str, page_label: str, created: datetime, compact: bool = True,
                author: str = "", attachments: Sequence[Attachment] = (),
-               seal: Seal | None = None) -> bytes:
+               seal: Seal | None = None, language: str = "en") -> bytes:
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
 
     Adds the page-number stamps, links, outline and metadata, then makes the merged
@@ -196,6 +196,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     with ``compact``, merges identical objects and repacks with qpdf when installed.
     ``seal(pdf, places)``, given, signs the finished file (:mod:`reportgen.pdf.sign`);
     ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).
+    ``language`` is written as the document catalog's /Lang (PDF 1.4+, read by screen readers).
     """
     for index, page in enumerate(PdfReader(io.BytesIO(front.pdf)).pages):
         writer.insert_page(page, index)
@@ -217,8 +218,9 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
         "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
         "/CreationDate": date, "/ModDate": date,
     })
+    writer.root_object[NameObject("/Lang")] = TextStringObject(language)
     make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
-                  created=created, attachments=attachments)
+                  created=created, attachments=attachments, language=language)
     if compact:
         writer.compress_identical_objects()
     buffer = io.BytesIO()
