@@ -542,12 +542,12 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr_length_missing": "The trace shows no fiber end: length not measured.",
     "otdr_total": "End-to-end loss by the instrument: {value} dB.",
     "otdr_files": "Source: {files}",
-    "otdr_caption": "Both directions on one distance axis from end A (from B mirrored); each vertical stroke spans the lowest and highest sample of its pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails.",
+    "otdr_caption": "In the figures below both directions share one distance axis from end A (from B mirrored); the trace passes through the lowest and highest sample of every pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails. Checks of a strand that do not hold are listed with the link\u2019s audit findings.",
     "col_event_no": "No.",
     "col_position": "Position",
     "col_event": "Event",
-    "col_loss_ab": "Loss A→B",
-    "col_loss_ba": "Loss B→A",
+    "col_loss_one_way": "Loss A→B / B→A",
+    "col_verdict_notes": "Verdict, notes",
     "col_loss_avg": "Average",
     "col_lsa": "Re-measured (LSA)",
     "col_reflectance": "Reflectance",
@@ -563,10 +563,6 @@ TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr_flag_one-way": "seen from one end only",
     "otdr_flag_in-cord": "inside a test cord",
     "otdr_flag_lsa-differs": "trace disagrees with the instrument's table",
-    "otdr_finding_length-differs": "The measured fiber length differs from the documented length by more than allowed.",
-    "otdr_finding_connection-count": "The number of connections found differs from the link's description.",
-    "otdr_finding_splice-count": "The number of splices found differs from the link's description.",
-    "otdr_finding_il-differs": "The OTDR end-to-end loss differs from the insertion-loss result ({value} dB) by more than 0.5 dB.",
 })
 
 GLOSSARY: Final[tuple[tuple[str, str], ...]] = (
@@ -637,8 +633,8 @@ FINDING_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr-negative-average": "OTDR event whose two-way average is a gain at {events} (lowest {loss_db} dB): a passive event cannot amplify; check the traces and how their events pair.",
     "otdr-lsa-differs": "The loss re-measured from the trace differs from the instrument\u2019s event table by more than {threshold_db} dB at {events}.",
     "otdr-length-differs": "OTDR fiber length {measured_m} m differs from the documented {documented_m} m by more than {allowed_m} m ({strands}).",
-    "otdr-connection-count": "The OTDR found {found} connections where the link\u2019s description and the test cords give {expected} ({strands}).",
-    "otdr-splice-count": "The OTDR found {found} splices where the link\u2019s description gives {expected} ({strands}).",
+    "otdr-connection-count": "Connections found by the OTDR: {found}; the link\u2019s description and the test cords give {expected} ({strands}).",
+    "otdr-splice-count": "Splices found by the OTDR: {found}; the link\u2019s description gives {expected} ({strands}).",
     "otdr-il-differs": "OTDR end-to-end loss {otdr_db} dB differs from the insertion-loss result {insertion_loss_db} dB by more than {threshold_db} dB ({strands}).",
 })
 
