@@ -42,7 +42,10 @@ DEFAULT_GROUP_INDEX: Final = 1.4680  # when neither file nor row gives one (SR-4
 # Reflectance limits by fiber category and polish [dB] (an event reflecting more fails):
 # TIA-568.3-D, optical fiber connector return loss: multimode ≥ 20 dB, single-mode ≥ 35 dB,
 # single-mode for broadband analog video ≥ 55 dB, the grade APC connectors are made for
-# (from memory: the document was not at hand; stated as it is remembered).
+# (from memory: the document was not at hand; stated as it is remembered). No public
+# reproduction of these clauses (TIA-568.3-D, ISO/IEC 14763-3, IEC 61753 connector grades) was
+# found to check them against (2026-12-03): they stay "from memory" until one is. For scale, a
+# flat glass/air end reflects about −14.7 dB (Fresnel, n = 1.45), far above every limit here.
 REFLECTANCE_LIMIT_DB: Final = {
     (FiberCategory.MULTIMODE, Polish.UPC): -20.0,
     (FiberCategory.MULTIMODE, Polish.APC): -20.0,
@@ -68,7 +71,8 @@ LSA_MIN_POINTS: Final = 8
 # OTDR end-to-end loss against the insertion-loss result of the same strand and wavelength
 # (mean of the judged results): both measure the same link, but the OTDR reads the end
 # connections from backscatter and the meter from a reference; a difference beyond
-# IL_AGREEMENT_DB is a finding (our choice, from memory of field practice: a few tenths of a dB).
+# IL_AGREEMENT_DB is a finding (our choice, from memory of field practice: a few tenths of a dB;
+# no published tolerance for this comparison was found, 2026-12-03).
 IL_AGREEMENT_DB: Final = 0.5
 
 JUDGED_AS_CONNECTION: Final = frozenset({OtdrEventKind.CONNECTOR, OtdrEventKind.REFLECTIVE})
