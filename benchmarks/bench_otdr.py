@@ -4,6 +4,7 @@ Usage (from the repository root)::
 
     python benchmarks/bench_otdr.py [--files 1000] [--samples 30000]
     python benchmarks/bench_otdr.py --report 500     # build with and without traces (target < 1.5x)
+    python benchmarks/bench_otdr.py --report 100 --rounds 2 --keep /tmp/otdr-bench
 
 Writes the files once into a temporary folder (synthesised by ``tests.builders.synth_sor`` and our
 writer; the files differ only in their noise), then times ``reportgen.inputs.sor.read_sor`` on all
@@ -12,11 +13,19 @@ of them, bytes already read (the decode), and again with the file reads included
 ``--report N`` writes a synthetic project of N links (``benchmarks/make_synthetic.py``), and a copy
 with two traces per strand (a→b and b→a at the first wavelength of the link's fiber category,
 matched by ``otdr/index.csv``), and times the full build (``reportgen.pipeline.build``, HTML and
-PDF) of each: wall time, target under 1.5 times the build without traces.
+PDF) of each: wall time, target under 1.5 times the build without traces. ``--rounds R`` builds
+each project R times, alternating (without, with, without, with...), each into a fresh output
+folder without the part cache, so load from other work on a shared machine falls on both; each
+round's ratio is printed, and the load average before each build; also the CPU time of the
+build and all its processes (:func:`tree_cpu_s`), which other work on a shared machine
+disturbs far less than the wall time. A 5-link build runs first,
+untimed, so the first timed build does not pay for imports and font loading. ``--keep DIR`` writes the two
+projects into DIR (reused when already there) instead of a temporary folder.
 """
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import tempfile
 import time
@@ -30,41 +39,98 @@ from tests.builders import synth_sor  # noqa: E402
 TARGET_S = 10.0
 
 
-def report_comparison(links: int) -> None:
+def report_comparison(links: int, rounds: int = 1, keep: Path | None = None) -> None:
+    import contextlib
+
+    with contextlib.ExitStack() as stack:
+        folder = keep if keep is not None else Path(stack.enter_context(tempfile.TemporaryDirectory()))
+        folder.mkdir(parents=True, exist_ok=True)
+        plain, traced = folder / f"plain-{links}", folder / f"traced-{links}"
+        if not (traced / "otdr" / "index.csv").exists():
+            _write_projects(plain, traced, links)
+        from benchmarks.make_synthetic import make_project
+        from reportgen.pipeline import build
+
+        warmup = folder / "warmup"
+        if not warmup.exists():
+            make_project(warmup, 5)
+        build(warmup, folder / "out-warmup", cache=False)  # imports, fonts: not timed
+        for round_no in range(1, rounds + 1):
+            times, cpu = {}, {}
+            for name, project in (("without traces", plain), ("with traces", traced)):
+                load = os.getloadavg()[0]
+                out = folder / f"out-{links}-{name.replace(' ', '-')}-{round_no}"
+                start, start_cpu = time.perf_counter(), tree_cpu_s()
+                build(project, out, cache=False)
+                times[name] = time.perf_counter() - start
+                cpu[name] = tree_cpu_s() - start_cpu
+                print(f"round {round_no}: {links} links {name}: {times[name]:.1f} s wall, "
+                      f"{cpu[name]:.1f} s CPU (load average before {load:.1f})", flush=True)
+            ratio = times["with traces"] / times["without traces"]
+            print(f"round {round_no}: ratio {ratio:.2f} wall (target < 1.5): "
+                  f"{'met' if ratio < 1.5 else 'NOT met'}; CPU ratio "
+                  f"{cpu['with traces'] / cpu['without traces']:.2f}", flush=True)
+
+
+def tree_cpu_s() -> float:
+    """CPU time (user + system) of this process and all its descendants, living or reaped [s].
+
+    The render workers are forked by a fork server (a child of this process) and reaped by
+    it: their time is in the fork server's children times, or their own while they live.
+    """
+    import resource
+
+    ticks = os.sysconf("SC_CLK_TCK")
+    children: dict[int, list[int]] = {}
+    stats: dict[int, list[str]] = {}
+    for entry in os.listdir("/proc"):
+        if entry.isdigit():
+            try:
+                fields = Path(f"/proc/{entry}/stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            stats[int(entry)] = fields
+            children.setdefault(int(fields[1]), []).append(int(entry))
+    total = 0.0
+    stack = list(children.get(os.getpid(), []))
+    while stack:
+        pid = stack.pop()
+        fields = stats[pid]  # utime, stime, cutime, cstime are fields 14-17 of stat
+        total += sum(int(value) for value in fields[11:15]) / ticks
+        stack.extend(children.get(pid, []))
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    reaped = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return total + own.ru_utime + own.ru_stime + reaped.ru_utime + reaped.ru_stime
+
+
+def _write_projects(plain: Path, traced: Path, links: int) -> None:
     import csv
     import shutil
 
     from benchmarks.make_synthetic import make_project
-    from reportgen.pipeline import build
 
-    with tempfile.TemporaryDirectory() as folder:
-        plain = make_project(Path(folder) / "plain", links)
-        traced = Path(folder) / "traced"
-        shutil.copytree(plain, traced)
-        rows = list(csv.DictReader((plain / "links.csv").open(encoding="utf-8")))
-        (traced / "otdr").mkdir()
-        index = ["file,link_id,strand,direction"]
-        for number, row in enumerate(rows):
-            length = float(row["length_m"])
-            wavelength = 1310 if row["fiber_type"].startswith("OS") else 850
-            for strand in range(1, int(row["strands"]) + 1):
-                for direction in ("ab", "ba"):
-                    sor = synth_sor([(length / 2, 0.08, None)], length, seed=number * 10 + strand,
-                                    cable_id=row["link_id"], fiber_id=str(strand),
-                                    nominal_wavelength_nm=wavelength, wavelength_nm=float(wavelength),
-                                    extra_m=100.0)
-                    name = f"t{number:05d}-{strand}-{direction}.sor"
-                    (traced / "otdr" / name).write_bytes(write_sor(sor))
-                    index.append(f"{name},{row['link_id']},{strand},{direction}")
-        (traced / "otdr" / "index.csv").write_text("\n".join(index) + "\n", encoding="utf-8")
-        times = {}
-        for name, project in (("without traces", plain), ("with traces", traced)):
-            start = time.perf_counter()
-            build(project, Path(folder) / f"out-{name.replace(' ', '-')}")
-            times[name] = time.perf_counter() - start
-            print(f"{links} links {name}: {times[name]:.1f} s wall")
-        ratio = times["with traces"] / times["without traces"]
-        print(f"ratio {ratio:.2f} (target < 1.5): {'met' if ratio < 1.5 else 'NOT met'}")
+    if plain.exists():
+        shutil.rmtree(plain)
+    if traced.exists():
+        shutil.rmtree(traced)
+    make_project(plain, links)
+    shutil.copytree(plain, traced)
+    rows = list(csv.DictReader((plain / "links.csv").open(encoding="utf-8")))
+    (traced / "otdr").mkdir()
+    index = ["file,link_id,strand,direction"]
+    for number, row in enumerate(rows):
+        length = float(row["length_m"])
+        wavelength = 1310 if row["fiber_type"].startswith("OS") else 850
+        for strand in range(1, int(row["strands"]) + 1):
+            for direction in ("ab", "ba"):
+                sor = synth_sor([(length / 2, 0.08, None)], length, seed=number * 10 + strand,
+                                cable_id=row["link_id"], fiber_id=str(strand),
+                                nominal_wavelength_nm=wavelength, wavelength_nm=float(wavelength),
+                                extra_m=100.0)
+                name = f"t{number:05d}-{strand}-{direction}.sor"
+                (traced / "otdr" / name).write_bytes(write_sor(sor))
+                index.append(f"{name},{row['link_id']},{strand},{direction}")
+    (traced / "otdr" / "index.csv").write_text("\n".join(index) + "\n", encoding="utf-8")
 
 
 def main() -> None:
@@ -72,9 +138,11 @@ def main() -> None:
     parser.add_argument("--files", type=int, default=1000)
     parser.add_argument("--samples", type=int, default=30_000)
     parser.add_argument("--report", type=int, metavar="LINKS", help="compare full builds instead")
+    parser.add_argument("--rounds", type=int, default=1, help="with --report: alternating rounds")
+    parser.add_argument("--keep", type=Path, help="with --report: folder for the two projects")
     args = parser.parse_args()
     if args.report:
-        report_comparison(args.report)
+        report_comparison(args.report, args.rounds, args.keep)
         return
     spacing = 1.0
     fiber_end = args.samples * spacing - 200.0

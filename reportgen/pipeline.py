@@ -82,8 +82,9 @@ def compute(project: Project, now: datetime | None = None) -> Outcome:
     applications = assess_project(project, judgement)
     clock = build_now(now)
     today = (clock if clock.tzinfo is None else clock.astimezone(timezone.utc)).date()
-    findings = find_all(project, judgement, applications, today=today)
-    return Outcome(project, judgement, applications, findings, assess_otdr(project, judgement))
+    otdr = assess_otdr(project, judgement)
+    findings = find_all(project, judgement, applications, today=today, otdr=otdr)
+    return Outcome(project, judgement, applications, findings, otdr)
 
 
 def default_out_dir(project_dir: Path) -> Path:

@@ -72,6 +72,16 @@ def test_reflectance_limits_by_polish_are_stated_with_their_source():
     assert REFLECTANCE_LIMIT_DB[(FiberCategory.SINGLEMODE, Polish.UPC)] == -35.0
     assert REFLECTANCE_LIMIT_DB[(FiberCategory.SINGLEMODE, Polish.APC)] == -55.0
     assert REFLECTANCE_LIMIT_DB[(FiberCategory.MULTIMODE, Polish.UPC)] == -20.0
+    # multimode connections are not made in APC: the same 20 dB applies (from memory)
+    assert REFLECTANCE_LIMIT_DB[(FiberCategory.MULTIMODE, Polish.APC)] == -20.0
+
+
+def test_otdr_and_insertion_loss_agreement_tolerance():
+    # From memory, no published source found: field practice expects the OTDR's end-to-end loss
+    # and a one-cord insertion loss of the same fiber within a few tenths of a dB; 0.5 dB.
+    from reportgen.engine.otdr import IL_AGREEMENT_DB
+
+    assert IL_AGREEMENT_DB == 0.5
 
 
 def test_pair_tolerance_grows_with_pulse_width():

@@ -1,11 +1,9 @@
 """Audit findings: what an auditor checks beyond the loss limit. Pure.
 
-A finding names a rule (``RULES``), its severity (``error`` blocks acceptance,
-``warning``, ``note``), the link it concerns (None: the whole project), the numbers its
-message words (``values``; the words are the report's, ``reportgen.report.messages``)
-and the evidence: the input rows and values it rests on. Each rule gives at most one
-finding per link (or one per instrument or reference row for project-wide rules), so a
-planted problem is reported once. Thresholds come from ``Testing.audit``
+``find_all`` runs every rule of ``reportgen.engine.finding_types.RULES`` (where a rule, a
+finding and its severity are defined). This module holds the rules over results, links and
+instruments; the test-method records are :mod:`reportgen.engine.findings_records`, the OTDR
+cross-checks :mod:`reportgen.engine.findings_otdr`. Thresholds come from ``Testing.audit``
 (``testing.audit`` in project.yaml); their defaults and sources are listed in
 docs/project-format.md, "Audit findings".
 
@@ -14,128 +12,52 @@ row); rules over links, records and instruments loop over those (a project has f
 """
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
-from datetime import date, datetime
+from datetime import date
 from typing import Any, Final
 
 import numpy as np
 import pandas as pd
 
 from reportgen.engine.applications import ProjectApplications
+from reportgen.engine.finding_types import (
+    RULE_BY_ID,
+    RULES,
+    SEVERITIES,
+    Finding,
+    Findings,
+    Rule,
+    as_time,
+    by_link,
+    evidence_rows,
+    has_flag,
+    make_finding,
+    ordered_findings,
+)
+from reportgen.engine.findings_otdr import otdr_findings
+from reportgen.engine.findings_records import inspection_findings, reference_findings
 from reportgen.engine.judge import KEY, Judgement
+from reportgen.engine.otdr import OtdrAssessment
 from reportgen.engine.power import PowerVerdict
 from reportgen.model import (
     ApplicationVerdict,
-    InspectionResult,
-    InstrumentKind,
-    LinkEnd,
     Plant,
     Project,
     ResultFlag,
-    Severity,
 )
 from reportgen.units import TOLERANCE_DB
 
+__all__ = ["RULES", "RULE_BY_ID", "SEVERITIES", "Finding", "Findings", "Rule",
+           "FUTURE_SLACK_DAYS", "find_all", "low_loss_bound_db"]
 
-@dataclass(frozen=True)
-class Rule:
-    id: str  # our own short name
-    severity: Severity
-    thresholds: tuple[str, ...] = ()  # keys of testing.audit the rule uses
-    settings: tuple[str, ...] = ()  # other project.yaml keys it reads
-
-
-# Every rule, in the order findings are listed within a link.
-RULES: Final[tuple[Rule, ...]] = (
-    Rule("calibration-overdue", Severity.ERROR),
-    Rule("result-in-future", Severity.ERROR),
-    Rule("result-before-work", Severity.ERROR, settings=("project.work_started",)),
-    Rule("retest-order", Severity.ERROR),
-    Rule("ambiguous-retest", Severity.ERROR),
-    Rule("reference-method", Severity.ERROR, settings=("testing.required_reference_method",)),
-    Rule("application-not-supported", Severity.ERROR),
-    Rule("transceiver-too-weak", Severity.ERROR),
-    Rule("inspection-failed", Severity.ERROR),
-    Rule("transceiver-too-strong", Severity.WARNING),
-    Rule("within-uncertainty", Severity.WARNING, settings=("testing.uncertainty_db",)),
-    Rule("result-outside-period", Severity.WARNING, settings=("testing.period",)),
-    Rule("direction-asymmetry", Severity.WARNING, thresholds=("asymmetry_db",)),
-    Rule("implausibly-low-loss", Severity.WARNING,
-         thresholds=("rayleigh_db_um4_per_km", "low_loss_connection_db"),
-         settings=("testing.uncertainty_db",)),
-    Rule("repeated-readings", Severity.WARNING, thresholds=("repeat_count",)),
-    Rule("length-implausible", Severity.WARNING,
-         thresholds=("min_length_inside_m", "min_length_outside_m")),
-    Rule("length-mismatch", Severity.WARNING,
-         thresholds=("length_tolerance_percent", "length_tolerance_m")),
-    Rule("reference-missing", Severity.WARNING),
-    Rule("reference-stale", Severity.WARNING, thresholds=("reference_max_age_h",)),
-    Rule("cords-not-verified", Severity.WARNING, thresholds=("cord_check_max_db",)),
-    Rule("inspection-missing", Severity.WARNING),
-    Rule("calibration-unknown", Severity.NOTE),
-)
-RULE_BY_ID: Final[Mapping[str, Rule]] = {rule.id: rule for rule in RULES}
-_RULE_ORDER: Final[Mapping[str, int]] = {rule.id: at for at, rule in enumerate(RULES)}
 FUTURE_SLACK_DAYS: Final = 1  # result-in-future: days after the build day still accepted (time zones)
-SEVERITIES: Final[tuple[Severity, ...]] = (Severity.ERROR, Severity.WARNING, Severity.NOTE)
-
-
-@dataclass(frozen=True)
-class Finding:
-    rule: str
-    severity: Severity
-    link_id: str | None  # None: the whole project
-    values: Mapping[str, Any]  # the numbers and ids the message words
-    evidence: tuple[Mapping[str, Any], ...] = ()  # rows: file, line and the values used
-
-    def to_json(self, message: str) -> dict[str, Any]:
-        """One element of summary.json's ``findings`` (dB values rounded as printed)."""
-        return {"rule": self.rule, "severity": self.severity.value, "link_id": self.link_id,
-                "message": message, "evidence": [_json_row(row) for row in self.evidence]}
-
-
-@dataclass(frozen=True)
-class Findings:
-    """Every finding of a project: project-wide first, then by link in links.csv order."""
-
-    items: tuple[Finding, ...]
-    _by_link: Mapping[str | None, tuple[Finding, ...]] = field(default_factory=dict, repr=False)
-
-    @property
-    def counts(self) -> dict[str, int]:
-        counts = {severity.value: 0 for severity in SEVERITIES}
-        for finding in self.items:
-            counts[finding.severity.value] += 1
-        return counts
-
-    @property
-    def has_errors(self) -> bool:
-        return any(f.severity is Severity.ERROR for f in self.items)
-
-    def for_link(self, link_id: str | None) -> tuple[Finding, ...]:
-        return self._by_link.get(link_id, ())
-
-
-def _json_row(row: Mapping[str, Any]) -> dict[str, Any]:
-    out: dict[str, Any] = {}
-    for key, value in row.items():
-        if isinstance(value, float):
-            value = round(value, 2) if key.endswith("_db") or key.endswith("_m") else value
-            value = None if value != value else value
-        elif isinstance(value, (datetime, date, pd.Timestamp)):
-            value = value.isoformat()
-        elif isinstance(value, tuple):
-            value = list(value)
-        elif isinstance(value, np.generic):
-            value = value.item()
-        out[key] = value
-    return out
 
 
 def find_all(project: Project, judgement: Judgement,
-             applications: ProjectApplications | None, *, today: date) -> Findings:
-    """Every rule over a judged (and assessed) project; ``today`` is the build date."""
+             applications: ProjectApplications | None, *, today: date,
+             otdr: OtdrAssessment | None = None) -> Findings:
+    """Every rule over a judged (and assessed) project; ``today`` is the build date,
+    ``otdr`` the project's OTDR assessment (``reportgen.engine.otdr.assess_otdr``; None:
+    the OTDR rules do not run)."""
     audit = project.testing.audit
     frame = judgement.results
     judged = frame[frame["judged"].fillna(False).astype(bool)]
@@ -155,89 +77,12 @@ def find_all(project: Project, judgement: Judgement,
     found += _repeated(counted, audit.repeat_count)
     found += _lengths(project, counted)
     if project.references is not None:
-        found += _references(project, counted)
+        found += reference_findings(project, counted)
     if project.inspections is not None:
-        found += _inspections(project)
-    return _ordered(project, found)
-
-
-def _ordered(project: Project, found: list[Finding]) -> Findings:
-    position = {link.link_id: at for at, link in enumerate(project.links)}
-    items = tuple(sorted(found, key=lambda f: (
-        -1 if f.link_id is None else position.get(f.link_id, len(position)),
-        _RULE_ORDER[f.rule])))
-    by_link: dict[str | None, list[Finding]] = {}
-    for finding in items:
-        by_link.setdefault(finding.link_id, []).append(finding)
-    return Findings(items, {k: tuple(v) for k, v in by_link.items()})
-
-
-def _finding(rule: str, link_id: str | None, values: Mapping[str, Any],
-             evidence: Iterable[Mapping[str, Any]] = ()) -> Finding:
-    return Finding(rule, RULE_BY_ID[rule].severity, link_id, dict(values), tuple(evidence))
-
-
-def _rows(frame: pd.DataFrame, columns: Sequence[str] = ("loss_db",)) -> list[dict[str, Any]]:
-    """Evidence rows: file, line, key and the named columns of every row of ``frame``
-    (one pass over the frame)."""
-    wanted = ["source_file", "source_line", "strand", "wavelength_nm", "direction", *columns]
-    wanted = list(dict.fromkeys(wanted))
-    times = "tested_at" in wanted
-    rows = []
-    for values in frame[wanted].itertuples(index=False, name=None):
-        row = dict(zip(wanted, values))
-        file, line = row.pop("source_file"), int(row.pop("source_line"))
-        row["strand"], row["wavelength_nm"] = int(row["strand"]), int(row["wavelength_nm"])
-        if times:
-            row["tested_at"] = pd.Timestamp(row["tested_at"]).to_pydatetime()
-        rows.append({"file": file, "line": line, **row})
-    return rows
-
-
-def _has_flag(frame: pd.DataFrame, flag: ResultFlag) -> np.ndarray:
-    """Rows whose flags hold ``flag``, worked out once per distinct flags tuple (few)."""
-    codes, tuples = pd.factorize(frame["flags"])
-    has = np.array([flag in flags for flags in tuples] + [False], dtype=bool)
-    return has[codes]
-
-
-class _Group:
-    """The rows of one link in a frame: columns as NumPy arrays (``group["loss_db"]``) and
-    the evidence rows, both cut from arrays made once for the whole frame."""
-
-    def __init__(self, columns: dict[str, np.ndarray], positions: np.ndarray,
-                 evidence: list[dict[str, Any]]) -> None:
-        self._columns = columns
-        self._positions = positions
-        self.evidence = evidence
-
-    def __len__(self) -> int:
-        return len(self._positions)
-
-    def __getitem__(self, column: str) -> np.ndarray:
-        return self._columns[column][self._positions]
-
-
-def _by_link(frame: pd.DataFrame, evidence: Sequence[str] | None = None
-             ) -> Iterable[tuple[str, _Group]]:
-    """Rows of ``frame`` grouped by link, in order of first appearance, each with its
-    evidence rows (``_rows`` of ``evidence`` columns; none when None)."""
-    if frame.empty:
-        return []
-    codes, link_ids = pd.factorize(frame["link_id"])
-    order = np.argsort(codes, kind="stable")
-    bounds = np.flatnonzero(np.diff(codes[order])) + 1
-    columns = {name: frame[name].to_numpy() for name in frame.columns}
-    rows = _rows(frame, evidence) if evidence is not None else None
-    groups = []
-    for at, positions in enumerate(np.split(order, bounds)):
-        picked = [rows[p] for p in positions] if rows is not None else []
-        groups.append((str(link_ids[at]), _Group(columns, positions, picked)))
-    return groups
-
-
-def _time(value: Any) -> datetime:
-    return pd.Timestamp(value).to_pydatetime()
+        found += inspection_findings(project)
+    if otdr is not None:
+        found += otdr_findings(otdr)
+    return ordered_findings(project, found)
 
 
 # ------------------------------------------------------------------ instruments
@@ -248,26 +93,26 @@ def _calibration(project: Project, judged: pd.DataFrame) -> list[Finding]:
     instruments named by results without a due date (note, project-wide)."""
     found: list[Finding] = []
     due = {i.id: i.calibration_due for i in project.instruments if i.calibration_due is not None}
-    flagged = judged[_has_flag(judged, ResultFlag.CALIBRATION_OVERDUE)]
+    flagged = judged[has_flag(judged, ResultFlag.CALIBRATION_OVERDUE)]
     if not flagged.empty:
         # one row per result and instrument it names; late where the day is after its due date
         uses = flagged.assign(_day=flagged["tested_at"].dt.normalize()).explode("instrument")
         uses = uses.assign(_due=pd.to_datetime(uses["instrument"].map(due)))
-        late = dict(_by_link(uses[(uses["_day"] > uses["_due"]).to_numpy()]))
-        for link_id, rows in _by_link(flagged, ("loss_db", "tested_at", "instrument")):
+        late = dict(by_link(uses[(uses["_day"] > uses["_due"]).to_numpy()]))
+        for link_id, rows in by_link(flagged, ("loss_db", "tested_at", "instrument")):
             used = late[link_id]
             instruments = tuple(sorted(set(used["instrument"])))
-            found.append(_finding("calibration-overdue", link_id, {
+            found.append(make_finding("calibration-overdue", link_id, {
                 "instruments": instruments,
                 "due": tuple(due[name] for name in instruments),
                 "results": len(rows),
-                "last_use": _time(used["_day"].max()).date(),
+                "last_use": as_time(used["_day"].max()).date(),
             }, rows.evidence))
     named = {name for ids in pd.unique(judged["instrument"]) for name in ids} \
         if not judged.empty else set()
     for instrument in project.instruments:
         if instrument.calibration_due is None and instrument.id in named:
-            found.append(_finding("calibration-unknown", None, {"instrument": instrument.id},
+            found.append(make_finding("calibration-unknown", None, {"instrument": instrument.id},
                                   [{"instrument": instrument.id, "calibration_due": None}]))
     return found
 
@@ -300,12 +145,12 @@ def _chronology(project: Project, frame: pd.DataFrame, today: date) -> list[Find
         checks.append(("result-outside-period", outside,
                        {"start": testing.period_start, "end": testing.period_end}))
     for rule, mask, values in checks:
-        for link_id, rows in _by_link(frame[mask.fillna(False).to_numpy(dtype=bool)],
+        for link_id, rows in by_link(frame[mask.fillna(False).to_numpy(dtype=bool)],
                                       ("loss_db", "tested_at")):
-            found.append(_finding(rule, link_id, {
+            found.append(make_finding(rule, link_id, {
                 **values, "results": len(rows),
-                "first": _time(rows["tested_at"].min()),
-                "last": _time(rows["tested_at"].max()),
+                "first": as_time(rows["tested_at"].min()),
+                "last": as_time(rows["tested_at"].max()),
             }, rows.evidence))
     return found
 
@@ -325,8 +170,8 @@ def _retests(frame: pd.DataFrame) -> list[Finding]:
     same_time = keyed.groupby(KEY + ["tested_at"], sort=False)["loss_db"]
     spread = same_time.transform("max") - same_time.transform("min")
     ambiguous = keyed[(spread > TOLERANCE_DB).to_numpy()]
-    for link_id, rows in _by_link(ambiguous, ("loss_db", "tested_at")):
-        found.append(_finding("ambiguous-retest", link_id, {
+    for link_id, rows in by_link(ambiguous, ("loss_db", "tested_at")):
+        found.append(make_finding("ambiguous-retest", link_id, {
             "results": len(set(zip(rows["strand"], rows["wavelength_nm"], rows["direction"],
                                    rows["tested_at"]))),
             "low_db": float(rows["loss_db"].min()), "high_db": float(rows["loss_db"].max()),
@@ -337,8 +182,8 @@ def _retests(frame: pd.DataFrame) -> list[Finding]:
     in_file = in_file.assign(_before=in_file.groupby(by_file, sort=False)["tested_at"].shift())
     before = in_file.groupby(by_file, sort=False)["_before"].cummax()
     backwards = in_file[(in_file["tested_at"] < before).to_numpy()]
-    for link_id, rows in _by_link(backwards, ("loss_db", "tested_at")):
-        found.append(_finding("retest-order", link_id, {
+    for link_id, rows in by_link(backwards, ("loss_db", "tested_at")):
+        found.append(make_finding("retest-order", link_id, {
             "rows": len(rows), "file": str(rows["source_file"][0]),
             "line": int(rows["source_line"][0]),
         }, rows.evidence))
@@ -355,13 +200,13 @@ def _reference_method(project: Project) -> list[Finding]:
     found: list[Finding] = []
     required = testing.required_reference_method
     if required is not None and required is not testing.reference_method:
-        found.append(_finding("reference-method", None, {
+        found.append(make_finding("reference-method", None, {
             "used": testing.reference_method.value, "required": required.value},
             [{"setting": "testing.reference_method", "value": testing.reference_method.value},
              {"setting": "testing.required_reference_method", "value": required.value}]))
     other = [r for r in project.references or () if r.method is not testing.reference_method]
     if other:
-        found.append(_finding("reference-method", None, {
+        found.append(make_finding("reference-method", None, {
             "used": ", ".join(sorted({r.method.value for r in other})),
             "required": testing.reference_method.value},
             [{"file": r.source_file, "line": r.source_line, "instrument": r.instrument,
@@ -380,7 +225,7 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
         failing = [a for a in assessed.for_link(link.link_id).assessments
                    if a.verdict is ApplicationVerdict.NOT_SUPPORTED]
         if failing:
-            found.append(_finding("application-not-supported", link.link_id, {
+            found.append(make_finding("application-not-supported", link.link_id, {
                 "applications": tuple(a.id for a in failing), "count": len(failing)},
                 [{"file": "links.csv", "line": link.line, "application": a.id,
                   "reasons": tuple(r.kind.value for r in a.reasons),
@@ -392,7 +237,7 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
             continue
         rule = ("transceiver-too-strong" if power.verdict is PowerVerdict.TOO_STRONG
                 else "transceiver-too-weak")
-        found.append(_finding(rule, link.link_id, {
+        found.append(make_finding(rule, link.link_id, {
             "transceiver": power.transceiver, "verdict": power.verdict.value,
             "low_margin_db": power.low_margin_db, "high_margin_db": power.high_margin_db,
             "attenuator_db": power.attenuator_db},
@@ -405,11 +250,11 @@ def _applications(project: Project, assessed: ProjectApplications) -> list[Findi
 
 
 def _within_uncertainty(judged: pd.DataFrame) -> list[Finding]:
-    flagged = judged[_has_flag(judged, ResultFlag.WITHIN_UNCERTAINTY)]
-    return [_finding("within-uncertainty", link_id, {
+    flagged = judged[has_flag(judged, ResultFlag.WITHIN_UNCERTAINTY)]
+    return [make_finding("within-uncertainty", link_id, {
         "results": len(rows), "worst_margin_db": float(rows["margin_db"].min())},
         rows.evidence)
-        for link_id, rows in _by_link(flagged, ("loss_db", "limit_db", "margin_db"))]
+        for link_id, rows in by_link(flagged, ("loss_db", "limit_db", "margin_db"))]
 
 
 # ------------------------------------------------------------------ plausibility
@@ -426,7 +271,7 @@ def _asymmetry(judged: pd.DataFrame, threshold_db: float) -> list[Finding]:
     pairs["difference_db"] = (pairs["loss_db_ab"] - pairs["loss_db_ba"]).abs()
     over = pairs[pairs["difference_db"] > threshold_db + TOLERANCE_DB]
     found = []
-    for link_id, rows in _by_link(over):
+    for link_id, rows in by_link(over):
         evidence = [{"file": a_file, "line": int(a_line), "line_ba": int(b_line),
                      "file_ba": b_file, "strand": int(strand), "wavelength_nm": int(wl),
                      "loss_ab_db": float(a), "loss_ba_db": float(b), "difference_db": float(d)}
@@ -435,7 +280,7 @@ def _asymmetry(judged: pd.DataFrame, threshold_db: float) -> list[Finding]:
                             "source_file_ab", "source_line_ab", "source_file_ba",
                             "source_line_ba", "strand", "wavelength_nm", "loss_db_ab",
                             "loss_db_ba", "difference_db")))]
-        found.append(_finding("direction-asymmetry", link_id, {
+        found.append(make_finding("direction-asymmetry", link_id, {
             "pairs": len(rows), "worst_db": float(rows["difference_db"].max()),
             "threshold_db": threshold_db}, evidence))
     return found
@@ -468,10 +313,10 @@ def _low_loss(project: Project, judgement: Judgement, judged: pd.DataFrame) -> l
     rows["bound_db"] = bound
     low = rows[(rows["loss_db"] < rows["bound_db"] - project.testing.uncertainty_db
                 - TOLERANCE_DB).to_numpy()]
-    return [_finding("implausibly-low-loss", link_id, {
+    return [make_finding("implausibly-low-loss", link_id, {
         "results": len(group), "least_loss_db": float(group["loss_db"].min()),
         "bound_db": float(group["bound_db"][group["loss_db"].argmin()])},
-        group.evidence) for link_id, group in _by_link(low, ("loss_db", "bound_db"))]
+        group.evidence) for link_id, group in by_link(low, ("loss_db", "bound_db"))]
 
 
 def _repeated(judged: pd.DataFrame, count: int) -> list[Finding]:
@@ -487,9 +332,9 @@ def _repeated(judged: pd.DataFrame, count: int) -> list[Finding]:
         .transform("size")
     repeated = keyed[(sizes >= count).to_numpy()]
     flagged: set[str] = set()
-    for link_id, rows in _by_link(repeated, ("loss_db", "tested_at", "technician")):
+    for link_id, rows in by_link(repeated, ("loss_db", "tested_at", "technician")):
         flagged.add(link_id)
-        found.append(_finding("repeated-readings", link_id, {
+        found.append(make_finding("repeated-readings", link_id, {
             "results": len(rows), "loss_db": float(rows["loss_db"][0]), "count": count,
             "technician": None}, rows.evidence))
     worked = keyed[keyed["technician"].fillna("").astype(str).str.strip() != ""]
@@ -505,10 +350,10 @@ def _repeated(judged: pd.DataFrame, count: int) -> list[Finding]:
         links = list(dict.fromkeys(rows["link_id"]))
         if len(links) == 1 and links[0] in flagged:
             continue  # already reported for the link
-        found.append(_finding("repeated-readings", links[0] if len(links) == 1 else None, {
+        found.append(make_finding("repeated-readings", links[0] if len(links) == 1 else None, {
             "results": len(rows), "loss_db": float(rows["loss_db"].iloc[0]), "count": count,
             "technician": str(rows["technician"].iloc[0])},
-            _rows(rows, ("link_id", "loss_db", "tested_at", "technician"))))
+            evidence_rows(rows, ("link_id", "loss_db", "tested_at", "technician"))))
     return found
 
 
@@ -521,7 +366,7 @@ def _lengths(project: Project, judged: pd.DataFrame) -> list[Finding]:
         minimum = (audit.min_length_outside_m if link.plant is Plant.OUTSIDE
                    else audit.min_length_inside_m)
         if link.length_m < minimum - TOLERANCE_DB:
-            found.append(_finding("length-implausible", link.link_id, {
+            found.append(make_finding("length-implausible", link.link_id, {
                 "length_m": link.length_m, "minimum_m": minimum, "plant": link.plant.value},
                 [{"file": "links.csv", "line": link.line, "length_m": link.length_m,
                   "plant": link.plant.value, "fiber_type": link.fiber_type.value}]))
@@ -534,10 +379,10 @@ def _lengths(project: Project, judged: pd.DataFrame) -> list[Finding]:
     allowed = (rows["documented_m"] * audit.length_tolerance_percent / 100.0
                + audit.length_tolerance_m)
     off = rows[(rows["difference_m"] > allowed + 1e-6).to_numpy()]
-    for link_id, group in _by_link(off, ("measured_length_m", "documented_m")):
+    for link_id, group in by_link(off, ("measured_length_m", "documented_m")):
         worst = group["difference_m"].argmax()
         documented = float(group["documented_m"][worst])
-        found.append(_finding("length-mismatch", link_id, {
+        found.append(make_finding("length-mismatch", link_id, {
             "measured_m": float(group["measured_length_m"][worst]),
             "documented_m": documented,
             "difference_m": float(group["difference_m"][worst]),
@@ -545,102 +390,3 @@ def _lengths(project: Project, judged: pd.DataFrame) -> list[Finding]:
             + audit.length_tolerance_m,
             "results": len(group)}, group.evidence))
     return found
-
-
-# ------------------------------------------------------------------ test-method records
-
-
-def _meter_rows(project: Project, judged: pd.DataFrame) -> pd.DataFrame:
-    """One row per judged result and power meter it names (``meter``: "" when it names none)."""
-    meters = {i.id for i in project.instruments if i.kind is InstrumentKind.POWER_METER}
-    codes, named = pd.factorize(judged["instrument"])
-    per_tuple = [tuple(name for name in ids if name in meters) or ("",) for ids in named]
-    lists = pd.Series([per_tuple[code] for code in codes], index=judged.index, dtype=object)
-    return judged.assign(meter=lists).explode("meter")
-
-
-def _references(project: Project, judged: pd.DataFrame) -> list[Finding]:
-    """Each judged result is tied to the latest reference of its meter and wavelength set
-    at or before it: none (warning), older than reference_max_age_h (warning). Test cords of
-    a reference in use not verified or above cord_check_max_db (warning, per reference)."""
-    if judged.empty:
-        return []
-    audit = project.testing.audit
-    refs = pd.DataFrame([{
-        "meter": r.instrument, "wavelength_nm": r.wavelength_nm,
-        "set_at": pd.Timestamp(r.set_at), "ref_at": pd.Timestamp(r.set_at), "ref": at}
-        for at, r in enumerate(project.references or ())],
-        columns=["meter", "wavelength_nm", "set_at", "ref_at", "ref"])
-    rows = _meter_rows(project, judged).reset_index(names="_row")
-    rows = rows[rows["tested_at"].notna()].sort_values("tested_at", kind="stable")
-    rows = rows.astype({"meter": object, "wavelength_nm": "int64",
-                        "tested_at": "datetime64[ns]"})
-    refs = refs.astype({"meter": object, "wavelength_nm": "int64", "set_at": "datetime64[ns]",
-                        "ref_at": "datetime64[ns]", "ref": "int64"}).sort_values("set_at")
-    tied = pd.merge_asof(rows, refs.rename(columns={"set_at": "tested_at"}), on="tested_at",
-                         by=["meter", "wavelength_nm"], direction="backward")
-    tied = tied.sort_values(["_row"], kind="stable")
-    found: list[Finding] = []
-    missing = tied[tied["ref"].isna()]
-    for link_id, group in _by_link(missing, ("loss_db", "tested_at", "meter")):
-        found.append(_finding("reference-missing", link_id, {
-            "results": len(set(group["_row"])),
-            "meters": tuple(sorted({m for m in group["meter"] if m})),
-        }, group.evidence))
-    tied = tied.assign(
-        reference_age_h=(tied["tested_at"] - tied["ref_at"]).dt.total_seconds() / 3600.0)
-    stale = tied[(tied["reference_age_h"] > audit.reference_max_age_h + 1e-9).to_numpy()]
-    for link_id, group in _by_link(stale, ("loss_db", "tested_at", "meter", "reference_age_h")):
-        found.append(_finding("reference-stale", link_id, {
-            "results": len(set(group["_row"])), "age_h": float(group["reference_age_h"].max()),
-            "max_age_h": audit.reference_max_age_h}, group.evidence))
-    used = sorted({int(ref) for ref in tied["ref"].dropna()})
-    for at in used:
-        reference = project.references[at]
-        check = reference.cord_check_db
-        if check is not None and check <= audit.cord_check_max_db + TOLERANCE_DB:
-            continue
-        results = int(tied.loc[tied["ref"] == at, "_row"].nunique())
-        found.append(_finding("cords-not-verified", None, {
-            "instrument": reference.instrument, "wavelength_nm": reference.wavelength_nm,
-            "set_at": reference.set_at, "cord_check_db": check,
-            "max_db": audit.cord_check_max_db, "results": results,
-            "cords": reference.cords},
-            [{"file": reference.source_file, "line": reference.source_line,
-              "instrument": reference.instrument, "cords": reference.cords,
-              "cord_check_db": check}]))
-    return found
-
-
-def _inspections(project: Project) -> list[Finding]:
-    """Every strand at both link ends needs a passing end-face inspection: the latest one
-    failed (error) or there is none (warning)."""
-    latest: dict[tuple[str, int, LinkEnd], Any] = {}
-    for inspection in sorted(project.inspections or (),
-                             key=lambda i: (i.inspected_at, i.source_file, i.source_line)):
-        latest[(inspection.link_id, inspection.strand, inspection.end)] = inspection
-    found: list[Finding] = []
-    for link in project.links:
-        failed, missing = [], []
-        for strand in range(1, link.strands + 1):
-            for end in LinkEnd:
-                last = latest.get((link.link_id, strand, end))
-                if last is None:
-                    missing.append({"strand": strand, "end": end.value})
-                elif last.result is InspectionResult.FAIL:
-                    failed.append({"file": last.source_file, "line": last.source_line,
-                                   "strand": strand, "end": end.value,
-                                   "inspected_at": last.inspected_at,
-                                   "result": last.result.value})
-        if failed:
-            found.append(_finding("inspection-failed", link.link_id, {
-                "ends": _ends_text(failed), "count": len(failed)}, failed))
-        if missing:
-            found.append(_finding("inspection-missing", link.link_id, {
-                "ends": _ends_text(missing), "count": len(missing)}, missing))
-    return found
-
-
-def _ends_text(rows: Sequence[Mapping[str, Any]]) -> tuple[tuple[int, str], ...]:
-    """(strand, end) pairs of the rows."""
-    return tuple((row["strand"], row["end"]) for row in rows)

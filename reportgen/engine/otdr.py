@@ -42,7 +42,10 @@ DEFAULT_GROUP_INDEX: Final = 1.4680  # when neither file nor row gives one (SR-4
 # Reflectance limits by fiber category and polish [dB] (an event reflecting more fails):
 # TIA-568.3-D, optical fiber connector return loss: multimode ≥ 20 dB, single-mode ≥ 35 dB,
 # single-mode for broadband analog video ≥ 55 dB, the grade APC connectors are made for
-# (from memory: the document was not at hand; stated as it is remembered).
+# (from memory: the document was not at hand; stated as it is remembered). No public
+# reproduction of these clauses (TIA-568.3-D, ISO/IEC 14763-3, IEC 61753 connector grades) was
+# found to check them against (2026-12-03): they stay "from memory" until one is. For scale, a
+# flat glass/air end reflects about −14.7 dB (Fresnel, n = 1.45), far above every limit here.
 REFLECTANCE_LIMIT_DB: Final = {
     (FiberCategory.MULTIMODE, Polish.UPC): -20.0,
     (FiberCategory.MULTIMODE, Polish.APC): -20.0,
@@ -68,7 +71,8 @@ LSA_MIN_POINTS: Final = 8
 # OTDR end-to-end loss against the insertion-loss result of the same strand and wavelength
 # (mean of the judged results): both measure the same link, but the OTDR reads the end
 # connections from backscatter and the meter from a reference; a difference beyond
-# IL_AGREEMENT_DB is a finding (our choice, from memory of field practice: a few tenths of a dB).
+# IL_AGREEMENT_DB is a finding (our choice, from memory of field practice: a few tenths of a dB;
+# no published tolerance for this comparison was found, 2026-12-03).
 IL_AGREEMENT_DB: Final = 0.5
 
 JUDGED_AS_CONNECTION: Final = frozenset({OtdrEventKind.CONNECTOR, OtdrEventKind.REFLECTIVE})
@@ -144,6 +148,7 @@ class PairedEvent:
     flags: tuple[str, ...] = ()
     lsa_ab_db: float | None = None
     lsa_ba_db: float | None = None
+    failed_on: tuple[str, ...] = ()  # why the verdict is "fail": "loss", "reflectance" or both
 
 
 @dataclass(frozen=True)
@@ -161,6 +166,13 @@ class StrandOtdr:
     verdict: str  # "pass" or "fail"
     findings: tuple[str, ...]  # "length-differs", "connection-count", "splice-count", "il-differs"
     insertion_loss_db: float | None = None  # mean judged insertion loss, same strand and wavelength
+    # what the checks compared (the audit findings word them; reportgen.engine.findings_otdr)
+    connections_found: int = 0
+    connections_expected: int = 0
+    splices_found: int = 0
+    splices_expected: int = 0
+    lsa_threshold_db: float = OtdrSettings.lsa_threshold_db  # used for the "lsa-differs" flag
+    il_agreement_db: float = IL_AGREEMENT_DB  # used for "il-differs"
 
 
 @dataclass(frozen=True)
@@ -281,6 +293,7 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
         inside = -tolerance <= x <= span + tolerance
         allowance = None
         limit = None
+        failed_on: tuple[str, ...] = ()
         if kind in (OtdrEventKind.LAUNCH, OtdrEventKind.END) or not inside:
             verdict = "not-judged"
             if not inside and kind not in (OtdrEventKind.LAUNCH, OtdrEventKind.END):
@@ -288,10 +301,10 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
         else:
             allowance = conn_allow if kind in JUDGED_AS_CONNECTION else splice_allow
             limit = refl_limit if kind in JUDGED_AS_CONNECTION else None
-            fails = avg is not None and avg > allowance + TOLERANCE_DB
-            if limit is not None and reflectance is not None and reflectance > limit + TOLERANCE_DB:
-                fails = True
-            verdict = "fail" if fails else "pass"
+            loss_over = avg is not None and avg > allowance + TOLERANCE_DB
+            reflects = limit is not None and reflectance is not None and reflectance > limit + TOLERANCE_DB
+            failed_on = (("loss",) if loss_over else ()) + (("reflectance",) if reflects else ())
+            verdict = "fail" if failed_on else "pass"
         lsa_ab = _lsa(ab, one_ab) if one_ab else None
         lsa_ba = _lsa(ba, one_ba) if one_ba else None
         for lsa, table in ((lsa_ab, loss_ab), (lsa_ba, loss_ba)):
@@ -301,7 +314,7 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
         events.append(PairedEvent(position_m=x, kind=kind, loss_ab_db=loss_ab, loss_ba_db=loss_ba,
                                   loss_avg_db=avg, reflectance_db=reflectance, allowance_db=allowance,
                                   reflectance_limit_db=limit, verdict=verdict, flags=tuple(flags),
-                                  lsa_ab_db=lsa_ab, lsa_ba_db=lsa_ba))
+                                  lsa_ab_db=lsa_ab, lsa_ba_db=lsa_ba, failed_on=failed_on))
 
     findings = []
     length_tol = max(link.length_m * settings.length_tolerance_pct / 100.0, tolerance)
@@ -312,16 +325,21 @@ def assess_strand(link: Link, traces: Sequence[OtdrTrace], settings: OtdrSetting
     # too when a cord is there to show them (launch cord at the trace's start, receive at its end)
     cords = _cords(first, settings)
     expected_connections = link.connections + sum(1 for cord in cords if cord > 0)
-    if sum(e.kind in JUDGED_AS_CONNECTION for e in judged) != expected_connections:
+    connections_found = sum(e.kind in JUDGED_AS_CONNECTION for e in judged)
+    splices_found = sum(e.kind is OtdrEventKind.SPLICE for e in judged)
+    if connections_found != expected_connections:
         findings.append("connection-count")
-    if sum(e.kind is OtdrEventKind.SPLICE for e in judged) != link.splices:
+    if splices_found != link.splices:
         findings.append("splice-count")
     totals = [t.total_loss_db for t in (ab, ba) if t and t.total_loss_db is not None]
     end_to_end = _mean(totals) if totals else None
     verdict = "fail" if any(e.verdict == "fail" for e in events) else "pass"
     ordered = tuple(t for t in (ab, ba) if t)
     return StrandOtdr(link.link_id, first.strand, first.wavelength_nm, ordered, tuple(events), length,
-                      link.length_m, length_tol, end_to_end, tolerance, verdict, tuple(findings))
+                      link.length_m, length_tol, end_to_end, tolerance, verdict, tuple(findings),
+                      connections_found=connections_found, connections_expected=expected_connections,
+                      splices_found=splices_found, splices_expected=link.splices,
+                      lsa_threshold_db=settings.lsa_threshold_db)
 
 
 def _end_like(event: OtdrEvent) -> bool:

@@ -276,12 +276,12 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr_length_missing": N_("The trace shows no fiber end: length not measured."),
     "otdr_total": N_("End-to-end loss by the instrument: {value} dB."),
     "otdr_files": N_("Source: {files}"),
-    "otdr_caption": N_("Both directions on one distance axis from end A (from B mirrored); each vertical stroke spans the lowest and highest sample of its pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails."),
+    "otdr_caption": N_("In the figures below both directions share one distance axis from end A (from B mirrored); the trace passes through the lowest and highest sample of every pixel column, so narrow reflections stay visible. Diamond: connection; circle: splice; square: other event; filled: fails. Checks of a strand that do not hold are listed with the link\u2019s audit findings."),
     "col_event_no": N_("No."),
     "col_position": C_("along the fiber", "Position"),
     "col_event": N_("Event"),
-    "col_loss_ab": N_("Loss A→B"),
-    "col_loss_ba": N_("Loss B→A"),
+    "col_loss_one_way": N_("Loss A→B / B→A"),
+    "col_verdict_notes": N_("Verdict, notes"),
     "col_loss_avg": N_("Average"),
     "col_lsa": N_("Re-measured (LSA)"),
     "col_reflectance": N_("Reflectance"),
@@ -297,10 +297,6 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "otdr_flag_one-way": N_("seen from one end only"),
     "otdr_flag_in-cord": N_("inside a test cord"),
     "otdr_flag_lsa-differs": N_("trace disagrees with the instrument's table"),
-    "otdr_finding_length-differs": N_("The measured fiber length differs from the documented length by more than allowed."),
-    "otdr_finding_connection-count": N_("The number of connections found differs from the link's description."),
-    "otdr_finding_splice-count": N_("The number of splices found differs from the link's description."),
-    "otdr_finding_il-differs": N_("The OTDR end-to-end loss differs from the insertion-loss result ({value} dB) by more than 0.5 dB."),
 })
 
 # Texts with a count: (singular, plural), chosen by ngettext for the language's plural rule.

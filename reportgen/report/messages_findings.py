@@ -44,6 +44,14 @@ FINDING_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "cords-over-limit": N_("Reference of {instrument} at {wavelength_nm} nm set {set_at}: test cord check {cord_check_db} dB is over {max_db} dB ({results} rest on it)."),
     "inspection-failed": N_("The latest end-face inspection failed at {ends}."),
     "inspection-missing": N_("No end-face inspection recorded at {ends}."),
+    "otdr-event-loss": N_("OTDR event over its allowance at {events} (worst: average loss {loss_db} dB, allowance {allowance_db} dB)."),
+    "otdr-reflectance": N_("OTDR connection reflecting more than allowed at {events} (worst: {reflectance_db} dB, limit {limit_db} dB)."),
+    "otdr-negative-average": N_("OTDR event whose two-way average is a gain at {events} (lowest {loss_db} dB): a passive event cannot amplify; check the traces and how their events pair."),
+    "otdr-lsa-differs": N_("The loss re-measured from the trace differs from the instrument\u2019s event table by more than {threshold_db} dB at {events}."),
+    "otdr-length-differs": N_("OTDR fiber length {measured_m} m differs from the documented {documented_m} m by more than {allowed_m} m ({strands})."),
+    "otdr-connection-count": N_("Connections found by the OTDR: {found}; the link\u2019s description and the test cords give {expected} ({strands})."),
+    "otdr-splice-count": N_("Splices found by the OTDR: {found}; the link\u2019s description gives {expected} ({strands})."),
+    "otdr-il-differs": N_("OTDR end-to-end loss {otdr_db} dB differs from the insertion-loss result {insertion_loss_db} dB by more than {threshold_db} dB ({strands})."),
 })
 
 # What each rule checks and the basis of its thresholds (appendix; docs/project-format.md
@@ -70,6 +78,14 @@ RULE_TEXT: Final[Mapping[str, tuple[str, str]]] = MappingProxyType({
     "reference-stale": (N_("A judged result measured more than reference_max_age_h after its reference."), N_("Common practice: set the reference at the start of each working day and whenever a test cord is changed.")),
     "cords-not-verified": (N_("A reference in use whose test cords were not checked, or whose check read more than cord_check_max_db."), N_("IEC 61280-4-1 and -4-2 describe checking the test cords by mating them; the 0.2 dB limit is recalled, not checked against the standard\u2019s text: a reference-grade pair reads 0.1 to 0.2 dB or less.")),
     "inspection-missing": (N_("A strand at a link end without any end-face inspection (inspections/ present)."), N_("Common practice: inspect, and clean if needed, every end face before it is mated.")),
+    "otdr-event-loss": (N_("An OTDR event, judged, whose loss averaged over both directions is over its allowance: a connection against the connection allowance, a splice against the splice allowance, or the tighter testing.otdr values."), N_("The limit set\u2019s allowances; averaging both directions cancels the fibers\u2019 backscatter difference (IEC 61280-4-2 and ITU-T G.650.3 practice).")),
+    "otdr-reflectance": (N_("An OTDR connection, judged, reflecting more than testing.otdr.reflectance_db, else the default for its fiber and polish."), N_("Defaults: multimode \u221220 dB, single-mode \u221235 dB, APC \u221255 dB; recalled from the connector return-loss requirements of TIA-568.3-D, not checked against the standard\u2019s text.")),
+    "otdr-negative-average": (N_("An OTDR event whose average over both directions is negative."), N_("Common practice: one direction may show a gain where the fibers\u2019 backscatter differs, but the two-way average of a passive event is a loss.")),
+    "otdr-lsa-differs": (N_("An event whose loss re-measured from the trace by least-squares lines differs from the instrument\u2019s own table by more than testing.otdr.lsa_threshold_db."), N_("Our own check of the instrument\u2019s event table; the 0.10 dB default is our choice.")),
+    "otdr-length-differs": (N_("The fiber length measured by OTDR differs from the documented length by more than testing.otdr.length_tolerance_pct of it (never less than the pairing tolerance)."), N_("Common practice: a loose-tube cable\u2019s fiber is longer than its sheath by about 0.5 to 2 % (recalled), plus slack loops.")),
+    "otdr-connection-count": (N_("The connections the OTDR found and judged differ from the link\u2019s documented connections plus one end connection per test cord."), N_("The link\u2019s documented construction.")),
+    "otdr-splice-count": (N_("The splices the OTDR found and judged differ from the link\u2019s documented splices."), N_("The link\u2019s documented construction.")),
+    "otdr-il-differs": (N_("The OTDR end-to-end loss differs from the mean insertion-loss result of the same strand and wavelength by more than 0.5 dB."), N_("Recalled from field practice, not from a published source: the two methods read the end connections differently and agree within a few tenths of a dB.")),
     "calibration-unknown": (N_("An instrument named by results without a calibration due date."), N_("Calibration cannot be shown.")),
 })
 # testing.audit keys as the appendix names them
@@ -91,6 +107,9 @@ STRAND_END: Final = N_("strand {strand} end {end}")
 PLANT_WORD: Final[Mapping[str, str]] = MappingProxyType({"inside": N_("inside"),
                                                          "outside": N_("outside")})
 INSTRUMENT_DUE: Final = N_("{name} (due {day})")
+# where an OTDR finding was seen: (strand, wavelength, event number) or (strand, wavelength)
+OTDR_EVENT: Final = N_("strand {strand} {wavelength} nm event {number}")
+OTDR_STRAND: Final = N_("strand {strand} at {wavelength} nm")
 
 
 def _finding_value(key: str, value: object, lang: Language) -> str:
@@ -104,6 +123,13 @@ def _finding_value(key: str, value: object, lang: Language) -> str:
     if key == "ends":
         return ", ".join(lang.gettext(STRAND_END).format(strand=strand, end=end.upper())
                          for strand, end in value)  # type: ignore[union-attr]
+    if key == "events":
+        return ", ".join(lang.gettext(OTDR_EVENT).format(strand=strand, wavelength=wavelength,
+                                                         number=number)
+                         for strand, wavelength, number in value)  # type: ignore[union-attr]
+    if key == "strands":
+        return ", ".join(lang.gettext(OTDR_STRAND).format(strand=strand, wavelength=wavelength)
+                         for strand, wavelength in value)  # type: ignore[union-attr]
     if isinstance(value, tuple):
         return ", ".join(str(item) for item in value)
     if isinstance(value, float):

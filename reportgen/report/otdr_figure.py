@@ -4,7 +4,11 @@ Both directions on one axis of distance along the link from end A: the a→b tra
 (solid black), the b→a trace mirrored so its events line up (dashed mid-grey). A trace of
 thousands of points is reduced for drawing by a min/max envelope per pixel column: each column
 draws a vertical stroke from its lowest to its highest sample, so no reflective peak, however
-narrow, is lost between columns. Events are numbered as in the event table below the figure and
+narrow, is lost between columns. The strokes of one direction are one polyline, whose points
+are then thinned where they lie on a straight line to within :data:`SIMPLIFY_PX` of a pixel
+(:func:`simplify`): a point further off, such as the top of any peak, is always kept, so the
+drawing is the envelope's to a fraction of the line's width, with far fewer points for the PDF
+renderer to handle. Events are numbered as in the event table below the figure and
 marked by kind with our own shapes: a connection is a diamond, a splice a circle, any other
 event a square; a failed event is filled black, a passed one open. Meaning is carried by line
 style, shape and fill, never by colour alone, so a grayscale print reads the same.
@@ -34,9 +38,12 @@ LABELS: Final[dict[str, str]] = {
     "no_trace": N_("event table only: no trace samples"),
 }
 WIDTH: Final = 640
-HEIGHT: Final = 230
+HEIGHT: Final = 190
 LEFT, RIGHT, TOP, BOTTOM = 46, 10, 28, 34
+SIMPLIFY_PX: Final = 0.2  # drawing units (1/640 of the figure's width); the line is 0.8 wide
+TICKS: Final = 5  # about this many ticks per axis
 STYLE: Final = {Direction.AB: ('stroke="#111111"', ""), Direction.BA: ('stroke="#777777"', ' stroke-dasharray="4 2"')}
+TRACE_DASH: Final = {Direction.AB: "", Direction.BA: ' stroke-dasharray="40 20"'}  # STYLE × 10
 
 
 def envelope(x_m: np.ndarray, level_db: np.ndarray, x_low: float, x_high: float, columns: int
@@ -46,12 +53,48 @@ def envelope(x_m: np.ndarray, level_db: np.ndarray, x_low: float, x_high: float,
     inside = (x_m >= x_low) & (x_m <= x_high)
     col = np.minimum(((x_m[inside] - x_low) / (x_high - x_low) * columns).astype(np.int64), columns - 1)
     values = level_db[inside]
-    low = np.full(columns, np.inf)
-    high = np.full(columns, -np.inf)
-    np.minimum.at(low, col, values)
-    np.maximum.at(high, col, values)
-    present = np.isfinite(low)
-    return np.nonzero(present)[0], low[present], high[present]
+    if len(col) == 0:
+        return col, values, values
+    order = np.argsort(col, kind="stable")  # already sorted (or reversed) for a trace
+    col, values = col[order], values[order]
+    starts = np.flatnonzero(np.diff(col, prepend=col[0] - 1))
+    return col[starts], np.minimum.reduceat(values, starts), np.maximum.reduceat(values, starts)
+
+
+def simplify(points: np.ndarray, tolerance: float) -> np.ndarray:
+    """The points of a polyline (n × 2) that must stay so that no dropped point lies further
+    than ``tolerance`` from the line drawn through the kept ones (Ramer–Douglas–Peucker); the
+    first and last points are always kept. A mask of the points kept.
+
+    Every stretch between two kept points is split at its furthest point while that point is
+    further than ``tolerance`` from the stretch's chord, all stretches at once in each round
+    (the same points as splitting one stretch after the other)."""
+    count = len(points)
+    keep = np.zeros(count, dtype=bool)
+    if count == 0:
+        return keep
+    keep[0] = keep[-1] = True
+    x, y = points[:, 0], points[:, 1]
+    index = np.arange(count)
+    while True:
+        kept = np.flatnonzero(keep)
+        if len(kept) < 2:
+            return keep
+        stretch = np.clip(np.searchsorted(kept, index, side="right") - 1, 0, len(kept) - 2)
+        ax, ay = x[kept[stretch]], y[kept[stretch]]
+        dx, dy = x[kept[stretch + 1]] - ax, y[kept[stretch + 1]] - ay
+        length = np.hypot(dx, dy)
+        distance = np.where(length > 0,
+                            np.abs(dx * (y - ay) - dy * (x - ax)) / np.where(length > 0, length, 1.0),
+                            np.hypot(x - ax, y - ay))
+        distance[keep] = 0.0
+        worst = np.maximum.reduceat(distance, kept[:-1])  # per stretch
+        split = worst > tolerance
+        if not split.any():
+            return keep
+        at_worst = np.flatnonzero(split[stretch] & (distance == worst[stretch]))
+        _, first = np.unique(stretch[at_worst], return_index=True)
+        keep[at_worst[first]] = True
 
 
 def _along(trace: OtdrTrace, settings: OtdrSettings, span_m: float) -> tuple[np.ndarray, np.ndarray]:
@@ -101,41 +144,54 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
            'font-family="DejaVu Sans, sans-serif" font-size="9">',
            f'<rect x="{LEFT}" y="{TOP}" width="{plot_w}" height="{plot_h}" fill="none" stroke="#999999" '
            'stroke-width="0.5"/>']
-    for tick in _ticks(x_low, x_high):
-        out.append(f'<line x1="{px(tick):.1f}" y1="{TOP + plot_h}" x2="{px(tick):.1f}" y2="{TOP + plot_h + 3}" '
-                   'stroke="#111111" stroke-width="0.5"/>'
-                   f'<text x="{px(tick):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{lang.number(f"{tick:g}")}</text>')
-    for tick in _ticks(y_low, y_high):
-        out.append(f'<line x1="{LEFT - 3}" y1="{py(tick):.1f}" x2="{LEFT}" y2="{py(tick):.1f}" '
-                   'stroke="#111111" stroke-width="0.5"/>'
-                   f'<text x="{LEFT - 5}" y="{py(tick) + 3:.1f}" text-anchor="end">{lang.number(f"{tick:g}")}</text>')
+    x_ticks, y_ticks = _ticks(x_low, x_high), _ticks(y_low, y_high)
+    marks = [f"M{px(t):.1f},{TOP + plot_h}v3" for t in x_ticks]
+    marks += [f"M{LEFT - 3},{py(t):.1f}h3" for t in y_ticks]
+    out.append(f'<path d="{"".join(marks)}" stroke="#111111" stroke-width="0.5" fill="none"/>')
+    out += [f'<text x="{px(t):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{lang.number(f"{t:g}")}</text>'
+            for t in x_ticks]
+    out += [f'<text x="{LEFT - 5}" y="{py(t) + 3:.1f}" text-anchor="end">{lang.number(f"{t:g}")}</text>' for t in y_ticks]
     out.append(f'<text x="{LEFT + plot_w / 2:.1f}" y="{HEIGHT - 4}" text-anchor="middle">'
                f'{escape(labels["axis_x"])}</text>')
     out.append(f'<text x="10" y="{TOP + plot_h / 2:.1f}" text-anchor="middle" '
                f'transform="rotate(-90 10 {TOP + plot_h / 2:.1f})">{escape(labels["axis_y"])}</text>')
     for direction, x, level in drawn:
         cols, low, high = envelope(x, level, x_low, x_high, plot_w)
-        points = []
-        for c, lo, hi in zip(cols, low, high):
-            cx = LEFT + c + 0.5
-            points.append(f"{cx:.1f},{py(lo):.1f} {cx:.1f},{py(hi):.1f}")
-        stroke, dash = STYLE[direction]
-        if points:
-            out.append(f'<polyline fill="none" {stroke}{dash} stroke-width="0.8" points="{" ".join(points)}"/>')
+        if not len(cols):
+            continue
+        # each column a stroke from its lowest to its highest sample, the columns joined in order
+        points = np.empty((2 * len(cols), 2))
+        points[:, 0] = np.repeat(LEFT + cols + 0.5, 2)
+        scale = plot_h / (y_high - y_low)
+        points[0::2, 1] = TOP + (y_high - np.clip(low, y_low, y_high)) * scale  # py(), vectorised
+        points[1::2, 1] = TOP + (y_high - np.clip(high, y_low, y_high)) * scale
+        kept = points[simplify(points, SIMPLIFY_PX)]
+        stroke = STYLE[direction][0]
+        # tenths of a unit as whole numbers, scaled back by the transform (quick to write)
+        text = " ".join(map(str, np.rint(kept * 10).astype(np.int64).ravel().tolist()))
+        out.append(f'<polyline fill="none" {stroke}{TRACE_DASH[direction]} stroke-width="8" '
+                   f'transform="scale(0.1)" points="{text}"/>')
     if not drawn:
         out.append(f'<text x="{LEFT + plot_w / 2:.1f}" y="{TOP + plot_h / 2:.1f}" text-anchor="middle">'
                    f'{escape(labels["no_trace"])}</text>')
+    # events: one path of dotted guides, one path per fill of the marks (few elements to draw)
+    guides, shapes = [], {"#111111": [], "#ffffff": []}
+    numbers = []
     for number, event in enumerate(strand.events, start=1):
         cx, cy = px(event.position_m), TOP + 10
-        fill = "#111111" if event.verdict == "fail" else "#ffffff"
-        shape = (f'<path d="M{cx:.1f},{cy - 5:.1f} L{cx + 5:.1f},{cy:.1f} L{cx:.1f},{cy + 5:.1f} '
-                 f'L{cx - 5:.1f},{cy:.1f} Z"' if event.kind in JUDGED_AS_CONNECTION
-                 else f'<circle cx="{cx:.1f}" cy="{cy:.1f}" r="4"' if event.kind is OtdrEventKind.SPLICE
-                 else f'<rect x="{cx - 3.5:.1f}" y="{cy - 3.5:.1f}" width="7" height="7"')
-        out.append(f'<line x1="{cx:.1f}" y1="{cy + 5:.1f}" x2="{cx:.1f}" y2="{TOP + plot_h}" stroke="#bbbbbb" '
-                   'stroke-width="0.5" stroke-dasharray="1 2"/>')
-        out.append(f'{shape} fill="{fill}" stroke="#111111" stroke-width="0.8"/>')
-        out.append(f'<text x="{cx:.1f}" y="{cy - 8:.1f}" text-anchor="middle" font-size="8">{number}</text>')
+        guides.append(f"M{cx:.1f},{cy + 5:.1f}V{TOP + plot_h}")
+        shapes["#111111" if event.verdict == "fail" else "#ffffff"].append(
+            f"M{cx:.1f},{cy - 5:.1f}l5,5l-5,5l-5,-5z" if event.kind in JUDGED_AS_CONNECTION
+            else f"M{cx - 4:.1f},{cy:.1f}a4,4 0 1,0 8,0a4,4 0 1,0 -8,0z" if event.kind is OtdrEventKind.SPLICE
+            else f"M{cx - 3.5:.1f},{cy - 3.5:.1f}h7v7h-7z")
+        numbers.append(f'<text x="{cx:.1f}" y="{cy - 8:.1f}" text-anchor="middle" font-size="8">{number}</text>')
+    if guides:
+        out.append(f'<path d="{"".join(guides)}" stroke="#bbbbbb" stroke-width="0.5" '
+                   'stroke-dasharray="1 2" fill="none"/>')
+    for fill, parts in shapes.items():
+        if parts:
+            out.append(f'<path d="{"".join(parts)}" fill="{fill}" stroke="#111111" stroke-width="0.8"/>')
+    out += numbers
     legend_y = 12
     for i, direction in enumerate((Direction.AB, Direction.BA)):
         if not any(d is direction for d, _x, _l in drawn):
@@ -148,7 +204,7 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     return "".join(out)
 
 
-def _ticks(low: float, high: float, count: int = 6) -> list[float]:
+def _ticks(low: float, high: float, count: int = TICKS) -> list[float]:
     raw = (high - low) / count
     step = 10 ** math.floor(math.log10(raw))
     for factor in (1, 2, 5, 10):

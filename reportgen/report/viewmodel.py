@@ -109,7 +109,8 @@ class ComponentView:
 
 @dataclass(frozen=True)
 class EvidenceView:
-    """Where a finding's evidence comes from: a file and its lines ("" for a setting)."""
+    """Where a finding's evidence comes from: a file and its lines ("" for a setting; no
+    lines for a file read whole, such as an OTDR trace file)."""
 
     file: str
     lines: tuple[int, ...]
@@ -687,7 +688,9 @@ def _finding_views(findings: Iterable[Finding], anchors: Mapping[str, str]
         by_file: dict[str, list[int]] = {}
         for row in finding.evidence:
             if row.get("file"):
-                by_file.setdefault(str(row["file"]), []).append(int(row.get("line") or 0))
+                lines = by_file.setdefault(str(row["file"]), [])
+                if row.get("line") is not None:  # a trace file has no lines
+                    lines.append(int(row["line"]))
         views.append(FindingView(
             finding=finding, severity=finding.severity.value, rule=finding.rule,
             link_id=finding.link_id or "", anchor=anchors.get(finding.link_id or "", ""),
