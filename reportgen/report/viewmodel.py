@@ -390,6 +390,7 @@ class ArchiveView:
 
     digest: str
     signer: str = ""   # who signs the PDF (name on the certificate); "" when unsigned
+    not_embedded: tuple[str, ...] = ()  # input files listed but not attached (OTDR size cap)
 
 
 @dataclass(frozen=True)
