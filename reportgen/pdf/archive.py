@@ -4,8 +4,9 @@
 on the whole file, so the merged report conforms and not only the WeasyPrint parts:
 
 - XMP metadata (ISO 19005-3, 6.6): the PDF/A identification (part 3, conformance B),
-  title, author, creator tool, producer and the dates of the document information
-  dictionary, all from the build's inputs and date (no clock);
+  title, author, creator tool and creation date of the document information dictionary,
+  the producer and modification date (in XMP only: see :mod:`reportgen.pdf.sign`), all
+  from the build's inputs and date (no clock);
 - an sRGB output intent (6.2.3), with the ICC profile WeasyPrint ships
   (:func:`reportgen.pdf.weasy.srgb_icc_profile`);
 - every annotation printable and not hidden (6.3.2);

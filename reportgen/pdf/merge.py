@@ -212,11 +212,12 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     add_links(writer, frames, anchors)
     add_outline(writer, parts, anchors)
     add_named_destinations(writer, parts, anchors)
-    date = pdf_date(created)
-    writer.add_metadata({
-        "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
-        "/CreationDate": date, "/ModDate": date,
-    })
+    # The document information holds no /Producer and no /ModDate (the XMP packet does):
+    # pyHanko, signing, sets the XMP producer to its own name and the Info /Producer to
+    # ours followed by its name, and writes the signing time into each date separately;
+    # without the two keys in Info, Info and XMP still agree after signing (PDF/A-3 6.6.2.3).
+    writer.metadata = {"/Title": TextStringObject(title), "/Creator": CREATOR,
+                       "/CreationDate": pdf_date(created)}
     make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
                   created=created, attachments=attachments)
     if compact:

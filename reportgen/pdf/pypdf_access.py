@@ -32,7 +32,7 @@ one test per use; run it before raising the pypdf bound in pyproject.toml):
    the file is repacked). Used by archive.make_archival. Checked on pypdf 7.1.1.
 
 Everything else the pdf package does with pypdf uses documented API: ``PdfReader``,
-``PdfWriter.add_page``/``insert_page``/``add_outline_item``/``add_metadata``/
+``PdfWriter.add_page``/``insert_page``/``add_outline_item``/``add_metadata``/``metadata``/
 ``compress_identical_objects``/``write``, ``page_mode``, ``indirect_reference`` and
 the objects of :mod:`pypdf.generic`.
 """
