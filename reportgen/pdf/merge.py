@@ -192,7 +192,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
 
     Adds the page-number stamps, links, outline and metadata, then makes the merged
-    file PDF/A-3b with ``attachments`` embedded (:func:`reportgen.pdf.archive.make_archival`);
+    file PDF/A-3u with ``attachments`` embedded (:func:`reportgen.pdf.archive.make_archival`);
     with ``compact``, merges identical objects and repacks with qpdf when installed.
     ``seal(pdf, places)``, given, signs the finished file (:mod:`reportgen.pdf.sign`);
     ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).

@@ -8,7 +8,7 @@ font in the appearance would break the archive format). The key and certificate 
 the file enters the report, only the signer's certificate, as in every PDF signature.
 
 The signature is appended as an incremental update, so everything before it, the
-PDF/A-3b file with its attachments, stays byte for byte as built. A signed report is
+PDF/A-3u file with its attachments, stays byte for byte as built. A signed report is
 not byte-identical between two builds (the signature holds the signing time).
 
 pyHanko updates the metadata in the signing revision: XMP ``pdf:Producer`` becomes its
