@@ -219,6 +219,7 @@ class ReportOptions:
     # OTDR trace files embedded in report.pdf: each at most, all together at most (MB, 10**6 bytes)
     otdr_file_mb: float = 2.0
     otdr_total_mb: float = 50.0
+    tagged: bool = False  # render report.pdf with its structure tree (Tagged PDF)
 
 
 @dataclass(frozen=True)

@@ -53,7 +53,7 @@ KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "testing.otdr": OTDR_KEYS,
     "testing.audit": tuple(audit.AUDIT_KEYS),
     "testing.period": ("start", "end"),
-    "report": ("paper", "templates", "embed_otdr_file_mb", "embed_otdr_total_mb"),
+    "report": ("paper", "templates", "embed_otdr_file_mb", "embed_otdr_total_mb", "tagged"),
 }
 REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
                                   ("project.contractor", "name"), ("testing", "limits"),
@@ -270,7 +270,7 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
     if value is None:
         return ReportOptions()
     if not isinstance(value, Mapping):
-        check.problem("report", "a mapping with paper, templates, embed_otdr_file_mb, embed_otdr_total_mb", value)
+        check.problem("report", "a mapping with paper, templates, embed_otdr_file_mb, embed_otdr_total_mb, tagged", value)
         return None
     check.misspelt_keys(value, "report")
     paper = check.choice(value, "paper", "report.paper", Paper, Paper.A4)
@@ -279,6 +279,10 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
         if value.get(key) is not None:
             caps[field] = check.number(value[key], f"report.{key}", "of megabytes, 0 or more",
                                        0.0, 1e6)
+    tagged = value.get("tagged", False)
+    if not isinstance(tagged, bool):
+        check.problem("report.tagged", "true or false", tagged)
+        tagged = None
     templates = None
     if value.get("templates") is not None:
         templates = check.inside_path(value["templates"], "report.templates", "a templates folder")
@@ -294,6 +298,6 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
                 templates = None
         if templates is None:
             return None
-    if paper is None or None in caps.values():
+    if paper is None or None in caps.values() or tagged is None:
         return None
-    return ReportOptions(paper=paper, templates=templates, **caps)
+    return ReportOptions(paper=paper, templates=templates, tagged=tagged, **caps)

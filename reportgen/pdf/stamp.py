@@ -11,7 +11,9 @@ message naming the package to install: report.pdf is an archive file (PDF/A-3u),
 every font must be embedded, so there is no fallback to an unembedded standard font.
 
 Each page's original content is wrapped in ``q … Q`` so that the graphics state a
-part leaves behind (WeasyPrint flips the y axis) cannot move the stamp.
+part leaves behind (WeasyPrint flips the y axis) cannot move the stamp. What the stamp
+draws is marked as an artifact (``/Artifact BMC … EMC``, ISO 32000-1, 14.8.2.2), so
+that in a tagged report it stands outside the structure tree, as page numbers should.
 
 The font and the streams are added to the writer through
 :func:`reportgen.pdf.pypdf_access.add_indirect` (pypdf has no documented method for it).
@@ -213,7 +215,7 @@ def stamp_operators(text: str, frame: PageFrame, font: StampFont) -> bytes:
     right_pt = frame.width_pt - frame.right_margin_pt
     x_pt = right_pt - font.width_pt(text, size_pt)
     baseline_pt = max(frame.bottom_margin_pt / 2 - CAP_HEIGHT_EM * size_pt / 2, 2.0)
-    return b"Q q 0 g BT %s %.1f Tf 1 0 0 1 %.2f %.2f Tm %s Tj ET Q" % (
+    return b"Q q /Artifact BMC 0 g BT %s %.1f Tf 1 0 0 1 %.2f %.2f Tm %s Tj ET EMC Q" % (
         STAMP_FONT_RESOURCE.encode(), size_pt, x_pt, baseline_pt, _pdf_string(text))
 
 
@@ -242,8 +244,9 @@ class Stamper:
         """Wrap the page's content in ``q … Q``; draw ``text`` and the slots' texts after it."""
         operators = []
         if slot_texts:  # first: text extraction then reads them before the page label
-            operators.append(b"Q q " + b" ".join(slot_operators(slot, slot_text, self.font)
-                                                 for slot, slot_text in slot_texts))
+            operators.append(b"Q q /Artifact BMC " + b" ".join(
+                slot_operators(slot, slot_text, self.font) for slot, slot_text in slot_texts)
+                + b" EMC")
         operators.append(stamp_operators(text, frame, self.font))
         stream = DecodedStreamObject()
         stream.set_data(b"\n" + b"\n".join(operators) + b"\n")

@@ -447,6 +447,7 @@ class ReportView:
     unconfirmed_values: int = 0
     input_files: tuple[InputFileView, ...] = ()  # every file read, by path
     archive: ArchiveView | None = None    # None when no manifest was made (e.g. golden file)
+    tagged: bool = False                  # the PDF parts ask for a structure tree
 
 
 def slugify(text: str) -> str:
@@ -818,6 +819,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
                                         results=f.results, links=f.links) for f in project.input_files),
         archive=archive,
+        tagged=project.report.tagged,
     )
 
 
