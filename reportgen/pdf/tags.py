@@ -85,6 +85,8 @@ def mark_artifacts(page: DictionaryObject, mcids: set[int]) -> Counter[int]:
         changed = MARKED.sub(swap, data)
         if changed != data:
             stream.set_data(changed)
+        if getattr(stream, "decoded_self", None) is not None:
+            stream.decoded_self = None  # pypdf keeps the decoded copy; the merge needs none
     return seen
 
 
