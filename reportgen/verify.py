@@ -205,20 +205,26 @@ def _check_otdr(summary_links: list[Any], outcome: Any, absent: frozenset[str],
         stated = link.get("otdr") or [] if isinstance(link, dict) else []
         again = {(item["strand"], item["wavelength_nm"]): item for item in json.loads(
             json_bytes({"otdr": otdr_json(outcome.otdr, str(link_id))}))["otdr"]}
+        stated = [item for item in stated if isinstance(item, dict)] if isinstance(
+            stated, list) else []
+        listed = {(item.get("strand"), item.get("wavelength_nm")) for item in stated}
         for item in stated:
             key = (item.get("strand"), item.get("wavelength_nm"))
             where = f"{link_id} strand {key[0]} {key[1]} nm"
-            missing = sorted(set(item.get("files") or ()) & absent)
+            files = item.get("files") if isinstance(item.get("files"), list) else []
+            missing = sorted(set(map(str, files)) & absent)
+            rejudged = again.pop(key, None)
             if missing:
                 not_derived.append(f"{where} ({', '.join(missing)})")
-            elif again.pop(key, None) != item:
-                differ.append(f"{where}: the verdict {item.get('verdict')!r} or an event differs "
-                              "when judged again")
+            elif rejudged != item:
+                keys = sorted(set(item) | set(rejudged or {}))
+                changed = [k for k in keys if item.get(k) != (rejudged or {}).get(k)]
+                differ.append(f"{where}: differs in {', '.join(changed)} when judged again "
+                              f"(summary.json says verdict {item.get('verdict')!r})")
             else:
                 equal += 1
         differ += [f"{link_id} strand {key[0]} {key[1]} nm: judged again, not in summary.json"
-                   for key in again if not any(key == (item.get("strand"), item.get("wavelength_nm"))
-                                               for item in stated)]
+                   for key in again if key not in listed]
     checks = [Check(f"{name}: OTDR verdicts in summary.json", not differ,
                     f"all {equal} OTDR verdicts judged again, with their events, equal"
                     if not differ else "; ".join(differ[:10])

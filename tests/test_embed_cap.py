@@ -230,3 +230,22 @@ def test_verify_of_the_capped_demo_names_what_it_could_not_judge_again(
     assert "FAIL" not in text
     assert "not embedded; the project folder's copy has the manifest's" in text
     assert "all 6 OTDR verdicts judged again" in text  # the demo: CB-01, CB-03, CB-07 x 2 wavelengths
+
+
+def test_a_changed_otdr_verdict_in_summary_json_is_named(make_project, tmp_path: Path) -> None:
+    root = make_project({"project.yaml": OTDR_YAML.replace("embed_otdr_file_mb: 0",
+                                                           "embed_otdr_file_mb: 2"),
+                         "otdr/a.sor": _sor("Room 1", 1310), "otdr/b.sor": _sor("hut 3", 1310),
+                         "otdr/index.csv": "file,link_id,strand,direction\n"
+                                           "a.sor,L2,1,ab\nb.sor,L2,1,ba\n"})
+    files, entries = _files_of_data_build(root, tmp_path / "out")
+    assert all(entry.get("embedded", True) for entry in entries)  # within the cap
+    summary = json.loads(files[manifest.SUMMARY_NAME])
+    (strand,) = [link for link in summary["links"] if link["link_id"] == "L2"][0]["otdr"]
+    strand["verdict"] = "fail" if strand["verdict"] == "pass" else "pass"
+    files[manifest.SUMMARY_NAME] = json.dumps(summary).encode()
+    checks = {check.name: check for check in
+              verify._check_verdicts(files, "reportgen test", verify._left_out(entries, None))}
+    changed = checks["verdicts follow from the data: OTDR verdicts in summary.json"]
+    assert not changed.ok
+    assert changed.detail.startswith("L2 strand 1 1310 nm: differs in verdict when judged again")
