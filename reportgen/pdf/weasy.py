@@ -44,7 +44,9 @@ one test per item; run it before raising the WeasyPrint bound in pyproject.toml)
    ``<base>`` element (our templates write none). Checked on WeasyPrint 70.0.
 7. ``HTML.etree_element`` (undocumented attribute), in :func:`parsed_tree`: the
    tree WeasyPrint parsed (or the one set by 6), searched for bookmark elements
-   (``data-bookmark``). Checked on WeasyPrint 70.0.
+   (``data-bookmark``) and for the head's request for a structure tree
+   (:func:`asks_for_tags`; the tree itself is written by the documented ``write_pdf``
+   option ``pdf_tags``). Checked on WeasyPrint 70.0.
 8. The sRGB ICC profile WeasyPrint ships for its own PDF/A output
    (``weasyprint/pdf/sRGB2014.icc``, package data, not API), in
    :func:`srgb_icc_profile`: the output intent of the archive file
