@@ -19,6 +19,7 @@ from rich.console import Console
 
 from reportgen import __version__
 from reportgen.errors import InputError, ReportgenError
+from reportgen.model import ReportLanguage
 
 MAX_PROBLEMS_SHOWN = 50
 
@@ -193,8 +194,13 @@ def check(project: Path, show_all: bool) -> None:
 @click.option("--sign", "sign_p12", type=click.Path(path_type=Path), metavar="KEY.p12",
               help="Sign report.pdf with the key and certificate of this PKCS#12 file; its "
                    f"password comes from {SIGN_PASSWORD_VARIABLE} or is asked for.")
+@click.option("--language", type=click.Choice([code.value for code in ReportLanguage]),
+              default=None,
+              help="Language of report.html and report.pdf (default: report.language in "
+                   "project.yaml, else en). Terminal output stays English.")
 def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
-          no_cache: bool, cluster: str | None, sign_p12: Path | None) -> None:
+          no_cache: bool, cluster: str | None, sign_p12: Path | None,
+          language: str | None) -> None:
     """Validate, judge and write the report of PROJECT.
 
     A rebuild into the same output folder renders only the parts of the PDF that
@@ -209,7 +215,7 @@ def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
     with progress_bar(_stderr(), enabled=not data_only) as progress:
         result = pipeline.build(project, output, report=not data_only, progress=progress,
                                 jobs=jobs, cache=not no_cache, cluster=cluster or None,
-                                sign_key=sign_key)
+                                sign_key=sign_key, language=language)
     totals = result.outcome.judgement.totals
     counts = result.outcome.findings.counts
     _stdout().print(

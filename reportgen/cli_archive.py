@@ -285,7 +285,7 @@ def report(db_url: str | None, output: Path, age: str, as_of: datetime | None,
     from reportgen.archive import html, store
     from reportgen.archive.compare import compare_link
     from reportgen.export.atomic import write_outputs
-    from reportgen.report.messages import SAFETY
+    from reportgen.report.messages_appendix import SAFETY
     from reportgen.report.render import templates_dir
 
     archive_ = _archive(db_url)
@@ -359,12 +359,64 @@ def _emit(rows: list[dict[str, Any]], fmt: str, columns: list[str], empty: str) 
     if not rows:
         _out().print(empty, markup=False)
         return
+    # On a terminal: the two test dates as one column, short headings, counts right-aligned and
+    # never wrapped, so the table fits an 80-column terminal (csv and json keep every field).
+    if "tested_first" in columns and "tested_last" in columns:
+        rows = [{**row, "tested": _date_span(row.get("tested_first"), row.get("tested_last"))}
+                for row in rows]
+        at = columns.index("tested_first")
+        columns = [*columns[:at], "tested", *[c for c in columns[at:] if c not in ("tested_first",
+                                                                                  "tested_last")]]
     table = Table(show_header=True, header_style="bold")
     for column in columns:
-        table.add_column(column)
+        counts = all(isinstance(row.get(column), int) or row.get(column) is None for row in rows)
+        label = _heading(column)
+        if counts:
+            table.add_column(label, justify="right", no_wrap=True)
+        else:  # wrapped between words; headings never broken
+            table.add_column(label, min_width=max(map(len, label.split())), overflow="fold")
     for row in rows:
-        table.add_row(*("" if row.get(k) is None else str(row.get(k)) for k in columns))
-    _out().print(table)
+        table.add_row(*(_cell(row.get(k)) for k in columns))
+    out = _out()
+    # the table's natural width: each column as wide as its longest cell, plus rules and padding
+    natural = 1 + sum(3 + max(len(_heading(column)), *(len(_cell(row.get(column))) for row in rows))
+                      for column in columns)
+    if natural <= out.width:
+        out.print(table)
+        return
+    # Too wide for this terminal: one block per row, a field per line, instead of a table
+    # squeezed into slivers.
+    width = max(len(_heading(column)) for column in columns)
+    for number, row in enumerate(rows):
+        if number:
+            out.print()
+        for column in columns:
+            out.print(f"{_heading(column):<{width}}  {_cell(row.get(column))}", markup=False, highlight=False)
+
+
+# Headings of the terminal tables where the field name is long; csv and json use the field names.
+TABLE_HEADINGS = {"links_total": "links", "links_pass": "pass", "links_fail": "fail",
+                  "links_incomplete": "incomplete", "title": "campaign", "tested_last": "last tested",
+                  "worst_margin_db": "worst margin dB", "length_m": "length m", "fiber_type": "fiber"}
+
+
+def _heading(column: str) -> str:
+    return TABLE_HEADINGS.get(column, column.replace("_", " "))
+
+
+def _date_span(first: str | None, last: str | None) -> str:
+    first, last = (_cell(value) for value in (first, last))
+    return first if first == last or not last else f"{first} to {last}" if first else last
+
+
+def _cell(value: Any) -> str:
+    """A value as the terminal table shows it: a test time as its date (csv and json keep it)."""
+    if value is None:
+        return ""
+    text = str(value)
+    if len(text) > 10 and text[4:5] == "-" and text[10:11] == "T" and text[:4].isdigit():
+        return text[:10]
+    return text
 
 
 # ---------------------------------------------------------------- compare
@@ -404,7 +456,7 @@ def compare(baseline: Path, retest: Path, output: Path | None, threshold_db: flo
     from reportgen.archive.compare import (comparison_csv_bytes, comparison_json,
                                            comparison_json_bytes, compare_campaigns)
     from reportgen.export.atomic import write_outputs
-    from reportgen.report.messages import SAFETY
+    from reportgen.report.messages_appendix import SAFETY
     from reportgen.report.render import templates_dir
 
     before, after = load_campaign(baseline), load_campaign(retest)

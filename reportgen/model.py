@@ -74,6 +74,14 @@ class Paper(StrEnum):
     LETTER = "letter"
 
 
+class ReportLanguage(StrEnum):
+    """The languages a report can be written in (report.language, build --language)."""
+    EN = "en"
+    DE = "de"
+    FR = "fr"
+    ES = "es"
+
+
 class ResultVerdict(StrEnum):
     PASS = "pass"
     FAIL = "fail"
@@ -216,6 +224,7 @@ class Instrument:
 class ReportOptions:
     paper: Paper = Paper.A4
     templates: Path | None = None  # resolved folder inside the project folder
+    language: ReportLanguage = ReportLanguage.EN
     # OTDR trace files embedded in report.pdf: each at most, all together at most (MB, 10**6 bytes)
     otdr_file_mb: float = 2.0
     otdr_total_mb: float = 50.0

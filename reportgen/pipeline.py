@@ -28,7 +28,9 @@ from reportgen.engine.applications import ProjectApplications, assess_project
 from reportgen.engine.judge import Judgement, judge_project
 from reportgen.engine.findings import Findings, find_all
 from reportgen.engine.otdr import OtdrAssessment, assess_otdr
-from reportgen.report.messages import PAGE_LABEL, archive_page_label, finding_text, reason_text
+from reportgen.report.messages import archive_page_label, page_label
+from reportgen.report.messages_apps import reason_text
+from reportgen.report.messages_findings import finding_text
 from reportgen.model import Project
 from reportgen.inputs.apptable import table_version
 from reportgen.inputs.project import load_project, read_files
@@ -137,6 +139,7 @@ def build(
     cache: bool = True,
     cluster: str | None = None,
     sign_key: Any = None,
+    language: str | None = None,
 ) -> BuildResult:
     """Validate, judge, render and write every output; nothing is written on failure.
 
@@ -146,6 +149,9 @@ def build(
     reused (``OUT/.reportgen-cache``, :mod:`reportgen.pdf.cache`); the part cache is
     the one thing written before the outputs, each entry whole or not at all.
     ``sign_key`` (:func:`reportgen.pdf.sign.load_signing_key`) signs report.pdf.
+    ``language`` (en, de, fr, es; ``build --language``) overrides the project's
+    ``report.language`` for report.html and report.pdf; results.csv and summary.json are
+    the same in every language.
     """
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
@@ -168,7 +174,7 @@ def build(
         outputs = render_report(outcome, now=now, version=version, progress=progress,
                                 alongside=data_outputs, jobs=jobs,
                                 cache_dir=out_dir if cache else None, cluster=cluster,
-                                archive=archive, sign_key=sign_key)
+                                archive=archive, sign_key=sign_key, language=language)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
         outputs = data_outputs()
@@ -284,32 +290,34 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
                   jobs: int | None = None, cache_dir: Path | None = None,
                   cluster: str | None = None, archive: Archive | None = None,
-                  sign_key: Any = None) -> dict[str, bytes]:
+                  sign_key: Any = None, language: str | None = None) -> dict[str, bytes]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
 
     Returns the outputs of ``alongside()`` (made first: the PDF embeds them), then
     report.html (made by a thread while the PDF workers are busy) and report.pdf.
     ``cache_dir`` is the output folder whose part cache is used (None: render every
-    part); ``archive`` is attached to the PDF, ``sign_key`` signs it.
+    part); ``archive`` is attached to the PDF, ``sign_key`` signs it; ``language``
+    overrides the project's report.language.
     """
     from reportgen.pdf import engine as pdf
     from reportgen.pdf.cache import PartCache
     from reportgen.report import render
 
     log.info("Step 4: rendering the report")
+    lang = render.language_of(outcome.project, language)
     document = render.build_report(
         outcome.project, outcome.judgement, now=now, version=version,
         applications=outcome.applications, findings=outcome.findings, otdr=outcome.otdr,
         archive=(report_view_archive(archive, sign_key.subject if sign_key is not None else "")
-                 if archive is not None else None))
+                 if archive is not None else None), language=lang.code)
 
     # The data files are embedded in the PDF, so they are made first (they are quick);
     # report.html is written by a thread while the PDF workers are busy.
     made = alongside() if alongside is not None else {}
     attachments = (attachments_of(archive, made[manifest_file.SUMMARY_NAME])
                    if archive is not None and manifest_file.SUMMARY_NAME in made else [])
-    label = (archive_page_label(manifest_file.short_digest(archive.digest))
-             if archive is not None else PAGE_LABEL)
+    label = (archive_page_label(manifest_file.short_digest(archive.digest), lang)
+             if archive is not None else page_label(lang))
     seal = None
     if sign_key is not None:
         from reportgen.pdf.sign import sign_pdf
@@ -319,7 +327,7 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
         html = thread.submit(lambda: document.html.encode("utf-8"))
         pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
                                    title=outcome.project.info.title, created=now,
-                                   page_label=label, progress=progress,
+                                   page_label=label, language=lang.code, progress=progress,
                                    xml_first=document.own_templates,
                                    author=outcome.project.info.contractor.name,
                                    attachments=attachments, seal=seal,

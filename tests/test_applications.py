@@ -26,7 +26,7 @@ from reportgen.errors import InputError
 from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
 from reportgen.engine.power import LossRange, judged_loss_ranges
-from reportgen.report.messages import reason_text
+from reportgen.report.messages_apps import reason_text
 from tests.builders import make_link, make_project
 
 TABLE = load_applications()

@@ -76,6 +76,27 @@ def test_add_is_idempotent_and_list_shows_campaigns(archive_url, campaigns, caps
     assert [c["tested_last"] for c in listed][:2] == ["2024-03-01T10:00", "2031-06-01T11:00"]
 
 
+def test_terminal_list_is_a_table_when_it_fits_else_one_block_per_campaign(
+        archive_url, campaigns, capsys, monkeypatch):
+    run(capsys, "archive", "add", *campaigns, "--db", archive_url)
+    monkeypatch.setenv("COLUMNS", "200")
+    status, wide, _ = run(capsys, "archive", "list", "--db", archive_url)
+    assert status == 0
+    heading = next(line for line in wide.splitlines() if "contractor" in line)
+    for label in ("id", "site", "campaign", "contractor", "tested", "links", "pass", "fail",
+                  "incomplete"):
+        assert label in heading
+    assert "2024-03-01 to 2024-03-01" not in wide and "2031-06-01T" not in wide  # dates, one span
+    monkeypatch.setenv("COLUMNS", "60")
+    status, narrow, _ = run(capsys, "archive", "list", "--db", archive_url)
+    assert status == 0
+    assert "┃" not in narrow  # no table squeezed into slivers
+    blocks = narrow.strip().split("\n\n")
+    assert len(blocks) == 3
+    assert blocks[1].splitlines()[1].split(None, 1) == ["site", SITE_N]
+    assert "contractor  Birch Testing (invented)" in blocks[1]
+
+
 def test_links_latest_state_and_filters(archive_url, campaigns, capsys):
     run(capsys, "archive", "add", *campaigns, "--db", archive_url)
     base = ["archive", "links", "--db", archive_url, "--format", "json"]

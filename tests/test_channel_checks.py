@@ -34,7 +34,7 @@ from reportgen.model import (
     ResultFlag,
     Transceiver,
 )
-from reportgen.report.messages import reason_text
+from reportgen.report.messages_apps import reason_text
 from tests.builders import TEST_LIMITS, make_link, make_project
 
 # 0.75 dB per mated connector pair (TIA-568.3-D / ISO/IEC 11801-1, verified, secondary)

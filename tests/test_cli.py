@@ -253,7 +253,8 @@ def test_version_help_and_usage_errors(capsys):
 
 @pytest.mark.slow
 def test_installed_package_runs_from_another_folder(tmp_path):
-    """The wheel ships templates and data: run the installed package outside the checkout."""
+    """The wheel ships templates, data and the compiled catalogues: run the installed package
+    outside the checkout, in German."""
     probe = subprocess.run([sys.executable, "-c", "import reportgen, sys; print(reportgen.__file__)"],
                            cwd=tmp_path, capture_output=True, text=True)
     location = probe.stdout.strip()
@@ -261,7 +262,11 @@ def test_installed_package_runs_from_another_folder(tmp_path):
         pytest.skip("reportgen is not installed outside the checkout (run pip install . first)")
     out = tmp_path / "out"
     env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
-    done = subprocess.run([sys.executable, "-m", "reportgen", "build", str(DEMO), "-o", str(out)],
+    done = subprocess.run([sys.executable, "-m", "reportgen", "build", str(DEMO), "-o", str(out),
+                           "--language", "de"],
                           cwd=tmp_path, capture_output=True, text=True, env=env)
     assert done.returncode == 0, done.stderr
     assert (out / "report.pdf").stat().st_size > 10_000
+    # the installed package reads its compiled German catalogue (the wheel carries no .po)
+    assert '<html lang="de">' in (out / "report.html").read_text(encoding="utf-8")
+    assert "Streckenverzeichnis" in (out / "report.html").read_text(encoding="utf-8")

@@ -24,7 +24,7 @@ from reportgen.model import (
     ReferenceMethod,
     Transceiver,
 )
-from reportgen.report.messages import FINDING_TEXT, RULE_TEXT, finding_text
+from reportgen.report.messages_findings import FINDING_TEXT, RULE_TEXT, finding_text
 from tests.builders import make_link, make_project
 
 TODAY = date(2030, 2, 1)  # the build day of these tests: after every result below

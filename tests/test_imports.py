@@ -493,12 +493,12 @@ def test_a_glob_over_the_whole_folder_does_not_read_the_default_output_folder(tm
 
 
 def test_a_spreadsheet_that_would_unpack_too_large_is_not_read(tmp_path, monkeypatch):
-    from reportgen.inputs import imports
+    from reportgen.inputs import import_grid
 
     _write_imported(tmp_path)
     with zipfile.ZipFile(tmp_path / "schedule" / "links.xlsx") as archive:
         unpacked = sum(member.file_size for member in archive.infolist())
-    monkeypatch.setattr(imports, "MAX_UNPACKED_BYTES", unpacked - 1)  # one byte too many
+    monkeypatch.setattr(import_grid, "MAX_UNPACKED_BYTES", unpacked - 1)  # one byte too many
     problems = _problems(tmp_path)
     assert problems[0].startswith("schedule/links.xlsx: expected a spreadsheet of at most ")
     assert "unpacked; this one unpacks to" in problems[0]

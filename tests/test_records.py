@@ -273,8 +273,8 @@ def test_findings_show_on_cover_action_list_sheet_and_appendix():
     message = ("Used after its calibration due date: PM-1 (due 2030-01-10), for 4 results "
                "(last use 2030-01-15).")
     assert "findings-tally" in cover and messages.msg("overall_errors_too", errors=1) not in cover
-    assert messages.msg("overall_blocked", links=1, errors=1) in cover
-    assert messages.msg("overall_all_pass", links=1) not in cover
+    assert messages.Words().plural("overall_blocked", 1, links=1, errors=1) in cover
+    assert messages.Words().plural("overall_all_pass", 1, links=1) not in cover
     assert message in action and 'href="#link-l1"' in action
     assert message in sheet and "results/r.csv line 2, 3, 4, 5" in sheet
     assert 'id="appx-audit"' in html and html.count('class="code">calibration-overdue<') == 1

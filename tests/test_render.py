@@ -9,7 +9,7 @@ import jinja2
 import pytest
 
 from builders import make_link, make_project, well_formed
-from reportgen.report import messages
+from reportgen.report import formats, messages, messages_appendix
 from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, ReportOptions
 from reportgen.report.render import LazyDocuments, build_report, css_string
@@ -119,7 +119,7 @@ def test_project_template_replaces_one_file_and_falls_back_for_others(tmp_path: 
     project = dataclasses.replace(mixed_project(), report=ReportOptions(templates=tmp_path))
     doc = render(project)
     assert "OUR OWN APPENDIX for T" in doc.html
-    assert messages.SAFETY[0] not in doc.html  # ours replaced
+    assert messages_appendix.SAFETY[0] not in doc.html  # ours replaced
     assert 'id="link-l-fail"' in doc.html  # the other files still ours
 
 
@@ -130,12 +130,12 @@ def test_link_anchors_are_unique_and_safe():
 
 def test_number_formats():
     # Two decimals for dB everywhere; no negative zero (common practice in test reports).
-    assert messages.format_db(-0.004) == "0.00"
-    assert messages.format_db(1.25) == "1.25" and messages.format_db(-0.5) == "-0.50"
-    assert messages.format_db(None) == messages.TEXT["no_margin"]
+    assert formats.format_db(-0.004) == "0.00"
+    assert formats.format_db(1.25) == "1.25" and formats.format_db(-0.5) == "-0.50"
+    assert formats.format_db(None) == messages.TEXT["no_margin"]
     # 1 ft = 0.3048 m exactly (international foot, 1959): 30.48 m is 100 ft.
-    assert messages.format_length(30.48, "ft") == "100\u00a0ft"
-    assert messages.format_length(79.94) == "79.9\u00a0m"
+    assert formats.format_length(30.48, "ft") == "100\u00a0ft"
+    assert formats.format_length(79.94) == "79.9\u00a0m"
     assert messages.PAGE_LABEL.format(page=3, pages=9) == "Page 3 of 9"
 
 

@@ -210,4 +210,4 @@ def test_long_power_list_keeps_only_the_links_needing_action(monkeypatch):
     listing = section.split(messages.TEXT["matrix_heading"])[0]
     assert 'href="#link-sr-weak"' in listing and 'href="#link-er-hot"' in listing
     assert 'href="#link-sr-fine"' not in listing  # ok: counted, not listed
-    assert messages.msg("power_list_ok_unlisted", count=1) in listing
+    assert messages.Words().plural("power_list_ok_unlisted", 1, count=1) in listing

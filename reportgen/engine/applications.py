@@ -32,7 +32,7 @@ One computation decides: :func:`check_applications` makes every comparison for e
 link × table entry (× needed wavelength) at once, as arrays. A link's listed
 applications with their reasons, its ``capable`` list and the links × applications
 matrix are all read from its :class:`ApplicationChecks`. Reasons are kinds and numbers;
-their words are the report's (``reportgen.report.messages.reason_text``).
+their words are the report's (``reportgen.report.messages_apps.reason_text``).
 
 References
 ----------
@@ -93,7 +93,7 @@ class Reason:
         return None if self.value is None else self.value + self.added_db
 
 
-# Words for a reason, supplied by the report (reportgen.report.messages.reason_text).
+# Words for a reason, supplied by the report (reportgen.report.messages_apps.reason_text).
 ReasonText = Callable[[Reason], str]
 
 

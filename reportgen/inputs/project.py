@@ -16,6 +16,7 @@ from typing import Final
 import pandas as pd
 
 from reportgen.inputs.apptable import check_application_ids, load_applications
+from reportgen.inputs import import_grid, import_table
 from reportgen.inputs import imports as importing
 from reportgen.inputs.csvread import CsvTable, read_csv
 from reportgen.errors import InputError, InputProblem
@@ -139,7 +140,7 @@ def load_project(project_dir: Path, *, absent: frozenset[str] = frozenset()) -> 
             problems += imported.remap(row_problems, positions=True)
             if frame is not None and len(frame) and not imported.problems:
                 frame["source_line"] = imported.numbers
-                frame["source"] = importing.source_texts(shown, imported.sheet, imported.numbers)
+                frame["source"] = import_table.source_texts(shown, imported.sheet, imported.numbers)
                 frames.append(frame)
 
     otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids,
@@ -218,12 +219,12 @@ def _links_from(root: Path, sources: Sequence[ImportSource]) -> str:
 
 
 def _imported_table(entry: importing.Entry, path: Path, shown: str
-                    ) -> tuple[importing.ImportedTable | None, list[InputProblem]]:
+                    ) -> tuple[import_table.ImportedTable | None, list[InputProblem]]:
     """A file of an ``imports:`` entry read and mapped to our fields (None with its problems)."""
-    grid, problems = importing.read_grid(path, shown, entry.profile, entry.sheet)
+    grid, problems = import_grid.read_grid(path, shown, entry.profile, entry.sheet)
     if grid is None:
         return None, problems
-    return importing.build_table(grid, entry, IMPORT_KINDS[entry.profile.kind])
+    return import_table.build_table(grid, entry, IMPORT_KINDS[entry.profile.kind])
 
 
 def _import_links(root: Path, entries: Sequence[importing.Entry], settings: Settings, links: list[Link],

@@ -32,6 +32,7 @@ from reportgen.model import (
     LimitSet,
     Logo,
     Paper,
+    ReportLanguage,
     ProjectInfo,
     ReferenceMethod,
     ReportOptions,
@@ -53,7 +54,8 @@ KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "testing.otdr": OTDR_KEYS,
     "testing.audit": tuple(audit.AUDIT_KEYS),
     "testing.period": ("start", "end"),
-    "report": ("paper", "templates", "embed_otdr_file_mb", "embed_otdr_total_mb", "tagged"),
+    "report": ("paper", "templates", "language", "embed_otdr_file_mb", "embed_otdr_total_mb",
+               "tagged"),
 }
 REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
                                   ("project.contractor", "name"), ("testing", "limits"),
@@ -270,10 +272,11 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
     if value is None:
         return ReportOptions()
     if not isinstance(value, Mapping):
-        check.problem("report", "a mapping with paper, templates, embed_otdr_file_mb, embed_otdr_total_mb, tagged", value)
+        check.problem("report", "a mapping with paper, templates, language, embed_otdr_file_mb, embed_otdr_total_mb, tagged", value)
         return None
     check.misspelt_keys(value, "report")
     paper = check.choice(value, "paper", "report.paper", Paper, Paper.A4)
+    language = check.choice(value, "language", "report.language", ReportLanguage, ReportLanguage.EN)
     caps = {}
     for key, field in (("embed_otdr_file_mb", "otdr_file_mb"), ("embed_otdr_total_mb", "otdr_total_mb")):
         if value.get(key) is not None:
@@ -298,6 +301,6 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
                 templates = None
         if templates is None:
             return None
-    if paper is None or None in caps.values() or tagged is None:
+    if paper is None or language is None or None in caps.values() or tagged is None:
         return None
-    return ReportOptions(paper=paper, templates=templates, tagged=tagged, **caps)
+    return ReportOptions(paper=paper, templates=templates, language=language, tagged=tagged, **caps)

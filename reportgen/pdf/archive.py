@@ -95,8 +95,9 @@ def xmp_date(moment: datetime) -> str:
 
 
 def xmp_packet(*, title: str, author: str, creator: str, producer: str,
-               created: datetime, conformance: str = PDFA_BASIC) -> bytes:
-    """The XMP metadata packet: PDF/A identification, Dublin Core title/creator, dates."""
+               created: datetime, conformance: str = PDFA_BASIC, language: str = "en") -> bytes:
+    """The XMP metadata packet: PDF/A identification, Dublin Core title/creator/language,
+    dates."""
     date = xmp_date(created)
     author_line = (f"<dc:creator><rdf:Seq><rdf:li>{escape(author)}</rdf:li></rdf:Seq>"
                    "</dc:creator>\n" if author else "")
@@ -115,6 +116,7 @@ def xmp_packet(*, title: str, author: str, creator: str, producer: str,
         f'<dc:title><rdf:Alt><rdf:li xml:lang="x-default">{escape(title)}</rdf:li>'
         "</rdf:Alt></dc:title>\n"
         f"{author_line}"
+        f"<dc:language><rdf:Bag><rdf:li>{escape(language)}</rdf:li></rdf:Bag></dc:language>\n"
         f"<xmp:CreateDate>{date}</xmp:CreateDate>\n"
         f"<xmp:ModifyDate>{date}</xmp:ModifyDate>\n"
         f"<xmp:MetadataDate>{date}</xmp:MetadataDate>\n"
@@ -213,7 +215,8 @@ def fonts_without_unicode(writer: PdfWriter) -> list[str]:
 
 
 def make_archival(writer: PdfWriter, *, title: str, author: str, creator: str, producer: str,
-                  created: datetime, attachments: Sequence[Attachment] = ()) -> None:
+                  created: datetime, attachments: Sequence[Attachment] = (),
+                  language: str = "en") -> None:
     """Add what PDF/A-3 asks of the merged file (see the module docstring) to ``writer``.
 
     Call it after the pages, links, outline and document information are in place.
@@ -223,7 +226,7 @@ def make_archival(writer: PdfWriter, *, title: str, author: str, creator: str, p
         LOGGER.info("PDF/A-3 level B only: no ToUnicode CMap in font(s) %s", ", ".join(lacking))
     xmp = DecodedStreamObject()
     xmp.set_data(xmp_packet(title=title, author=author, creator=creator, producer=producer,
-                            created=created,
+                            created=created, language=language,
                             conformance=PDFA_BASIC if lacking else PDFA_UNICODE))
     xmp[NameObject("/Type")] = NameObject("/Metadata")
     xmp[NameObject("/Subtype")] = NameObject("/XML")

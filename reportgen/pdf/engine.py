@@ -396,7 +396,8 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
                workers: int = 2, progress: Progress | None = None,
                xml_first: bool = False, cache: PartCache | None = None,
                cluster: str | None = None, author: str = "",
-               attachments: Sequence[Attachment] = (), seal: Seal | None = None) -> bytes:
+               attachments: Sequence[Attachment] = (), seal: Seal | None = None,
+               language: str = "en") -> bytes:
     """Render the front matter and body parts into one PDF and return its bytes.
 
     Parameters
@@ -412,6 +413,8 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         Document title and creation date written to the PDF's metadata.
     page_label
         Stamped at the bottom right of every page, with ``{page}`` and ``{pages}``.
+    language
+        The document's language (BCP 47 code, e.g. ``de``), written as the catalog's /Lang.
     workers
         Worker processes rendering the bodies (``reportgen build --jobs``).
     progress
@@ -467,6 +470,7 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
             front_done_s = time.perf_counter()
             pdf = finish_pdf(writer, front_part, body_parts, title=title,
                              page_label=page_label, created=created, author=author,
+                             language=language,
                              attachments=attachments, seal=seal,
                              structure=copier.structure)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "

@@ -191,7 +191,8 @@ class PageCopier:
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
                title: str, page_label: str, created: datetime, compact: bool = True,
                author: str = "", attachments: Sequence[Attachment] = (),
-               seal: Seal | None = None, structure: StructureMerger | None = None) -> bytes:
+               seal: Seal | None = None, structure: StructureMerger | None = None,
+               language: str = "en") -> bytes:
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
 
     ``structure``: the structure trees of the bodies copied into ``writer`` (the
@@ -203,6 +204,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     with ``compact``, merges identical objects and repacks with qpdf when installed.
     ``seal(pdf, places)``, given, signs the finished file (:mod:`reportgen.pdf.sign`);
     ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).
+    ``language`` is written as the document catalog's /Lang (PDF 1.4+, read by screen readers).
     """
     if structure is None:
         structure = StructureMerger(writer)
@@ -229,8 +231,9 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     # without the two keys in Info, Info and XMP still agree after signing (PDF/A-3 6.6.2.3).
     writer.metadata = {"/Title": TextStringObject(title), "/Creator": CREATOR,
                        "/CreationDate": pdf_date(created)}
+    writer.root_object[NameObject("/Lang")] = TextStringObject(language)
     make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
-                  created=created, attachments=attachments)
+                  created=created, attachments=attachments, language=language)
     if compact:
         writer.compress_identical_objects()
     buffer = io.BytesIO()

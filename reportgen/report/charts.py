@@ -3,7 +3,8 @@
 Built on ``matplotlib.figure.Figure`` (no pyplot state), text kept as text
 (``svg.fonttype: none``), a fixed ``svg.hashsalt`` and no date metadata, so the
 same project gives the same SVG. Meaning is carried by shape and hatching as well
-as by colour.
+as by colour. Labels are in the report's language; in other languages than English the
+numbers of the value axis are written in the language's form too.
 """
 from __future__ import annotations
 
@@ -15,7 +16,10 @@ from typing import Final
 import matplotlib
 from matplotlib.figure import Figure
 
-from reportgen.report.messages import TEXT, msg
+from matplotlib.ticker import FuncFormatter
+
+from reportgen.report.i18n import ENGLISH, SOURCE_LANGUAGE, Language
+from reportgen.report.messages import Words
 from reportgen.report.viewmodel import LinkView
 
 _RC: Final = {
@@ -48,7 +52,7 @@ def _figure(width_in: float, height_in: float) -> Figure:
         return Figure(figsize=(width_in, height_in), dpi=72)
 
 
-def margin_groups(links: Sequence[LinkView]) -> dict[str, list[tuple[float, bool]]]:
+def margin_groups(links: Sequence[LinkView], lang: Language = ENGLISH) -> dict[str, list[tuple[float, bool]]]:
     """Judged margins per "fiber type, wavelength" as (margin dB, over the limit)."""
     groups: dict[tuple[str, int], list[tuple[float, bool]]] = {}
     for link in links:
@@ -56,18 +60,27 @@ def margin_groups(links: Sequence[LinkView]) -> dict[str, list[tuple[float, bool
             if result.margin_db is not None:
                 groups.setdefault((link.fiber_type, result.wavelength_nm), []).append(
                     (result.margin_db, result.verdict == "fail"))
-    return {f"{fiber}\n{msg('budget_wavelength', wavelength=wl)}": groups[(fiber, wl)]
+    t = Words(lang)
+    return {f"{fiber}\n{t.format('budget_wavelength', wavelength=wl)}": groups[(fiber, wl)]
             for fiber, wl in sorted(groups)}
 
 
-def margin_chart(links: Sequence[LinkView]) -> str:
+def _local_numbers(axis, lang: Language) -> None:
+    """Tick numbers of ``axis`` in the language's form (English: matplotlib's own)."""
+    if lang.code != SOURCE_LANGUAGE:
+        axis.set_major_formatter(FuncFormatter(
+            lambda value, _: lang.number(f"{value:g}").replace("-", "\u2212")))
+
+
+def margin_chart(links: Sequence[LinkView], lang: Language = ENGLISH) -> str:
     """Dots of every judged margin, one column per fiber type and wavelength."""
-    groups = margin_groups(links)
+    groups = margin_groups(links, lang)
+    t = Words(lang)
     with matplotlib.rc_context(_RC):
         fig = _figure(6.6, 2.7)
         ax = fig.add_axes((0.09, 0.2, 0.89, 0.7))
         ax.axhline(0.0, color="#111111", linewidth=1.2)
-        ax.text(-0.58, 0.0, TEXT["chart_zero"], va="bottom", ha="left", fontsize=7)
+        ax.text(-0.58, 0.0, t["chart_zero"], va="bottom", ha="left", fontsize=7)
         for index, (name, values) in enumerate(groups.items()):
             values = sorted(values)  # smallest margin at the left of its column
             count = len(values)
@@ -82,20 +95,22 @@ def margin_chart(links: Sequence[LinkView]) -> str:
                            linewidths=0.5, marker="^", zorder=4)
         ax.set_xticks(range(len(groups)), list(groups))
         ax.set_xlim(-0.6, max(len(groups), 1) - 0.4)
-        ax.set_ylabel(TEXT["chart_margin_axis"])
+        ax.set_ylabel(t["chart_margin_axis"])
+        _local_numbers(ax.yaxis, lang)
         ax.grid(axis="y", color="#dddddd", linewidth=0.5)
         ax.set_axisbelow(True)
         if not groups:
-            ax.text(0.5, 0.5, TEXT["chart_no_results"], transform=ax.transAxes, ha="center")
+            ax.text(0.5, 0.5, t["chart_no_results"], transform=ax.transAxes, ha="center")
         for side in ("top", "right"):
             ax.spines[side].set_visible(False)
         return figure_to_svg(fig)
 
 
-def verdict_chart(totals: dict[str, int] | object) -> str:
+def verdict_chart(totals: dict[str, int] | object, lang: Language = ENGLISH) -> str:
     """Horizontal bars: links per verdict, each verdict with its own fill and hatching."""
     order = ("pass", "fail", "incomplete")
     counts = [int(totals[v]) for v in order]  # type: ignore[index]
+    t = Words(lang)
     with matplotlib.rc_context(_RC):
         fig = _figure(6.6, 1.3)
         ax = fig.add_axes((0.16, 0.3, 0.8, 0.62))
@@ -103,10 +118,10 @@ def verdict_chart(totals: dict[str, int] | object) -> str:
             face, hatch = VERDICT_STYLE[verdict]
             ax.barh(row, count, color=face, edgecolor="#111111", hatch=hatch, linewidth=0.6, height=0.62)
             ax.text(count, row, f"  {count}", va="center", ha="left", fontsize=8)
-        ax.set_yticks(range(len(order)), [TEXT[f"verdict_{v}"] for v in order])
+        ax.set_yticks(range(len(order)), [t[f"verdict_{v}"] for v in order])
         ax.invert_yaxis()
         ax.set_xlim(0, max(max(counts), 1) * 1.15)
-        ax.set_xlabel(TEXT["chart_counts_axis"])
+        ax.set_xlabel(t["chart_counts_axis"])
         ax.xaxis.get_major_locator().set_params(integer=True)
         for side in ("top", "right"):
             ax.spines[side].set_visible(False)

@@ -26,7 +26,9 @@ from typing import Final
 
 from markupsafe import escape
 
-from reportgen.report.messages import TEXT, format_db, msg
+from reportgen.report.formats import format_db
+from reportgen.report.i18n import ENGLISH, Language
+from reportgen.report.messages import Words
 from reportgen.report.viewmodel import BudgetView, LinkView, ResultView
 
 WIDTH: Final = 640
@@ -61,20 +63,20 @@ class Step:
     cumulative_db: float
 
 
-def _joints(budget: BudgetView) -> list[tuple[str, str, float, int]]:
+def _joints(budget: BudgetView, t: Words) -> list[tuple[str, str, float, int]]:
     """Joints between the ends as (kind, label, loss each, count)."""
     joints = []
     for term in budget.terms:
         if term.kind == "connections":
-            joints.append(("connection", TEXT["dg_connection"], term.allowance_db, int(term.quantity)))
+            joints.append(("connection", t["dg_connection"], term.allowance_db, int(term.quantity)))
         elif term.kind == "splices":
-            joints.append(("splice", TEXT["dg_splice"], term.allowance_db, int(term.quantity)))
+            joints.append(("splice", t["dg_splice"], term.allowance_db, int(term.quantity)))
         elif term.kind == "component":
-            joints.append(("component", term.item_id or TEXT["dg_component"], term.loss_db, 1))
+            joints.append(("component", term.item_id or t["dg_component"], term.loss_db, 1))
     return joints
 
 
-def build_steps(budget: BudgetView) -> list[Step]:
+def build_steps(budget: BudgetView, lang: Language = ENGLISH) -> list[Step]:
     """The staircase of allowed loss from end A to end B for one wavelength.
 
     The fiber term is cut into equal pieces between the joints; joints are spread
@@ -85,7 +87,8 @@ def build_steps(budget: BudgetView) -> list[Step]:
     fiber_db = sum(t.loss_db for t in budget.terms if t.kind == "fiber")
     ends = sum(int(t.quantity) for t in budget.terms if t.kind == "end-connections")
     end_db = next((t.allowance_db for t in budget.terms if t.kind == "end-connections"), 0.0)
-    joints = _joints(budget)
+    words = Words(lang)
+    joints = _joints(budget, words)
     singles = [(k, lab, loss, 1) for k, lab, loss, n in joints for _ in range(n)]
     if len(singles) <= MAX_JOINT_STEPS:
         joints = singles
@@ -101,13 +104,13 @@ def build_steps(budget: BudgetView) -> list[Step]:
         steps.append(Step(kind, label, position, loss_db, total))
 
     if ends >= 1:
-        add("end", TEXT["dg_end"], 0.0, end_db)
+        add("end", words["dg_end"], 0.0, end_db)
     for index, (kind, label, loss, _) in enumerate(joints, start=1):
         add("fiber", "", index / pieces, fiber_db / pieces)
         add(kind, label, index / pieces, loss)
     add("fiber", "", 1.0, fiber_db / pieces)
     if ends >= 2:
-        add("end", TEXT["dg_end"], 1.0, end_db * (ends - 1))
+        add("end", words["dg_end"], 1.0, end_db * (ends - 1))
     return steps
 
 
@@ -121,7 +124,9 @@ def _nice_top_db(value_db: float) -> tuple[float, float]:
 
 
 class _Canvas:
-    def __init__(self, top_db: float) -> None:
+    def __init__(self, top_db: float, lang: Language = ENGLISH) -> None:
+        self.lang = lang
+        self.t = Words(lang)
         self.top_db = top_db
         self.parts: list[str] = []
 
@@ -148,14 +153,14 @@ def _axes(canvas: _Canvas, step_db: float) -> None:
     while tick <= canvas.top_db + TICK_SLACK_DB:
         y = canvas.y(tick)
         rules.append(f"M{PLOT_LEFT},{y}H{PLOT_RIGHT}")
-        canvas.text(PLOT_LEFT - 4, y + 3, f"{tick:g}", "tick", "end")
+        canvas.text(PLOT_LEFT - 4, y + 3, canvas.lang.number(f"{tick:g}"), "tick", "end")
         tick += step_db
     # one path for all grid lines, one for both axes: fewer elements to lay out
     canvas.add(f'<path d="{"".join(rules)}" class="grid"/>')
     canvas.add(f'<path d="M{PLOT_LEFT},{PLOT_TOP}V{PLOT_BOTTOM}H{PLOT_RIGHT}" class="axis"/>')
-    canvas.text(PLOT_LEFT - 4, PLOT_TOP - 8, TEXT["dg_axis"], "tick", "end")
-    canvas.text(PLOT_LEFT, PLOT_BOTTOM + 28, TEXT["dg_start"], "end-label", "middle")
-    canvas.text(PLOT_RIGHT, PLOT_BOTTOM + 28, TEXT["dg_finish"], "end-label", "middle")
+    canvas.text(PLOT_LEFT - 4, PLOT_TOP - 8, canvas.t["dg_axis"], "tick", "end")
+    canvas.text(PLOT_LEFT, PLOT_BOTTOM + 28, canvas.t["dg_start"], "end-label", "middle")
+    canvas.text(PLOT_RIGHT, PLOT_BOTTOM + 28, canvas.t["dg_finish"], "end-label", "middle")
 
 
 def _staircase(canvas: _Canvas, steps: list[Step], style: tuple[str, str]) -> None:
@@ -199,8 +204,8 @@ def _column(canvas: _Canvas, index: int, budget: BudgetView, results: list[Resul
     canvas.add(f'<line x1="{PLOT_RIGHT}" y1="{y_limit}" x2="{left}" y2="{y_limit}" '
                f'stroke="{colour}" stroke-width="0.8"{dash_attr}/>')
     canvas.add(f'<line x1="{left - 3}" y1="{y_limit}" x2="{right + 3}" y2="{y_limit}" class="limit"/>')
-    canvas.text((left + right) / 2, PLOT_TOP - 5, msg("dg_limit", value=format_db(budget.total_db)), "value", "middle")
-    canvas.text((left + right) / 2, PLOT_BOTTOM + 14, msg("budget_wavelength", wavelength=budget.wavelength_nm), "joint", "middle")
+    canvas.text((left + right) / 2, PLOT_TOP - 5, canvas.t.format("dg_limit", value=format_db(budget.total_db, canvas.lang)), "value", "middle")
+    canvas.text((left + right) / 2, PLOT_BOTTOM + 14, canvas.t.format("budget_wavelength", wavelength=budget.wavelength_nm), "joint", "middle")
     count = len(results)
     for n, result in enumerate(results):
         x = left + COLUMN_WIDTH * (n + 1) / (count + 1)
@@ -230,7 +235,7 @@ def _style_block(hatch_id: str) -> str:
     )
 
 
-def loss_diagram(link: LinkView) -> str:
+def loss_diagram(link: LinkView, lang: Language = ENGLISH) -> str:
     """The loss diagram of one link as an ``<svg>`` element (text), or "" without budgets."""
     budgets = link.budgets
     if not budgets:
@@ -240,20 +245,20 @@ def loss_diagram(link: LinkView) -> str:
         by_wavelength.setdefault(result.wavelength_nm, []).append(result)
     highest = max([b.total_db for b in budgets] + [r.loss_db for r in link.results])
     top_db, step_db = _nice_top_db(highest)
-    canvas = _Canvas(top_db)
+    canvas = _Canvas(top_db, lang)
     hatch_id = f"{link.anchor}-over"
     width = COLUMN_LEFT + len(budgets) * (COLUMN_WIDTH + COLUMN_GAP) + 4
     canvas.add(f'<svg xmlns="http://www.w3.org/2000/svg" class="loss-diagram" '
                f'viewBox="0 0 {max(width, WIDTH)} {HEIGHT}" width="{max(width, WIDTH)}" height="{HEIGHT}" '
-               f'role="img" aria-label="{escape(TEXT["diagram_heading"])}">'
+               f'role="img" aria-label="{escape(Words(lang)["diagram_heading"])}">'
                # the title is the figure's alternative text in a tagged PDF
-               f'<title>{escape(TEXT["diagram_heading"])}</title>')
+               f'<title>{escape(Words(lang)["diagram_heading"])}</title>')
     canvas.add(_style_block(hatch_id))
     _axes(canvas, step_db)
     steps_shown = None
     for index, budget in enumerate(budgets):
         style = LINE_STYLES[index % len(LINE_STYLES)]
-        steps = build_steps(budget)
+        steps = build_steps(budget, lang)
         steps_shown = steps_shown or steps
         _staircase(canvas, steps, style)
         _column(canvas, index, budget, by_wavelength.get(budget.wavelength_nm, []), style, hatch_id)
@@ -269,4 +274,4 @@ def _legend_line(canvas: _Canvas, index: int, budget: BudgetView, style: tuple[s
     x, y = PLOT_LEFT + 8 + index * 80, PLOT_TOP - 8
     dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
     canvas.add(f'<line x1="{x}" y1="{y}" x2="{x + 22}" y2="{y}" stroke="{colour}" stroke-width="1.6"{dash_attr}/>')
-    canvas.text(x + 26, y + 3, msg("budget_wavelength", wavelength=budget.wavelength_nm), "wl")
+    canvas.text(x + 26, y + 3, canvas.t.format("budget_wavelength", wavelength=budget.wavelength_nm), "wl")

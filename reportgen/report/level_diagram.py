@@ -12,7 +12,8 @@ loss budget (the engine's :class:`reportgen.engine.budget.Budget`); the drops ad
 least loss of the power budget, so the end points are exact and the steps schematic.
 A recommended attenuator is drawn as a last step before the receiver.
 
-Texts come from :data:`LABELS` (or a mapping passed in) so that they can be translated.
+Texts come from :data:`LABELS` (English, marked for translation); :func:`translated_labels`
+gives them in a report language, and numbers are written in its form.
 """
 from __future__ import annotations
 
@@ -25,33 +26,34 @@ from xml.sax.saxutils import escape
 
 from reportgen.engine.budget import Budget, TermKind
 from reportgen.engine.power import PowerBudget
+from reportgen.report.i18n import ENGLISH, N_, Language
 
 # Drawing guard, not a limit tolerance: the axis ticks are stepped by float subtraction,
 # so the bottom tick may land a hair below the bottom and must still be drawn.
 TICK_SLACK_DB: Final = 1e-9
 
 LABELS: Final[dict[str, str]] = {
-    "title": "Optical power level, {wavelength} nm ({basis})",
-    "measured": "measured loss",
-    "budget": "loss budget",
-    "launch": "launch",
-    "receiver": "receiver",
-    "link": "link",
-    TermKind.FIBER.value: "fiber",
-    TermKind.END_CONNECTIONS.value: "end conn.",
-    TermKind.CONNECTIONS.value: "connections",
-    TermKind.SPLICES.value: "splices",
-    "attenuator": "attenuator {value} dB",
-    "highest": "highest level",
-    "lowest": "lowest level",
-    "window": "receiver window",
-    "overload": "overload {value} dBm",
-    "receive-minimum": "receive min. {value} dBm",
+    "title": N_("Optical power level, {wavelength} nm ({basis})"),
+    "measured": N_("measured loss"),
+    "budget": N_("loss budget"),
+    "launch": N_("launch"),
+    "receiver": N_("receiver"),
+    "link": N_("link"),
+    TermKind.FIBER.value: N_("fiber"),
+    TermKind.END_CONNECTIONS.value: N_("end conn."),
+    TermKind.CONNECTIONS.value: N_("connections"),
+    TermKind.SPLICES.value: N_("splices"),
+    "attenuator": N_("attenuator {value} dB"),
+    "highest": N_("highest level"),
+    "lowest": N_("lowest level"),
+    "window": N_("receiver window"),
+    "overload": N_("overload {value} dBm"),
+    "receive-minimum": N_("receive min. {value} dBm"),
     "axis": "dBm",
-    "ok": "within the receiver window",
-    "too-weak": "too weak",
-    "too-strong": "too strong: fit an attenuator",
-    "no-fit": "too strong: no attenuator fits",
+    "ok": N_("within the receiver window"),
+    "too-weak": N_("too weak"),
+    "too-strong": N_("too strong: fit an attenuator"),
+    "no-fit": N_("too strong: no attenuator fits"),
 }
 
 
@@ -89,8 +91,13 @@ def level_steps(budget: Budget | None, labels: Mapping[str, str] = LABELS) -> tu
     return tuple(steps)
 
 
-def _fmt(value: float, decimals: int = 1) -> str:
-    return f"{value:.{decimals}f}".replace("-", "\u2212")
+def translated_labels(lang: Language) -> dict[str, str]:
+    """:data:`LABELS` in the report's language."""
+    return {key: lang.gettext(text) for key, text in LABELS.items()}
+
+
+def _fmt(value: float, decimals: int = 1, lang: Language = ENGLISH) -> str:
+    return lang.number(f"{value:.{decimals}f}").replace("-", "\u2212")
 
 
 def _tick_step_db(span_db: float) -> float:
@@ -105,6 +112,7 @@ def power_level_svg(
     steps: Sequence[LevelStep] = (),
     labels: Mapping[str, str] = LABELS,
     *,
+    lang: Language = ENGLISH,
     width_px: int = 600,
     height_px: int = 280,
 ) -> str:
@@ -118,6 +126,8 @@ def power_level_svg(
         Parts of the link (:func:`level_steps`); empty: one step for the whole link.
     labels : mapping
         Texts (see :data:`LABELS`); pass a translated copy to change the language.
+    lang : Language
+        Writes the numbers in the language's form.
     width_px, height_px : int
         Size of the drawing. [px]
 
@@ -136,7 +146,7 @@ def power_level_svg(
     kinds = [s.sloped for s in steps]
     names = [s.label for s in steps]
     if power.attenuator_db:
-        names.append(labels["attenuator"].format(value=_fmt(power.attenuator_db)))
+        names.append(labels["attenuator"].format(value=_fmt(power.attenuator_db, lang=lang)))
         kinds.append(False)
         high.append(high[-1] - power.attenuator_db)
         low.append(low[-1] - power.attenuator_db)
@@ -180,7 +190,7 @@ def power_level_svg(
         out.append(f'<line x1="{left}" y1="{y(level)}" x2="{left + plot_w}" y2="{y(level)}" '
                    f'stroke="#555" stroke-width="1"/>')
         out.append(f'<text x="{left + plot_w + 6}" y="{y(level) + 3}">'
-                   f"{escape(labels[key].format(value=_fmt(level)))}</text>")
+                   f"{escape(labels[key].format(value=_fmt(level, lang=lang)))}</text>")
     out.append(f'<text x="{left + plot_w + 6}" y="{round((y_over + y_sens) / 2 + 3, 1)}" '
                f'font-style="italic">{escape(labels["window"])}</text>')
     # axis with ticks
@@ -189,7 +199,7 @@ def power_level_svg(
     while level >= y_bottom - TICK_SLACK_DB:
         out.append(f'<line x1="{left - 4}" y1="{y(level)}" x2="{left}" y2="{y(level)}" '
                    f'stroke="#000"/><text x="{left - 6}" y="{y(level) + 3}" text-anchor="end">'
-                   f"{_fmt(level, 0)}</text>")
+                   f"{_fmt(level, 0, lang=lang)}</text>")
         level -= tick_db
     out.append(f'<text x="12" y="{top + plot_h / 2}" transform="rotate(-90 12 {top + plot_h / 2})" '
                f'text-anchor="middle">{escape(labels["axis"])}</text>')
@@ -214,10 +224,10 @@ def power_level_svg(
     # leaves the marker falling through the first end connection.
     for value, above in ((high[0], True), (low[0], False)):
         out.append(f'<text x="{xs[0] + 6}" y="{y(value) + (-6 if above else 24)}">'
-                   f"{_fmt(value, 2)}</text>")
+                   f"{_fmt(value, 2, lang=lang)}</text>")
     for value, above in ((high[-1], True), (low[-1], False)):
         out.append(f'<text x="{xs[-1] - 6}" y="{y(value) + (-6 if above else 13)}" '
-                   f'text-anchor="end">{_fmt(value, 2)}</text>')
+                   f'text-anchor="end">{_fmt(value, 2, lang=lang)}</text>')
     # stage names under the plot, staggered so neighbours do not collide
     stage_names = [labels["launch"], *names]
     for i, name in enumerate(stage_names[1:]):

@@ -9,7 +9,8 @@ marked by kind with our own shapes: a connection is a diamond, a splice a circle
 event a square; a failed event is filled black, a passed one open. Meaning is carried by line
 style, shape and fill, never by colour alone, so a grayscale print reads the same.
 
-Texts come from :data:`LABELS` so that they can be translated.
+Texts come from :data:`LABELS` (English, marked for translation); :func:`translated_labels`
+gives them in a report language, and tick numbers are written in its form.
 """
 from __future__ import annotations
 
@@ -22,14 +23,15 @@ import numpy as np
 
 from reportgen.engine.otdr import JUDGED_AS_CONNECTION, StrandOtdr
 from reportgen.model import Direction, OtdrEventKind, OtdrSettings, OtdrTrace
+from reportgen.report.i18n import ENGLISH, N_, Language
 
 LABELS: Final[dict[str, str]] = {
-    "title": "OTDR trace, strand {strand}, {wavelength} nm",
-    "ab": "from A (a→b)",
-    "ba": "from B (b→a), mirrored",
-    "axis_x": "distance from end A [m]",
-    "axis_y": "level [dB]",
-    "no_trace": "event table only: no trace samples",
+    "title": N_("OTDR trace, strand {strand}, {wavelength} nm"),
+    "ab": N_("from A (a→b)"),
+    "ba": N_("from B (b→a), mirrored"),
+    "axis_x": N_("distance from end A [m]"),
+    "axis_y": N_("level [dB]"),
+    "no_trace": N_("event table only: no trace samples"),
 }
 WIDTH: Final = 640
 HEIGHT: Final = 230
@@ -61,8 +63,13 @@ def _along(trace: OtdrTrace, settings: OtdrSettings, span_m: float) -> tuple[np.
     return x, samples
 
 
+def translated_labels(lang: Language) -> dict[str, str]:
+    """:data:`LABELS` in the report's language."""
+    return {key: lang.gettext(text) for key, text in LABELS.items()}
+
+
 def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
-              labels: Mapping[str, str] = LABELS) -> str:
+              labels: Mapping[str, str] = LABELS, lang: Language = ENGLISH) -> str:
     """The figure of ``strand`` as an ``<svg>`` element."""
     settings = settings or OtdrSettings()
     span = strand.length_m if strand.length_m is not None else strand.documented_length_m
@@ -98,11 +105,11 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     for tick in _ticks(x_low, x_high):
         out.append(f'<line x1="{px(tick):.1f}" y1="{TOP + plot_h}" x2="{px(tick):.1f}" y2="{TOP + plot_h + 3}" '
                    'stroke="#111111" stroke-width="0.5"/>'
-                   f'<text x="{px(tick):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{tick:g}</text>')
+                   f'<text x="{px(tick):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{lang.number(f"{tick:g}")}</text>')
     for tick in _ticks(y_low, y_high):
         out.append(f'<line x1="{LEFT - 3}" y1="{py(tick):.1f}" x2="{LEFT}" y2="{py(tick):.1f}" '
                    'stroke="#111111" stroke-width="0.5"/>'
-                   f'<text x="{LEFT - 5}" y="{py(tick) + 3:.1f}" text-anchor="end">{tick:g}</text>')
+                   f'<text x="{LEFT - 5}" y="{py(tick) + 3:.1f}" text-anchor="end">{lang.number(f"{tick:g}")}</text>')
     out.append(f'<text x="{LEFT + plot_w / 2:.1f}" y="{HEIGHT - 4}" text-anchor="middle">'
                f'{escape(labels["axis_x"])}</text>')
     out.append(f'<text x="10" y="{TOP + plot_h / 2:.1f}" text-anchor="middle" '

@@ -12,7 +12,7 @@ Contract with reportgen.pdf:
 - elements with ``data-bookmark`` / ``data-bookmark-level`` and an ``id`` are outline
   entries; headings carry ``bookmark-level: none``;
 - the bottom-right page margin box is left empty for the page stamp
-  (:data:`reportgen.report.messages.PAGE_LABEL`);
+  (:func:`reportgen.report.messages.page_label`);
 - page numbers in PDF parts are empty ``page-slot`` links pdf.py fills in after the
   merge (``front(page_of, total_pages)`` may also print numbers ``page_of`` gives).
 
@@ -40,12 +40,15 @@ from reportgen.report import charts
 
 from reportgen.report import diagrams
 
-from reportgen.report import messages
+from reportgen.report import formats, messages
+from reportgen.report import i18n
+from reportgen.report.i18n import ENGLISH, Language
+from reportgen.report.messages_appendix import customer_status
+from reportgen.report.messages_findings import RULE_TEXT, THRESHOLD_UNIT, finding_text
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.findings import Findings
 from reportgen.engine.judge import Judgement
-from reportgen.report.level_diagram import level_steps, power_level_svg
-from reportgen.report.otdr_figure import trace_svg
+from reportgen.report import level_diagram, otdr_figure
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
 from reportgen.report.viewmodel import ArchiveView, LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
@@ -158,8 +161,13 @@ def css_string(text: object) -> Markup:
 
 
 @functools.lru_cache(maxsize=8)
-def make_environment(project_templates: Path | None, length_unit: str = "m") -> jinja2.Environment:
+def make_environment(project_templates: Path | None, length_unit: str = "m",
+                     lang: Language = ENGLISH) -> jinja2.Environment:
     """A strict Jinja environment: the project's templates first, ours as fallback per file.
+
+    The words (``t``, ``msg``, ``msgn``, ``glossary``, ``safety``, ``finding_text``,
+    ``rule_text``), the gettext calls of ``jinja2.ext.i18n`` (``_``, ``gettext``,
+    ``ngettext``, ``{% trans %}``) and the number filters are those of ``lang``.
 
     Cached (compiling the templates costs about half a second); the loaders still notice
     edited template files. Callers must not modify the returned environment.
@@ -178,21 +186,27 @@ def make_environment(project_templates: Path | None, length_unit: str = "m") -> 
         trim_blocks=True,
         lstrip_blocks=True,
         keep_trailing_newline=True,
+        extensions=["jinja2.ext.i18n"],
     )
+    env.install_gettext_translations(lang.translations, newstyle=True)  # type: ignore[attr-defined]
     env.filters.update(
-        db=messages.format_db,
-        status=messages.customer_status,
-        dbm=messages.format_dbm,
-        km=messages.format_km,
-        length=functools.partial(messages.format_length, unit=length_unit),
-        date=messages.format_date,
-        datetime=functools.partial(messages.format_date, with_time=True),
+        db=functools.partial(formats.format_db, lang=lang),
+        status=functools.partial(customer_status, lang=lang),
+        dbm=functools.partial(formats.format_dbm, lang=lang),
+        km=functools.partial(formats.format_km, lang=lang),
+        length=functools.partial(formats.format_length, unit=length_unit, lang=lang),
+        date=functools.partial(formats.format_date, lang=lang),
+        datetime=functools.partial(formats.format_date, with_time=True, lang=lang),
         css_string=css_string,
-        setting=messages.format_setting,
+        setting=functools.partial(formats.format_setting, lang=lang),
     )
-    env.globals.update(t=messages.TEXT, msg=messages.msg, glossary=messages.GLOSSARY,
-                       safety=messages.SAFETY, finding_text=messages.finding_text,
-                       rule_text=messages.RULE_TEXT, threshold_unit=messages.THRESHOLD_UNIT)
+    words = messages.Words(lang)
+    env.globals.update(t=words, msg=words.format, msgn=words.plural, glossary=words.glossary(),
+                       safety=words.safety(),
+                       finding_text=functools.partial(finding_text, lang=lang),
+                       rule_text={rule: (lang.gettext(what), lang.gettext(basis))
+                                  for rule, (what, basis) in RULE_TEXT.items()},
+                       threshold_unit=THRESHOLD_UNIT)
     return env
 
 
@@ -247,7 +261,7 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
 
 
 def power_diagrams(project: Project, judgement: Judgement, view: ReportView,
-                   assessed: ProjectApplications | None) -> dict[str, Markup]:
+                   assessed: ProjectApplications | None, lang: Language = ENGLISH) -> dict[str, Markup]:
     """The power level diagram (inline SVG) of every link with a power budget, by anchor.
 
     The steps follow the link's loss budget (the engine's, ``judgement.budget_table``) at
@@ -262,17 +276,22 @@ def power_diagrams(project: Project, judgement: Judgement, view: ReportView,
         if power is None:
             continue
         budget = judgement.budget_table.get(link.link_id, power.wavelength_nm)
-        out[link_view.anchor] = Markup(power_level_svg(power, level_steps(budget)))
+        labels = level_diagram.translated_labels(lang)
+        out[link_view.anchor] = Markup(level_diagram.power_level_svg(
+            power, level_diagram.level_steps(budget, labels), labels, lang=lang))
     return out
 
 
-def otdr_figures(project: Project, view: ReportView, otdr: OtdrAssessment | None) -> dict[str, Markup]:
+def otdr_figures(project: Project, view: ReportView, otdr: OtdrAssessment | None,
+                 lang: Language = ENGLISH) -> dict[str, Markup]:
     """The OTDR trace figure (inline SVG) of every strand and wavelength, by figure key."""
     if otdr is None:
         return {}
     anchors = {link.link_id: link.anchor for link in view.links}
     settings = project.testing.otdr
-    return {otdr_figure_key(anchors[s.link_id], s.strand, s.wavelength_nm): Markup(trace_svg(s, settings))
+    labels = otdr_figure.translated_labels(lang)
+    return {otdr_figure_key(anchors[s.link_id], s.strand, s.wavelength_nm):
+            Markup(otdr_figure.trace_svg(s, settings, labels, lang))
             for s in otdr.strands}
 
 
@@ -284,14 +303,15 @@ class _LossDiagrams(Mapping[str, Markup]):
     function, so two threads drawing the same one at once get the same text).
     """
 
-    def __init__(self, links: Sequence[LinkView]) -> None:
+    def __init__(self, links: Sequence[LinkView], lang: Language = ENGLISH) -> None:
+        self._lang = lang
         self._links = {link.anchor: link for link in links}
         self._drawn: dict[str, Markup] = {}
 
     def __getitem__(self, anchor: str) -> Markup:
         drawn = self._drawn.get(anchor)
         if drawn is None:
-            drawn = self._drawn[anchor] = Markup(diagrams.loss_diagram(self._links[anchor]))
+            drawn = self._drawn[anchor] = Markup(diagrams.loss_diagram(self._links[anchor], self._lang))
         return drawn
 
     def __iter__(self) -> Iterator[str]:
@@ -306,16 +326,16 @@ class _Renderer:
 
     def __init__(self, env: jinja2.Environment, view: ReportView,
                  power_svgs: Mapping[str, Markup] | None = None,
-                 otdr_svgs: Mapping[str, Markup] | None = None) -> None:
+                 otdr_svgs: Mapping[str, Markup] | None = None, lang: Language = ENGLISH) -> None:
         self.env = env
         self.view = view
         self.template = env.get_template(TEMPLATE_MAIN)
         self.common = {
             "report": view,
             "css": stylesheet(env),
-            "diagrams": _LossDiagrams(view.links),
-            "charts": {"margins": charts.svg_data_uri(charts.margin_chart(view.links)),
-                       "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals))},
+            "diagrams": _LossDiagrams(view.links, lang),
+            "charts": {"margins": charts.svg_data_uri(charts.margin_chart(view.links, lang)),
+                       "verdicts": charts.svg_data_uri(charts.verdict_chart(view.totals, lang))},
             "toc": toc_entries(view),
             "power_diagrams": dict(power_svgs or {}),
             "otdr_figures": dict(otdr_svgs or {}),
@@ -334,6 +354,12 @@ class _Renderer:
         return self.render("front", page_of=page_of or {}, total_pages=total_pages)
 
 
+def language_of(project: Project, language: str | None = None) -> Language:
+    """The report's language: ``language`` when given (``build --language``), else the
+    project's ``report.language`` (default English)."""
+    return i18n.language(language or project.report.language)
+
+
 def build_report(
     project: Project,
     judgement: Judgement,
@@ -344,19 +370,22 @@ def build_report(
     findings: Findings | None = None,
     otdr: OtdrAssessment | None = None,
     archive: ArchiveView | None = None,
+    language: str | None = None,
 ) -> ReportDocument:
     """Render the report of a judged project.
 
     ``now`` and ``version`` are printed as given (determinism: same input, same HTML).
     ``applications`` (applications.assess_project) adds the applications and power
     budget sections; ``archive`` (the files embedded in the PDF and the report's digest)
-    puts the digest on the cover and the list of files in the appendix.
+    puts the digest on the cover and the list of files in the appendix. ``language``
+    (``build --language``) overrides the project's ``report.language``.
     """
+    lang = language_of(project, language)
     view = build_view(project, judgement, now=now, version=version, assessed=applications,
-                      findings=findings, otdr=otdr, archive=archive)
-    env = make_environment(project.report.templates, view.length_unit)
-    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications),
-                         otdr_figures(project, view, otdr))
+                      findings=findings, otdr=otdr, archive=archive, lang=lang)
+    env = make_environment(project.report.templates, view.length_unit, lang)
+    renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications, lang),
+                         otdr_figures(project, view, otdr, lang), lang)
     makers: list[Callable[[], str]] = [
         functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
         for index, chunk in enumerate(chunk_links(view.links))]

@@ -80,7 +80,7 @@ def print_findings(console: Console, findings, show_all: bool = False) -> None:
 
     Above FULL_TABLE_MAX_LINKS findings only the errors are listed unless ``show_all``.
     """
-    from reportgen.report.messages import finding_text
+    from reportgen.report.messages_findings import finding_text
 
     listed = findings.items
     if not show_all and len(listed) > FULL_TABLE_MAX_LINKS:

@@ -40,6 +40,8 @@ from reportgen.model import (
 from reportgen.engine.otdr import OtdrAssessment, PairedEvent
 from reportgen.engine.power import PowerBudget
 from reportgen.report import messages
+from reportgen.report.i18n import ENGLISH, Language
+from reportgen.report.messages_apps import reason_text
 
 # Up to this many links the applications matrix and power list sit in the front matter,
 # after the link register; above it they form their own part before the appendix (the
@@ -281,7 +283,7 @@ class ApplicationView:
     worst_loss_db: float | None  # highest judged loss at the needed wavelengths
     least_loss_db: float | None
     max_length_m: float | None
-    reasons: tuple[str, ...]  # messages.reason_text of each reason
+    reasons: tuple[str, ...]  # messages_apps.reason_text of each reason, in the report's language
     end_allowance_db: float = 0.0  # added to worst_loss_db before the maximum check
     checked_loss_db: float | None = None  # worst_loss_db + end_allowance_db
     within_uncertainty: bool = False  # a compared loss within uncertainty_db of its limit
@@ -447,6 +449,7 @@ class ReportView:
     unconfirmed_values: int = 0
     input_files: tuple[InputFileView, ...] = ()  # every file read, by path
     archive: ArchiveView | None = None    # None when no manifest was made (e.g. golden file)
+    language: str = "en"  # report.language: the HTML lang attribute, the PDF's /Lang
     tagged: bool = False                  # the PDF parts ask for a structure tree
 
 
@@ -519,19 +522,19 @@ def _text(value: Any) -> str:
     return str(value)
 
 
-def _budget_view(budget: Budget, required: bool) -> BudgetView:
+def _budget_view(budget: Budget, required: bool, lang: Language = ENGLISH) -> BudgetView:
     terms = tuple(TermView(t.kind.value, t.quantity, t.allowance_db, t.loss_db,
-                           messages.TEXT["components_source"] if t.kind is TermKind.COMPONENT
+                           messages.Words(lang)["components_source"] if t.kind is TermKind.COMPONENT
                            else split_citation(t.source)[0], t.item_id) for t in budget.terms)
     return BudgetView(budget.wavelength_nm, terms, budget.total_db, required)
 
 
 def _link_budgets(project: Project, judgement: Judgement, link: Link,
-                  measured_nm: Iterable[int]) -> tuple[BudgetView, ...]:
+                  measured_nm: Iterable[int], lang: Language = ENGLISH) -> tuple[BudgetView, ...]:
     """The engine's budgets of ``link`` at the required and the measured wavelengths."""
     required = set(project.testing.wavelengths_nm.get(link.fiber_type.category, ()))
     wanted = required | set(measured_nm)
-    return tuple(_budget_view(budget, budget.wavelength_nm in required)
+    return tuple(_budget_view(budget, budget.wavelength_nm in required, lang)
                  for budget in judgement.budget_table.for_link(link.link_id)
                  if budget.wavelength_nm in wanted)
 
@@ -541,7 +544,7 @@ def _sort_key(result: ResultView) -> tuple:
 
 
 def build_link_view(project: Project, judgement: Judgement, link: Link, outcome: LinkOutcome,
-                    anchor: str, rows: list[ResultView]) -> LinkView:
+                    anchor: str, rows: list[ResultView], lang: Language = ENGLISH) -> LinkView:
     """The view of one link: definition, budgets, results, what is missing."""
     # shown with the judged results: results at a wavelength without a cabling limit
     # (verdict not-judged), counted for the link's applications
@@ -559,7 +562,7 @@ def build_link_view(project: Project, judgement: Judgement, link: Link, outcome:
         transceiver=link.transceiver or "", notes=link.notes or "",
         verdict=outcome.verdict.value, worst_margin_db=outcome.worst_margin_db,
         judged=outcome.judged,
-        budgets=_link_budgets(project, judgement, link, {r.wavelength_nm for r in judged}),
+        budgets=_link_budgets(project, judgement, link, {r.wavelength_nm for r in judged}, lang),
         results=judged, set_aside=set_aside,
         missing=tuple(MissingView(m.strand, m.wavelength_nm, m.direction, m.reason)
                       for m in outcome.missing),
@@ -625,7 +628,7 @@ def _matrix_groups(project: Project, assessed: ProjectApplications,
 
 
 def build_applications_view(project: Project, assessed: ProjectApplications,
-                            anchors: Mapping[str, str]) -> ApplicationsView:
+                            anchors: Mapping[str, str], lang: Language = ENGLISH) -> ApplicationsView:
     """Per-link blocks, the matrix groups, the power list and the rules used."""
     table = assessed.table
     by_anchor: dict[str, LinkApplicationsView] = {}
@@ -641,7 +644,7 @@ def build_applications_view(project: Project, assessed: ProjectApplications,
                 max_loss_db=a.max_loss_db, min_loss_db=a.min_loss_db,
                 worst_loss_db=a.worst_loss_db, least_loss_db=a.least_loss_db,
                 max_length_m=a.max_length_m,
-                reasons=tuple(messages.reason_text(r) for r in a.reasons),
+                reasons=tuple(reason_text(r, lang) for r in a.reasons),
                 end_allowance_db=a.end_allowance_db, checked_loss_db=a.checked_loss_db,
                 within_uncertainty=a.within_uncertainty)
                 for a in found.assessments),
@@ -746,8 +749,12 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
                assessed: ProjectApplications | None = None,
                findings: Findings | None = None,
                otdr: OtdrAssessment | None = None,
-               archive: ArchiveView | None = None) -> ReportView:
+               archive: ArchiveView | None = None,
+               lang: Language = ENGLISH) -> ReportView:
     """The whole report's view model from a validated project and its judgement.
+
+    ``lang`` is the report's language: the view model holds data, except the few words
+    made from data (an application's reasons, a component's source), written in it.
 
     ``assessed`` (applications.assess_project) adds the applications and power budgets.
     """
@@ -758,7 +765,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
     outcomes = {outcome.link_id: outcome for outcome in judgement.links}
     links = tuple(build_link_view(project, judgement, link, outcomes[link.link_id],
                                   anchors[link.link_id],
-                                  rows_by_link.get(link.link_id, []))
+                                  rows_by_link.get(link.link_id, []), lang)
                   for link in project.links)
     links = _with_otdr(links, otdr)
     if findings is not None or project.inspections:
@@ -778,7 +785,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
     limit_rows = _limit_rows(limits)
     connection = split_citation(limits.source_for("connection_db"))
     splice = split_citation(limits.source_for("splice_db"))
-    apps = None if assessed is None else build_applications_view(project, assessed, anchors)
+    apps = None if assessed is None else build_applications_view(project, assessed, anchors, lang)
     fibers = {link.fiber_type.value for link in project.links}
     used = [connection[1], splice[1]] + [row.status for row in limit_rows
                                          if row.fiber_type in fibers]
@@ -818,7 +825,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         inspections_given=project.inspections is not None,
         input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
                                         results=f.results, links=f.links) for f in project.input_files),
-        archive=archive,
+        archive=archive, language=lang.code,
         tagged=project.report.tagged,
     )
 
