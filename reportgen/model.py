@@ -225,6 +225,10 @@ class ReportOptions:
     paper: Paper = Paper.A4
     templates: Path | None = None  # resolved folder inside the project folder
     language: ReportLanguage = ReportLanguage.EN
+    # OTDR trace files embedded in report.pdf: each at most, all together at most (MB, 10**6 bytes)
+    otdr_file_mb: float = 2.0
+    otdr_total_mb: float = 50.0
+    tagged: bool = False  # render report.pdf with its structure tree (Tagged PDF)
 
 
 @dataclass(frozen=True)

@@ -61,15 +61,16 @@ class BuildResult:
     files: tuple[str, ...]
 
 
-def validate_only(project_dir: Path) -> Project:
-    """Step 1: read and validate the project folder (raises InputError)."""
+def validate_only(project_dir: Path, *, absent: frozenset[str] = frozenset()) -> Project:
+    """Step 1: read and validate the project folder (raises InputError); ``absent``: OTDR
+    trace files missing on purpose (``reportgen verify``, inputs.project.load_project)."""
     project_dir = Path(project_dir)
     if not project_dir.is_dir():
         raise InputError([InputProblem(str(project_dir), None, None,
                                        "a project folder with project.yaml and links.csv",
                                        "no such folder")])
     log.info("Step 1: reading and validating %s", project_dir)
-    return load_project(project_dir)
+    return load_project(project_dir, absent=absent)
 
 
 def compute(project: Project, now: datetime | None = None) -> Outcome:
@@ -231,6 +232,7 @@ class Archive:
     results_csv: bytes
     manifest: bytes
     document: dict[str, Any]
+    not_embedded: frozenset[str] = frozenset()  # inputs listed but not embedded (size cap)
 
     @property
     def digest(self) -> str:
@@ -240,19 +242,24 @@ class Archive:
 def archive_of(outcome: Outcome, results_csv: bytes, *, now: datetime, version: str) -> Archive:
     """Read the project's files again and make the manifest of the build."""
     inputs = read_files(outcome.project)
+    options = outcome.project.report
+    not_embedded = manifest_file.left_out({path: len(data) for path, data in inputs.items()},
+                                          options.otdr_file_mb, options.otdr_total_mb)
     document = manifest_file.manifest_document(
         outcome.project, inputs, results_csv, version=version, now=now,
-        application_table=table_version())
-    return Archive(inputs, results_csv, manifest_file.manifest_bytes(document), document)
+        application_table=table_version(), not_embedded=not_embedded)
+    return Archive(inputs, results_csv, manifest_file.manifest_bytes(document), document,
+                   not_embedded)
 
 
 def attachments_of(archive: Archive, summary_json: bytes) -> list[Any]:
-    """The files embedded in report.pdf: every input, results.csv, summary.json, manifest."""
+    """The files embedded in report.pdf: every input (but those over the OTDR size cap),
+    results.csv, summary.json, manifest."""
     from reportgen.pdf.archive import Attachment
 
     made = [Attachment(manifest_file.INPUT_PREFIX + path, data, manifest_file.mime_type(path),
                        "Source", "input file of the project, as read")
-            for path, data in archive.inputs.items()]
+            for path, data in archive.inputs.items() if path not in archive.not_embedded]
     made += [
         Attachment(manifest_file.RESULTS_NAME, archive.results_csv, "text/csv", "Data",
                    "every result with its limit, margin and verdict"),
@@ -268,7 +275,7 @@ def report_view_archive(archive: Archive, signer: str = "") -> Any:
     """The digest and signer the report prints (cover, acceptance block, appendix)."""
     from reportgen.report.viewmodel import ArchiveView
 
-    return ArchiveView(archive.digest, signer)
+    return ArchiveView(archive.digest, signer, tuple(sorted(archive.not_embedded)))
 
 
 def default_jobs() -> int:

@@ -52,12 +52,18 @@ def _results_differences(embedded: bytes, rejudged: bytes) -> list[str]:
     return found
 
 
-def _check_files(files: dict[str, bytes], entries: list[dict[str, Any]]) -> list[Check]:
+def _check_files(files: dict[str, bytes], entries: list[dict[str, Any]],
+                 folder: dict[str, bytes] | None) -> list[Check]:
+    """Every file of the manifest against its embedded copy; a file the manifest marks not
+    embedded (OTDR size cap) against the project folder's copy when ``folder`` was read."""
     checks = []
     listed = {entry["path"] for entry in entries}
     for entry in entries:
         name = entry["path"]
         data = files.get(name)
+        if entry.get("embedded") is False:
+            checks.append(_check_not_embedded(entry, data is not None, folder))
+            continue
         if data is None:
             checks.append(Check(f"embedded file {name}", False, "listed in the manifest but "
                                 "not embedded"))
@@ -75,6 +81,29 @@ def _check_files(files: dict[str, bytes], entries: list[dict[str, Any]]) -> list
         checks.append(Check("no file outside the manifest", False,
                             "embedded but not listed: " + ", ".join(extra)))
     return checks
+
+
+def _check_not_embedded(entry: dict[str, Any], embedded: bool,
+                        folder: dict[str, bytes] | None) -> Check:
+    name = entry["path"]
+    if embedded:
+        return Check(f"embedded file {name}", False,
+                     "embedded, but the manifest says it is not")
+    stated = f"{entry['size']} bytes, SHA-256 {entry['sha256']}"
+    if folder is None:
+        return Check(f"file {name}", True,
+                     f"not embedded: checked only with --project (the manifest lists {stated})")
+    data = folder.get(name[len(manifest_file.INPUT_PREFIX):])
+    if data is None:
+        return Check(f"file {name}", False,
+                     f"not embedded, and not read from the project folder (the manifest lists "
+                     f"{stated})")
+    if len(data) == entry["size"] and manifest_file.sha256_hex(data) == entry["sha256"]:
+        return Check(f"file {name}", True,
+                     f"not embedded; the project folder's copy has the manifest's {stated}")
+    return Check(f"file {name}", False,
+                 f"not embedded; the project folder's copy differs: {len(data)} bytes, SHA-256 "
+                 f"{manifest_file.sha256_hex(data)}; the manifest lists {stated}")
 
 
 def _check_digest(digest: str, files: dict[str, bytes], page_texts: tuple[str, ...]) -> list[Check]:
@@ -106,12 +135,17 @@ def _inputs_of(files: dict[str, bytes]) -> dict[str, bytes]:
     return {name[len(prefix):]: data for name, data in files.items() if name.startswith(prefix)}
 
 
-def _check_verdicts(files: dict[str, bytes], generator: str) -> list[Check]:
-    """Judge the embedded inputs again with this reportgen; compare with results.csv."""
+def _check_verdicts(files: dict[str, bytes], generator: str,
+                    left_out: dict[str, bytes | None]) -> list[Check]:
+    """Judge the embedded inputs again with this reportgen; compare with results.csv and
+    summary.json. ``left_out``: each input the manifest marks not embedded, with the project
+    folder's copy when it equals the manifest's (else None: judged without it)."""
     import json
     import tempfile
 
     inputs = _inputs_of(files)
+    inputs.update({path: data for path, data in left_out.items() if data is not None})
+    absent = frozenset(path for path, data in left_out.items() if data is None)
     name = "verdicts follow from the data"
     with tempfile.TemporaryDirectory(prefix="reportgen-verify-") as folder:
         root = Path(folder)
@@ -122,7 +156,7 @@ def _check_verdicts(files: dict[str, bytes], generator: str) -> list[Check]:
             target.parent.mkdir(parents=True, exist_ok=True)
             target.write_bytes(data)
         try:
-            outcome = compute(validate_only(root))
+            outcome = compute(validate_only(root, absent=absent))
         except InputError as error:
             return [Check(name, False, "the embedded inputs do not validate with this reportgen: "
                           + "; ".join(str(problem) for problem in error.problems[:5]))]
@@ -138,10 +172,10 @@ def _check_verdicts(files: dict[str, bytes], generator: str) -> list[Check]:
                     + (f"; ... {len(differences) - 10} more" if len(differences) > 10 else "")
                     + versions)]
     try:
-        stated = {link["link_id"]: link["verdict"] for link in
-                  json.loads(files.get(manifest_file.SUMMARY_NAME, b"{}"))["links"]}
+        summary_links = list(json.loads(files.get(manifest_file.SUMMARY_NAME, b"{}"))["links"])
+        stated = {link["link_id"]: link["verdict"] for link in summary_links}
     except (ValueError, KeyError, TypeError):
-        stated = {}
+        summary_links, stated = [], {}
     judged = {link.link_id: link.verdict.value for link in outcome.judgement.links}
     wrong = [f"{link_id}: summary.json {stated.get(link_id)!r}, judged again {verdict!r}"
              for link_id, verdict in judged.items() if stated.get(link_id) != verdict]
@@ -150,18 +184,76 @@ def _check_verdicts(files: dict[str, bytes], generator: str) -> list[Check]:
     checks.append(Check(f"{name}: link verdicts in summary.json", not wrong,
                         f"all {len(judged)} link verdicts equal" if not wrong
                         else "; ".join(wrong[:10])))
+    checks += _check_otdr(summary_links, outcome, absent, name)
     return checks
 
 
-def _check_project(project_dir: Path, entries: list[dict[str, Any]]) -> list[Check]:
+def _check_otdr(summary_links: list[Any], outcome: Any, absent: frozenset[str],
+                name: str) -> list[Check]:
+    """summary.json's OTDR verdicts (each link, strand and wavelength) against those judged
+    again; one that used a trace file not at hand is named as not derived again."""
+    import json
+
+    from reportgen.export.summary import json_bytes, otdr_json
+
+    if outcome.otdr is None or not any(isinstance(link, dict) and link.get("otdr")
+                                       for link in summary_links):
+        return []
+    differ, not_derived, equal = [], [], 0
+    for link in summary_links:
+        link_id = link.get("link_id") if isinstance(link, dict) else None
+        stated = link.get("otdr") or [] if isinstance(link, dict) else []
+        again = {(item["strand"], item["wavelength_nm"]): item for item in json.loads(
+            json_bytes({"otdr": otdr_json(outcome.otdr, str(link_id))}))["otdr"]}
+        stated = [item for item in stated if isinstance(item, dict)] if isinstance(
+            stated, list) else []
+        listed = {(item.get("strand"), item.get("wavelength_nm")) for item in stated}
+        for item in stated:
+            key = (item.get("strand"), item.get("wavelength_nm"))
+            where = f"{link_id} strand {key[0]} {key[1]} nm"
+            files = item.get("files") if isinstance(item.get("files"), list) else []
+            missing = sorted(set(map(str, files)) & absent)
+            rejudged = again.pop(key, None)
+            if missing:
+                not_derived.append(f"{where} ({', '.join(missing)})")
+            elif rejudged != item:
+                keys = sorted(set(item) | set(rejudged or {}))
+                changed = [k for k in keys if item.get(k) != (rejudged or {}).get(k)]
+                differ.append(f"{where}: differs in {', '.join(changed)} when judged again "
+                              f"(summary.json says verdict {item.get('verdict')!r})")
+            else:
+                equal += 1
+        differ += [f"{link_id} strand {key[0]} {key[1]} nm: judged again, not in summary.json"
+                   for key in again if key not in listed]
+    checks = [Check(f"{name}: OTDR verdicts in summary.json", not differ,
+                    f"all {equal} OTDR verdicts judged again, with their events, equal"
+                    if not differ else "; ".join(differ[:10])
+                    + (f"; ... {len(differ) - 10} more" if len(differ) > 10 else ""))]
+    if not_derived:
+        checks.append(Check(
+            f"{name}: OTDR verdicts not judged again", False,
+            f"{len(not_derived)} OTDR verdict(s) use trace files not embedded in the report; "
+            "give --project with the project folder to judge them again: "
+            + "; ".join(not_derived[:10])
+            + (f"; ... {len(not_derived) - 10} more" if len(not_derived) > 10 else "")))
+    return checks
+
+
+def _read_folder(project_dir: Path) -> tuple[dict[str, bytes] | None, str]:
+    """The folder's input files as a build reads them now, or None and why not."""
+    try:
+        return read_files(validate_only(project_dir)), ""
+    except InputError as error:
+        return None, "does not validate: " + "; ".join(str(problem)
+                                                       for problem in error.problems[:5])
+
+
+def _check_project(project_dir: Path, now_read: dict[str, bytes] | None, why: str,
+                   entries: list[dict[str, Any]]) -> list[Check]:
     """The files of ``project_dir`` against the inputs the manifest lists."""
     name = f"project folder {project_dir}"
-    try:
-        project = validate_only(project_dir)
-        now_read = read_files(project)
-    except InputError as error:
-        return [Check(name, False, "does not validate: "
-                      + "; ".join(str(problem) for problem in error.problems[:5]))]
+    if now_read is None:
+        return [Check(name, False, why)]
     listed = {entry["path"][len(manifest_file.INPUT_PREFIX):]: entry for entry in entries
               if entry["path"].startswith(manifest_file.INPUT_PREFIX)}
     differences = []
@@ -176,6 +268,19 @@ def _check_project(project_dir: Path, entries: list[dict[str, Any]]) -> list[Che
     return [Check(name, not differences,
                   f"all {len(now_read)} input files equal the copies in the report"
                   if not differences else "; ".join(differences))]
+
+
+def _left_out(entries: list[dict[str, Any]], folder: dict[str, bytes] | None
+              ) -> dict[str, bytes | None]:
+    """Each input the manifest marks not embedded, with the folder's copy if it is the same."""
+    found: dict[str, bytes | None] = {}
+    for entry in entries:
+        if entry.get("embedded") is False and entry["path"].startswith(manifest_file.INPUT_PREFIX):
+            path = entry["path"][len(manifest_file.INPUT_PREFIX):]
+            data = (folder or {}).get(path)
+            same = data is not None and manifest_file.sha256_hex(data) == entry["sha256"]
+            found[path] = data if same else None
+    return found
 
 
 def _check_signatures(data: bytes, trust_pem: bytes | None) -> list[Check]:
@@ -243,9 +348,10 @@ def verify_report(pdf_path: Path, project_dir: Path | None = None,
     checks += [Check("archive format", contents.pdfa_part == "3",
                     "PDF/A-3 identification in the XMP metadata" if contents.pdfa_part == "3"
                     else "no PDF/A-3 identification in the XMP metadata")]
-    checks += _check_files(contents.files, entries)
+    folder, why = _read_folder(Path(project_dir)) if project_dir is not None else (None, "")
+    checks += _check_files(contents.files, entries, folder)
     checks += _check_digest(digest, contents.files, contents.page_texts)
-    checks += _check_verdicts(contents.files, generator)
+    checks += _check_verdicts(contents.files, generator, _left_out(entries, folder))
     if project_dir is not None:
-        checks += _check_project(Path(project_dir), entries)
+        checks += _check_project(Path(project_dir), folder, why, entries)
     return checks

@@ -12,6 +12,7 @@ writes is present.
 from __future__ import annotations
 
 import io
+import re
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -72,19 +73,23 @@ def test_6_1_3_trailer_has_a_file_identifier_and_no_encryption(pdf: pikepdf.Pdf)
     assert not pdf.is_encrypted
 
 
-def test_6_6_xmp_metadata_identifies_pdfa_3b_with_title_author_dates(pdf: pikepdf.Pdf) -> None:
+def test_6_6_xmp_metadata_identifies_pdfa_3u_with_title_author_dates(pdf: pikepdf.Pdf) -> None:
     # ISO 19005-3, 6.6.2.1 (catalog Metadata stream) and 6.6.4 (pdfaid:part, pdfaid:conformance)
     # (from memory); the XMP values equal the document information (6.6.2.3, from memory).
     assert pdf.Root.Metadata.Type == "/Metadata" and pdf.Root.Metadata.Subtype == "/XML"
     meta = pdf.open_metadata()
     assert meta["pdfaid:part"] == "3"
-    assert meta["pdfaid:conformance"] == "B"
+    assert meta["pdfaid:conformance"] == "U"
     assert meta["dc:title"] == TITLE == str(pdf.docinfo["/Title"])
     assert meta["dc:creator"] == [AUTHOR] and str(pdf.docinfo["/Author"]) == AUTHOR
     assert meta["xmp:CreateDate"] == "2030-01-15T09:30:00Z"
     assert str(pdf.docinfo["/CreationDate"]) == "D:20300115093000Z"
     assert meta["xmp:CreatorTool"] == str(pdf.docinfo["/Creator"])
-    assert meta["pdf:Producer"] == str(pdf.docinfo["/Producer"])
+    # producer and modification date are in the XMP packet only, so that the signature
+    # (pyHanko rewrites both) leaves Info and XMP equal; tests/test_verify.py signs and checks
+    assert meta["pdf:Producer"].startswith("WeasyPrint")
+    assert meta["xmp:ModifyDate"] == "2030-01-15T09:30:00Z"
+    assert "/Producer" not in pdf.docinfo and "/ModDate" not in pdf.docinfo
 
 
 def test_6_2_2_output_intent_is_srgb_with_an_embedded_icc_profile(pdf: pikepdf.Pdf) -> None:
@@ -165,11 +170,121 @@ def test_6_5_and_6_6_no_javascript_no_launch_no_external_file_references(
     assert "/JavaScript" not in pdf.Root.get("/Names", {})
 
 
-def test_the_file_claims_level_b_only_because_it_has_no_structure_tree(pdf: pikepdf.Pdf) -> None:
+def test_the_file_claims_level_u_and_not_a_because_it_has_no_structure_tree(
+        pdf: pikepdf.Pdf) -> None:
     # ISO 19005-3, 6.7 (from memory): level A needs a tagged file; ours is untagged, so the
-    # XMP must not claim A (or U, which needs Unicode maps for every font, the stamp's too).
+    # XMP must not claim A. Level U (6.2.11.7.2): every font has a ToUnicode CMap (below).
     assert "/StructTreeRoot" not in pdf.Root
-    assert pdf.open_metadata()["pdfaid:conformance"] == "B"
+    assert pdf.open_metadata()["pdfaid:conformance"] == "U"
+
+
+def _cmap(data: bytes) -> dict[int, str]:
+    """A ToUnicode CMap's code -> text, from its bfchar and bfrange blocks (ISO 32000-1,
+    9.10.3, from memory; destinations are UTF-16BE)."""
+    found: dict[int, str] = {}
+    for block in re.findall(rb"beginbfchar(.*?)endbfchar", data, re.S):
+        for code, text in re.findall(rb"<([0-9A-Fa-f]+)>\s*<([0-9A-Fa-f]*)>", block):
+            found[int(code, 16)] = bytes.fromhex(text.decode()).decode("utf-16-be")
+    for block in re.findall(rb"beginbfrange(.*?)endbfrange", data, re.S):
+        for low, high, target in re.findall(
+                rb"<([0-9A-Fa-f]+)>\s*<([0-9A-Fa-f]+)>\s*(<[0-9A-Fa-f]*>|\[[^\]]*\])", block):
+            low_code, high_code = int(low, 16), int(high, 16)
+            if target.startswith(b"<"):
+                first = bytes.fromhex(target[1:-1].decode()).decode("utf-16-be")
+                for step, code in enumerate(range(low_code, high_code + 1)):
+                    found[code] = first[:-1] + chr(ord(first[-1]) + step)
+            else:
+                for step, text in enumerate(re.findall(rb"<([0-9A-Fa-f]*)>", target)):
+                    found[low_code + step] = bytes.fromhex(text.decode()).decode("utf-16-be")
+    return found
+
+
+def _shown_texts(pdf: pikepdf.Pdf) -> list[tuple[int, str, list[int], dict[int, str]]]:
+    """Every string shown (Tj, TJ) on the pages and in their form XObjects: (page, font
+    name, character codes, the font's ToUnicode map)."""
+    shown: list[tuple[int, str, list[int], dict[int, str]]] = []
+    maps: dict[tuple[int, int], dict[int, str]] = {}
+
+    def walk(content: pikepdf.Object, resources: pikepdf.Object, number: int) -> None:
+        fonts = resources.get("/Font", {}) if resources is not None else {}
+        forms = resources.get("/XObject", {}) if resources is not None else {}
+        font = None
+        for operands, operator in pikepdf.parse_content_stream(content):
+            name = str(operator)
+            if name == "Tf":
+                font = fonts.get(str(operands[0]))
+            elif name == "Do":
+                form = forms.get(str(operands[0]))
+                if form is not None and form.get("/Subtype") == "/Form":
+                    walk(form, form.get("/Resources"), number)
+            elif name in ("Tj", "TJ") and font is not None:
+                if font.objgen not in maps:
+                    maps[font.objgen] = _cmap(font.ToUnicode.read_bytes())
+                width = 2 if font.Subtype == "/Type0" else 1  # Identity-H: 2-byte codes
+                strings = [operands[0]] if name == "Tj" else [
+                    item for item in operands[0] if isinstance(item, pikepdf.String)]
+                for string in strings:
+                    raw = bytes(string)
+                    codes = [int.from_bytes(raw[i:i + width], "big")
+                             for i in range(0, len(raw), width)]
+                    shown.append((number, str(font.BaseFont), codes, maps[font.objgen]))
+
+    for number, page in enumerate(pdf.pages, start=1):
+        walk(page, page.get("/Resources"), number)
+    return shown
+
+
+def test_6_2_11_7_2_every_font_has_a_tounicode_cmap_the_page_stamp_included(
+        pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.2.11.7.2 (from memory): for level U, each font dictionary includes a
+    # ToUnicode CMap (a CIDFont's is on its Type 0 parent, ISO 32000-1, 9.10.2).
+    fonts = [obj for obj in all_objects(pdf)
+             if obj.get("/Type") == "/Font" and obj.get("/Subtype") != "/CIDFontType2"]
+    assert any(font.Subtype == "/TrueType" for font in fonts)   # the page stamp's
+    assert [str(font.BaseFont) for font in fonts if "/ToUnicode" not in font] == []
+
+
+def test_6_2_11_7_2_every_code_shown_maps_to_unicode(pdf: pikepdf.Pdf) -> None:
+    # ISO 19005-3, 6.2.11.7.2 (from memory): every character code used maps to a Unicode
+    # value, and none to U+0000, U+FEFF or U+FFFE.
+    shown = _shown_texts(pdf)
+    assert len(shown) > 10
+    bad = [(page, font, code, table.get(code)) for page, font, codes, table in shown
+           for code in codes if table.get(code) in (None, "\x00", "\ufeff", "\ufffe")]
+    assert bad == []
+
+
+def test_a_font_without_tounicode_leaves_the_claim_at_level_b() -> None:
+    # ISO 19005-3, 6.2.11.7.2 (from memory): one font without a Unicode map and the file
+    # may claim level B only, never U.
+    from pypdf import PdfWriter
+    from pypdf.generic import DictionaryObject, NameObject
+
+    from reportgen.pdf.archive import fonts_without_unicode, make_archival
+
+    writer = PdfWriter()
+    page = writer.add_blank_page(200, 200)
+    font = DictionaryObject({NameObject("/Type"): NameObject("/Font"),
+                             NameObject("/Subtype"): NameObject("/TrueType"),
+                             NameObject("/BaseFont"): NameObject("/NoMapFont")})
+    page[NameObject("/Resources")] = DictionaryObject(
+        {NameObject("/Font"): DictionaryObject({NameObject("/F1"): font})})
+    assert fonts_without_unicode(writer) == ["/NoMapFont"]
+    make_archival(writer, title="t", author="a", creator="c", producer="p", created=CREATED)
+    buffer = io.BytesIO()
+    writer.write(buffer)
+    with pikepdf.open(io.BytesIO(buffer.getvalue())) as made:
+        assert made.open_metadata()["pdfaid:conformance"] == "B"
+
+
+def test_the_page_stamp_reads_back_through_its_tounicode_cmap(pdf: pikepdf.Pdf) -> None:
+    # the render's page label is "Page {page} of {pages}" (render_pdf's default); the tiny
+    # report has a cover and a sheet: 2 pages.
+    for number in (1, 2):
+        texts = ["".join(table[code] for code in codes)
+                 for page, font, codes, table in _shown_texts(pdf)
+                 if page == number and "DejaVuSans" in font and "+" in font]
+        assert f"Page {number} of 2" in texts
 
 
 def test_two_renders_with_attachments_are_byte_identical(archive_pdf: bytes,

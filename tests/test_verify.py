@@ -248,6 +248,67 @@ def test_signed_report_passes_integrity_and_trust(
     assert "ok    signature ReportSignature: trust" in out
 
 
+# ISO 19005-1, 6.7.3, Table 1 (from memory; PDF/A-3 keeps the rule, 6.6.2.3): each entry of
+# the document information dictionary, when present, equals its XMP property.
+INFO_XMP = {"/Title": "dc:title", "/Author": "dc:creator", "/Creator": "xmp:CreatorTool",
+            "/Producer": "pdf:Producer", "/CreationDate": "xmp:CreateDate",
+            "/ModDate": "xmp:ModifyDate"}
+
+
+def _pdf_date(text: str) -> datetime:
+    # ISO 32000-1, 7.9.4: D:YYYYMMDDHHmmSS then Z or +HH'mm' (from memory)
+    body = text.removeprefix("D:")
+    moment = datetime.strptime(body[:14], "%Y%m%d%H%M%S")
+    zone = body[14:].replace("'", "")
+    if zone in ("", "Z"):
+        return moment.replace(tzinfo=timezone.utc)
+    return datetime.strptime(body[:14] + zone[:5], "%Y%m%d%H%M%S%z")
+
+
+def _info_differences(pdf: pikepdf.Pdf) -> list[str]:
+    meta = pdf.open_metadata()
+    found = []
+    for key, prop in INFO_XMP.items():
+        if key not in pdf.docinfo:
+            continue
+        info, xmp = str(pdf.docinfo[key]), meta.get(prop)
+        if key.endswith("Date"):
+            same = xmp is not None and _pdf_date(info) == datetime.fromisoformat(
+                xmp.replace("Z", "+00:00"))
+        elif prop == "dc:creator":
+            same = xmp == [info]
+        else:
+            same = xmp == info
+        if not same:
+            found.append(f"{key} {info!r} but {prop} {xmp!r}")
+    return found
+
+
+@pytest.mark.slow
+def test_signing_keeps_the_pdfa_identification_and_info_equal_to_xmp(
+        signed: tuple[Path, Path], demo_build: Path) -> None:
+    path, _ = signed
+    with pikepdf.open(demo_build / "report.pdf") as before, pikepdf.open(path) as after:
+        assert _info_differences(before) == [] and _info_differences(after) == []
+        meta = after.open_metadata()
+        # ISO 19005-3, 6.6.4 (from memory): part 3; level U, every font maps to Unicode
+        assert (meta["pdfaid:part"], meta["pdfaid:conformance"]) == ("3", "U")
+        assert before.open_metadata()["pdfaid:conformance"] == "U"
+        # what pyHanko changes: the producer (XMP, and Info which had none) and the
+        # modification date (XMP only: Info has none, and pyHanko only updates one present)
+        assert "/Producer" not in before.docinfo and "/ModDate" not in before.docinfo
+        assert meta["pdf:Producer"] == str(after.docinfo["/Producer"])
+        assert meta["pdf:Producer"].startswith("pyHanko")
+        assert "/ModDate" not in after.docinfo
+        # the signing time, from the clock (the build date is NOW)
+        signed_at = datetime.fromisoformat(meta["xmp:ModifyDate"].replace("Z", "+00:00"))
+        assert abs((datetime.now(timezone.utc) - signed_at).total_seconds()) < 3600
+        for key in ("/Title", "/Author", "/Creator", "/CreationDate"):
+            assert str(after.docinfo[key]) == str(before.docinfo[key])
+        assert after.Root.OutputIntents[0].S == "/GTS_PDFA1"
+        assert set(after.attachments) == set(before.attachments)
+
+
 @pytest.mark.slow
 def test_another_trust_certificate_fails_trust_but_passes_integrity(
         signed: tuple[Path, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

@@ -83,13 +83,15 @@ def otdr_settings(check: Checker, testing: Mapping[str, Any]) -> OtdrSettings | 
 
 
 def load_otdr(root: Path, links: Sequence[Link], units: LengthUnit | None,
-              all_link_ids: frozenset[str] | None = None
+              all_link_ids: frozenset[str] | None = None, absent: frozenset[str] = frozenset()
               ) -> tuple[tuple[OtdrTrace, ...], list[str], list[InputProblem]]:
     """Every trace of ``otdr/``: (traces, files read, problems).
 
     ``all_link_ids``: every id written in links.csv (None when it could not be read). A trace of
     a link whose row has problems of its own, or any trace when links.csv is unreadable, is
-    skipped without a further message: the links.csv problem is the one to fix.
+    skipped without a further message: the links.csv problem is the one to fix. ``absent``:
+    trace files (project-relative paths) known to be missing on purpose (``reportgen verify``
+    of a report that did not embed them); an index row naming one is skipped.
     """
     folder = root / OTDR_DIR
     if not folder.exists():
@@ -117,6 +119,8 @@ def load_otdr(root: Path, links: Sequence[Link], units: LengthUnit | None,
         if trace is not None:
             traces.append(trace)
     for shown, (_l, _s, _d, line) in index.items():
+        if shown in absent:
+            continue
         problems.append(InputProblem(f"{OTDR_DIR}/{INDEX_FILE}", line, "file",
                                      "the name of a .sor file in the otdr folder (not found)", shown))
     for path in sorted(p for p in folder.glob("*.csv") if p.name != INDEX_FILE and p.is_file()

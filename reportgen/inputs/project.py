@@ -56,8 +56,10 @@ MAX_STRANDS: Final = 1000
 MAX_COUNT: Final = 1000  # connections or splices on one link
 
 
-def load_project(project_dir: Path) -> Project:
+def load_project(project_dir: Path, *, absent: frozenset[str] = frozenset()) -> Project:
     """Read and validate the project folder ``project_dir``.
+
+    ``absent``: OTDR trace files missing on purpose (see :func:`reportgen.inputs.otdr.load_otdr`).
 
     Raises
     ------
@@ -141,7 +143,8 @@ def load_project(project_dir: Path) -> Project:
                 frame["source"] = import_table.source_texts(shown, imported.sheet, imported.numbers)
                 frames.append(frame)
 
-    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids)
+    otdr_traces, otdr_files, otdr_problems = load_otdr(root, links, settings.units, all_link_ids,
+                                                          absent)
     problems += otdr_problems
 
     record_files: list[str] = []

@@ -54,7 +54,8 @@ KEYS: Final[Mapping[str, tuple[str, ...]]] = {
     "testing.otdr": OTDR_KEYS,
     "testing.audit": tuple(audit.AUDIT_KEYS),
     "testing.period": ("start", "end"),
-    "report": ("paper", "templates", "language"),
+    "report": ("paper", "templates", "language", "embed_otdr_file_mb", "embed_otdr_total_mb",
+               "tagged"),
 }
 REQUIRED_KEYS: Final = frozenset({("project", "title"), ("project", "contractor"),
                                   ("project.contractor", "name"), ("testing", "limits"),
@@ -271,11 +272,20 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
     if value is None:
         return ReportOptions()
     if not isinstance(value, Mapping):
-        check.problem("report", "a mapping with paper, templates and/or language", value)
+        check.problem("report", "a mapping with paper, templates, language, embed_otdr_file_mb, embed_otdr_total_mb, tagged", value)
         return None
     check.misspelt_keys(value, "report")
     paper = check.choice(value, "paper", "report.paper", Paper, Paper.A4)
     language = check.choice(value, "language", "report.language", ReportLanguage, ReportLanguage.EN)
+    caps = {}
+    for key, field in (("embed_otdr_file_mb", "otdr_file_mb"), ("embed_otdr_total_mb", "otdr_total_mb")):
+        if value.get(key) is not None:
+            caps[field] = check.number(value[key], f"report.{key}", "of megabytes, 0 or more",
+                                       0.0, 1e6)
+    tagged = value.get("tagged", False)
+    if not isinstance(tagged, bool):
+        check.problem("report.tagged", "true or false", tagged)
+        tagged = None
     templates = None
     if value.get("templates") is not None:
         templates = check.inside_path(value["templates"], "report.templates", "a templates folder")
@@ -291,6 +301,6 @@ def _report(check: Checker, value: Any) -> ReportOptions | None:
                 templates = None
         if templates is None:
             return None
-    if paper is None or language is None:
+    if paper is None or language is None or None in caps.values() or tagged is None:
         return None
-    return ReportOptions(paper=paper, templates=templates, language=language)
+    return ReportOptions(paper=paper, templates=templates, language=language, tagged=tagged, **caps)

@@ -1,11 +1,12 @@
-"""Make the merged report an archive file (PDF/A-3b) and read such a file back.
+"""Make the merged report an archive file (PDF/A-3u, or 3b) and read such a file back.
 
 :func:`make_archival` runs after the merge (:func:`reportgen.pdf.merge.finish_pdf`),
 on the whole file, so the merged report conforms and not only the WeasyPrint parts:
 
-- XMP metadata (ISO 19005-3, 6.6): the PDF/A identification (part 3, conformance B),
-  title, author, creator tool, producer and the dates of the document information
-  dictionary, all from the build's inputs and date (no clock);
+- XMP metadata (ISO 19005-3, 6.6): the PDF/A identification (part 3, conformance U or B),
+  title, author, creator tool and creation date of the document information dictionary,
+  the producer and modification date (in XMP only: see :mod:`reportgen.pdf.sign`), all
+  from the build's inputs and date (no clock);
 - an sRGB output intent (6.2.3), with the ICC profile WeasyPrint ships
   (:func:`reportgen.pdf.weasy.srgb_icc_profile`);
 - every annotation printable and not hidden (6.3.2);
@@ -19,9 +20,12 @@ Fonts: WeasyPrint embeds every font it uses; the page-number stamp embeds a Deja
 Sans subset and refuses to run without it (:mod:`reportgen.pdf.stamp`). No JavaScript,
 encryption, external content or forms are written by any step.
 
-What this does not make: a tagged PDF (the parts are rendered untagged and pypdf
-would not carry a structure tree through the merge), so the file claims PDF/A-3
-level B only, never level A.
+Level: U (ISO 19005-3, 6.2.11.7.2: every font maps its character codes to Unicode)
+when every font used has a ToUnicode CMap (:func:`fonts_without_unicode`; WeasyPrint
+writes one for each of its fonts, the page stamp one for its font), else B, and the
+names of the fonts without one are logged. Never level A: that needs a tagged PDF, and
+the parts are rendered untagged (pypdf would not carry a structure tree through the
+merge).
 
 :func:`read_archive` returns the embedded files and the text of each page, for
 ``reportgen verify``. Only documented pypdf API is used, except the two helpers of
@@ -32,6 +36,7 @@ from __future__ import annotations
 
 import hashlib
 import io
+import logging
 import xml.etree.ElementTree as ET
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -54,8 +59,10 @@ from reportgen.errors import ReportgenError
 from reportgen.pdf.pypdf_access import add_indirect, set_file_identifier
 from reportgen.pdf.weasy import srgb_icc_profile
 
+LOGGER: Final = logging.getLogger(__name__)
 PDFA_PART: Final = 3
-PDFA_CONFORMANCE: Final = "B"
+PDFA_UNICODE: Final = "U"   # level U: level B, and every font maps its codes to Unicode
+PDFA_BASIC: Final = "B"
 OUTPUT_CONDITION: Final = "sRGB IEC61966-2.1"
 RELATIONSHIPS: Final = ("Source", "Data")
 PDFAID_PART: Final = "{http://www.aiim.org/pdfa/ns/id/}part"
@@ -88,7 +95,7 @@ def xmp_date(moment: datetime) -> str:
 
 
 def xmp_packet(*, title: str, author: str, creator: str, producer: str,
-               created: datetime, language: str = "en") -> bytes:
+               created: datetime, conformance: str = PDFA_BASIC, language: str = "en") -> bytes:
     """The XMP metadata packet: PDF/A identification, Dublin Core title/creator/language,
     dates."""
     date = xmp_date(created)
@@ -104,7 +111,7 @@ def xmp_packet(*, title: str, author: str, creator: str, producer: str,
         ' xmlns:xmp="http://ns.adobe.com/xap/1.0/"'
         ' xmlns:pdf="http://ns.adobe.com/pdf/1.3/">\n'
         f"<pdfaid:part>{PDFA_PART}</pdfaid:part>\n"
-        f"<pdfaid:conformance>{PDFA_CONFORMANCE}</pdfaid:conformance>\n"
+        f"<pdfaid:conformance>{conformance}</pdfaid:conformance>\n"
         "<dc:format>application/pdf</dc:format>\n"
         f'<dc:title><rdf:Alt><rdf:li xml:lang="x-default">{escape(title)}</rdf:li>'
         "</rdf:Alt></dc:title>\n"
@@ -162,16 +169,65 @@ def _attach(writer: PdfWriter, attachments: Sequence[Attachment], modified: date
         writer.root_object[NameObject("/AF")] = ArrayObject(references)
 
 
+def _resources_fonts(resources: object, seen: set[int], found: list[DictionaryObject]) -> None:
+    """The font dictionaries of ``resources``, and of its form XObjects, patterns and Type 3
+    fonts, appended to ``found`` (each object once)."""
+    resources = resources.get_object() if resources is not None else None
+    if not isinstance(resources, DictionaryObject):
+        return
+    fonts = resources.get("/Font")
+    for font in (fonts.get_object().values() if fonts is not None else ()):
+        font = font.get_object()
+        if id(font) in seen or not isinstance(font, DictionaryObject):
+            continue
+        seen.add(id(font))
+        found.append(font)
+        _resources_fonts(font.get("/Resources"), seen, found)   # a Type 3 font's glyphs
+    for key in ("/XObject", "/Pattern"):
+        entries = resources.get(key)
+        for item in (entries.get_object().values() if entries is not None else ()):
+            item = item.get_object()
+            if id(item) not in seen and isinstance(item, DictionaryObject):
+                seen.add(id(item))
+                _resources_fonts(item.get("/Resources"), seen, found)
+
+
+def fonts_without_unicode(writer: PdfWriter) -> list[str]:
+    """The names of the fonts used on the pages (content, form XObjects, patterns, annotation
+    appearances) whose dictionary has no ``/ToUnicode`` CMap; [] when every font has one.
+
+    A CIDFont is reached only as the descendant of a Type 0 font, whose dictionary carries
+    the CMap, so it is not listed.
+    """
+    seen: set[int] = set()
+    fonts: list[DictionaryObject] = []
+    for page in writer.pages:
+        _resources_fonts(page.get("/Resources"), seen, fonts)
+        for annotation in page.get("/Annots") or ():
+            appearance = annotation.get_object().get("/AP")
+            for stream in (appearance.get_object().values() if appearance is not None else ()):
+                stream = stream.get_object()
+                streams = stream.values() if not hasattr(stream, "get_data") else [stream]
+                for item in streams:
+                    _resources_fonts(item.get_object().get("/Resources"), seen, fonts)
+    return sorted({str(font.get("/BaseFont", font.get("/Name", "?"))) for font in fonts
+                   if "/ToUnicode" not in font})
+
+
 def make_archival(writer: PdfWriter, *, title: str, author: str, creator: str, producer: str,
                   created: datetime, attachments: Sequence[Attachment] = (),
                   language: str = "en") -> None:
-    """Add what PDF/A-3b asks of the merged file (see the module docstring) to ``writer``.
+    """Add what PDF/A-3 asks of the merged file (see the module docstring) to ``writer``.
 
     Call it after the pages, links, outline and document information are in place.
     """
+    lacking = fonts_without_unicode(writer)
+    if lacking:  # level B still holds; level U would need a ToUnicode CMap in each
+        LOGGER.info("PDF/A-3 level B only: no ToUnicode CMap in font(s) %s", ", ".join(lacking))
     xmp = DecodedStreamObject()
     xmp.set_data(xmp_packet(title=title, author=author, creator=creator, producer=producer,
-                            created=created, language=language))
+                            created=created, language=language,
+                            conformance=PDFA_BASIC if lacking else PDFA_UNICODE))
     xmp[NameObject("/Type")] = NameObject("/Metadata")
     xmp[NameObject("/Subtype")] = NameObject("/XML")
     root = writer.root_object

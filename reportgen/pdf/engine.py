@@ -471,7 +471,8 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
             pdf = finish_pdf(writer, front_part, body_parts, title=title,
                              page_label=page_label, created=created, author=author,
                              language=language,
-                             attachments=attachments, seal=seal)
+                             attachments=attachments, seal=seal,
+                             structure=copier.structure)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
                 "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)

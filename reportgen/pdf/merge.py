@@ -43,6 +43,7 @@ from reportgen import __version__
 from reportgen.pdf.archive import Attachment, make_archival
 from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
 from reportgen.pdf.stamp import Stamper, make_stamp_font
+from reportgen.pdf.tags import StructureMerger
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
 
 LOGGER = logging.getLogger(__name__)
@@ -174,32 +175,42 @@ class PageCopier:
 
     def __init__(self) -> None:
         self.writer = PdfWriter()
+        self.structure = StructureMerger(self.writer)  # the parts' structure trees, if tagged
         self.copied = 0                    # parts copied so far: 0 .. copied-1
         self._waiting: dict[int, RenderedPart] = {}
 
     def offer(self, index: int, part: RenderedPart) -> None:
         self._waiting[index] = part
         while self.copied in self._waiting:
-            for page in PdfReader(io.BytesIO(self._waiting.pop(self.copied).pdf)).pages:
-                self.writer.add_page(page)
+            reader = PdfReader(io.BytesIO(self._waiting.pop(self.copied).pdf))
+            pages = [self.writer.add_page(page) for page in reader.pages]
+            self.structure.add_part(self.copied + 1, reader, pages)  # part 0: front matter
             self.copied += 1
 
 
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
                title: str, page_label: str, created: datetime, compact: bool = True,
                author: str = "", attachments: Sequence[Attachment] = (),
-               seal: Seal | None = None, language: str = "en") -> bytes:
+               seal: Seal | None = None, structure: StructureMerger | None = None,
+               language: str = "en") -> bytes:
     """Put the front matter before the bodies in ``writer``, finish it, return the bytes.
 
+    ``structure``: the structure trees of the bodies copied into ``writer`` (the
+    :class:`PageCopier`'s); the front matter's is added here, and the whole tree is kept
+    only when every part is tagged and the tree is whole (:mod:`reportgen.pdf.tags`).
+
     Adds the page-number stamps, links, outline and metadata, then makes the merged
-    file PDF/A-3b with ``attachments`` embedded (:func:`reportgen.pdf.archive.make_archival`);
+    file PDF/A-3u with ``attachments`` embedded (:func:`reportgen.pdf.archive.make_archival`);
     with ``compact``, merges identical objects and repacks with qpdf when installed.
     ``seal(pdf, places)``, given, signs the finished file (:mod:`reportgen.pdf.sign`);
     ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).
     ``language`` is written as the document catalog's /Lang (PDF 1.4+, read by screen readers).
     """
-    for index, page in enumerate(PdfReader(io.BytesIO(front.pdf)).pages):
-        writer.insert_page(page, index)
+    if structure is None:
+        structure = StructureMerger(writer)
+    reader = PdfReader(io.BytesIO(front.pdf))
+    structure.add_part(0, reader, [writer.insert_page(page, index)
+                                   for index, page in enumerate(reader.pages)])
     parts = [front, *bodies]
     frames = [frame for part in parts for frame in part.pages]
     total = len(frames)
@@ -213,11 +224,13 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     add_links(writer, frames, anchors)
     add_outline(writer, parts, anchors)
     add_named_destinations(writer, parts, anchors)
-    date = pdf_date(created)
-    writer.add_metadata({
-        "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
-        "/CreationDate": date, "/ModDate": date,
-    })
+    structure.finish(range(len(parts)))
+    # The document information holds no /Producer and no /ModDate (the XMP packet does):
+    # pyHanko, signing, sets the XMP producer to its own name and the Info /Producer to
+    # ours followed by its name, and writes the signing time into each date separately;
+    # without the two keys in Info, Info and XMP still agree after signing (PDF/A-3 6.6.2.3).
+    writer.metadata = {"/Title": TextStringObject(title), "/Creator": CREATOR,
+                       "/CreationDate": pdf_date(created)}
     writer.root_object[NameObject("/Lang")] = TextStringObject(language)
     make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
                   created=created, attachments=attachments, language=language)

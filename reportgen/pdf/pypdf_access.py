@@ -31,10 +31,12 @@ one test per use; run it before raising the pypdf bound in pyproject.toml):
    ``--deterministic-id`` replaces it by its own, also derived from the content, when
    the file is repacked). Used by archive.make_archival. Checked on pypdf 7.1.1.
 
-Everything else the pdf package does with pypdf uses documented API: ``PdfReader``,
-``PdfWriter.add_page``/``insert_page``/``add_outline_item``/``add_metadata``/
+Everything else the pdf package does with pypdf uses documented API: ``PdfReader``
+(``trailer``, ``pages``), ``PdfWriter.add_page``/``insert_page`` (and the page they
+return)/``add_outline_item``/``add_metadata``/``metadata``/``root_object``/
 ``compress_identical_objects``/``write``, ``page_mode``, ``indirect_reference`` and
-the objects of :mod:`pypdf.generic`.
+the objects of :mod:`pypdf.generic` (``DictionaryObject.raw_get``, ``clone``,
+``get_data``/``set_data`` of a content stream, used by :mod:`reportgen.pdf.tags`).
 """
 
 from __future__ import annotations

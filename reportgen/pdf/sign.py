@@ -8,8 +8,14 @@ font in the appearance would break the archive format). The key and certificate 
 the file enters the report, only the signer's certificate, as in every PDF signature.
 
 The signature is appended as an incremental update, so everything before it, the
-PDF/A-3b file with its attachments, stays byte for byte as built. A signed report is
+PDF/A-3u file with its attachments, stays byte for byte as built. A signed report is
 not byte-identical between two builds (the signature holds the signing time).
+
+pyHanko updates the metadata in the signing revision: XMP ``pdf:Producer`` becomes its
+own name, ``xmp:ModifyDate`` the signing time, and the document information gets a
+``/Producer`` of the same name (it updates an Info ``/ModDate`` only if one exists).
+:func:`reportgen.pdf.merge.finish_pdf` writes neither key into the document information,
+so the signed file's Info still equals its XMP (PDF/A-3 6.6.2.3; tests/test_verify.py).
 """
 
 from __future__ import annotations

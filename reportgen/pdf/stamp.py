@@ -5,12 +5,15 @@ the total; the numbers are written afterwards, as one small content stream per p
 appended by pypdf. The same stream writes the page number of each page slot left
 by the front matter (:class:`reportgen.pdf.weasy.PageSlot`). The text is set in
 DejaVu Sans, subset to the characters used and embedded once (a simple TrueType
-font, WinAnsi encoding). If no DejaVu Sans font file is found the build stops with a
-message naming the package to install: report.pdf is an archive file (PDF/A-3b), where
+font, WinAnsi encoding, with a ToUnicode CMap mapping each code used to its character, so
+text extraction and PDF/A level U hold for the stamp too). If no DejaVu Sans font file is found the build stops with a
+message naming the package to install: report.pdf is an archive file (PDF/A-3u), where
 every font must be embedded, so there is no fallback to an unembedded standard font.
 
 Each page's original content is wrapped in ``q … Q`` so that the graphics state a
-part leaves behind (WeasyPrint flips the y axis) cannot move the stamp.
+part leaves behind (WeasyPrint flips the y axis) cannot move the stamp. What the stamp
+draws is marked as an artifact (``/Artifact BMC … EMC``, ISO 32000-1, 14.8.2.2), so
+that in a tagged report it stands outside the structure tree, as page numbers should.
 
 The font and the streams are added to the writer through
 :func:`reportgen.pdf.pypdf_access.add_indirect` (pypdf has no documented method for it).
@@ -104,6 +107,23 @@ def _subset_tag(chars: str) -> str:
     return "".join(chr(ord("A") + byte % 26) for byte in digest[:6])
 
 
+def to_unicode_cmap(chars: str) -> bytes:
+    """A ToUnicode CMap (ISO 32000-1, 9.10.3) mapping each character's WinAnsi code to it."""
+    pairs = sorted((char.encode(STAMP_ENCODING)[0], char) for char in chars)
+    lines = [b"/CIDInit /ProcSet findresource begin", b"12 dict begin", b"begincmap",
+             b"/CIDSystemInfo << /Registry (Adobe) /Ordering (UCS) /Supplement 0 >> def",
+             b"/CMapName /Adobe-Identity-UCS def", b"/CMapType 2 def",
+             b"1 begincodespacerange", b"<00> <FF>", b"endcodespacerange"]
+    for start in range(0, len(pairs), 100):  # at most 100 entries per block (9.10.3)
+        block = pairs[start:start + 100]
+        lines.append(b"%d beginbfchar" % len(block))
+        lines += [b"<%02X> <%s>" % (code, char.encode("utf-16-be").hex().upper().encode())
+                  for code, char in block]
+        lines.append(b"endbfchar")
+    lines += [b"endcmap", b"CMapName currentdict /CMap defineresource pop", b"end", b"end"]
+    return b"\n".join(lines) + b"\n"
+
+
 def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
     font = TTFont(font_path, recalcTimestamp=False)  # keep the output reproducible
     units_per_em = font["head"].unitsPerEm
@@ -159,8 +179,15 @@ def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
         NameObject("/Widths"): ArrayObject([NumberObject(width) for width in widths]),
         NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
         NameObject("/FontDescriptor"): add_indirect(writer, descriptor),
+        NameObject("/ToUnicode"): add_indirect(writer, _flate(to_unicode_cmap(chars))),
     })
     return StampFont(add_indirect(writer, font_dict), advance_em, embedded=True)
+
+
+def _flate(data: bytes) -> StreamObject:
+    stream = StreamObject()
+    stream.set_data(data)
+    return stream.flate_encode()
 
 
 def make_stamp_font(writer: PdfWriter, texts: Iterable[str]) -> StampFont:
@@ -188,7 +215,7 @@ def stamp_operators(text: str, frame: PageFrame, font: StampFont) -> bytes:
     right_pt = frame.width_pt - frame.right_margin_pt
     x_pt = right_pt - font.width_pt(text, size_pt)
     baseline_pt = max(frame.bottom_margin_pt / 2 - CAP_HEIGHT_EM * size_pt / 2, 2.0)
-    return b"Q q 0 g BT %s %.1f Tf 1 0 0 1 %.2f %.2f Tm %s Tj ET Q" % (
+    return b"Q q /Artifact BMC 0 g BT %s %.1f Tf 1 0 0 1 %.2f %.2f Tm %s Tj ET EMC Q" % (
         STAMP_FONT_RESOURCE.encode(), size_pt, x_pt, baseline_pt, _pdf_string(text))
 
 
@@ -217,8 +244,9 @@ class Stamper:
         """Wrap the page's content in ``q … Q``; draw ``text`` and the slots' texts after it."""
         operators = []
         if slot_texts:  # first: text extraction then reads them before the page label
-            operators.append(b"Q q " + b" ".join(slot_operators(slot, slot_text, self.font)
-                                                 for slot, slot_text in slot_texts))
+            operators.append(b"Q q /Artifact BMC " + b" ".join(
+                slot_operators(slot, slot_text, self.font) for slot, slot_text in slot_texts)
+                + b" EMC")
         operators.append(stamp_operators(text, frame, self.font))
         stream = DecodedStreamObject()
         stream.set_data(b"\n" + b"\n".join(operators) + b"\n")

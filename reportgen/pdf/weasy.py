@@ -44,7 +44,9 @@ one test per item; run it before raising the WeasyPrint bound in pyproject.toml)
    ``<base>`` element (our templates write none). Checked on WeasyPrint 70.0.
 7. ``HTML.etree_element`` (undocumented attribute), in :func:`parsed_tree`: the
    tree WeasyPrint parsed (or the one set by 6), searched for bookmark elements
-   (``data-bookmark``). Checked on WeasyPrint 70.0.
+   (``data-bookmark``) and for the head's request for a structure tree
+   (:func:`asks_for_tags`; the tree itself is written by the documented ``write_pdf``
+   option ``pdf_tags``). Checked on WeasyPrint 70.0.
 8. The sRGB ICC profile WeasyPrint ships for its own PDF/A output
    (``weasyprint/pdf/sRGB2014.icc``, package data, not API), in
    :func:`srgb_icc_profile`: the output intent of the archive file
@@ -74,6 +76,7 @@ LOGGER = logging.getLogger(__name__)
 
 PT_PER_CSS_PX: Final = 0.75  # CSS px are 1/96 in, PDF points 1/72 in
 BOOKMARK_LEVELS: Final = ("1", "2")
+TAGGED_META: Final = "reportgen-tagged"  # <meta name="reportgen-tagged" content="yes"/>: tag the part
 PAGE_SLOT_CLASS: Final = "page-slot"       # <a class="page-slot" href="#id"></a>
 PAGE_SLOT_START_CLASS: Final = "slot-start"  # with it, the number is set flush left
 
@@ -292,6 +295,17 @@ def parse_xml(html: str) -> Any | None:
         return None
 
 
+def asks_for_tags(tree: Any) -> bool:
+    """Whether the document's head holds ``<meta name="reportgen-tagged" content="yes"/>``."""
+    for element in tree.iter():
+        tag = element.tag.rsplit("}", 1)[-1] if isinstance(element.tag, str) else ""
+        if tag == "meta" and element.get("name") == TAGGED_META:
+            return element.get("content") == "yes"
+        if tag == "body":
+            return False
+    return False
+
+
 def render_part(html: str, root: Path, *, xml_first: bool = False,
                 url_fetcher: ProjectURLFetcher | None = None) -> RenderedPart:
     """Render one complete HTML document to PDF bytes plus its anchors and links.
@@ -300,7 +314,8 @@ def render_part(html: str, root: Path, *, xml_first: bool = False,
     (or ``url_fetcher``, one of its kind, on a cluster worker); the files read are
     listed in :attr:`RenderedPart.resources`.
     Internal links, named destinations and WeasyPrint's own outline are left out of
-    the part's PDF: the merged report gets them from :mod:`reportgen.pdf.merge`.
+    the part's PDF: the merged report gets them from :mod:`reportgen.pdf.merge`. A part
+    whose head asks for it (:func:`asks_for_tags`) is rendered with its structure tree.
     With ``xml_first`` (our own templates), the document is read by :func:`parse_xml`
     when it is well-formed XML; otherwise WeasyPrint parses it as HTML. The pages
     are the same either way.
@@ -322,7 +337,9 @@ def render_part(html: str, root: Path, *, xml_first: bool = False,
                 anchors[name] = Anchor(page_index, x1 * PT_PER_CSS_PX,
                                        height_pt - y1 * PT_PER_CSS_PX)
         drop_cross_part_marks(page)
-    pdf = document.write_pdf()
+    # WeasyPrint's documented option pdf_tags writes a structure tree (Tagged PDF); the
+    # part asks for it in its head, so the request travels with the HTML (and its cache key)
+    pdf = document.write_pdf(pdf_tags=asks_for_tags(parsed_tree(source)))
     return RenderedPart(pdf, tuple(frames), anchors,
                         tuple(iter_bookmarks(parsed_tree(source))),
                         tuple(sorted(url_fetcher.reads.items())))

@@ -250,7 +250,9 @@ def loss_diagram(link: LinkView, lang: Language = ENGLISH) -> str:
     width = COLUMN_LEFT + len(budgets) * (COLUMN_WIDTH + COLUMN_GAP) + 4
     canvas.add(f'<svg xmlns="http://www.w3.org/2000/svg" class="loss-diagram" '
                f'viewBox="0 0 {max(width, WIDTH)} {HEIGHT}" width="{max(width, WIDTH)}" height="{HEIGHT}" '
-               f'role="img" aria-label="{escape(Words(lang)["diagram_heading"])}">')
+               f'role="img" aria-label="{escape(Words(lang)["diagram_heading"])}">'
+               # the title is the figure's alternative text in a tagged PDF
+               f'<title>{escape(Words(lang)["diagram_heading"])}</title>')
     canvas.add(_style_block(hatch_id))
     _axes(canvas, step_db)
     steps_shown = None

@@ -20,6 +20,11 @@ APPENDIX_TEXT: Final[Mapping[str, str]] = MappingProxyType({
                       "report's digest, {digest}, printed on the cover and at the foot of every "
                       "page, is the SHA-256 of that manifest; 'reportgen verify' checks all of "
                       "this and judges the attached measurements again."),
+    "archive_not_embedded": N_("Not attached, being over the size cap for OTDR trace files "
+                             "(project.yaml, report.embed_otdr_file_mb and "
+                             "report.embed_otdr_total_mb): {count} file(s), {files}. The manifest "
+                             "lists them with their size and SHA-256; 'reportgen verify --project' "
+                             "checks them against the project folder."),
     "field_digest": N_("Report digest"),
     "signoff_digital": N_("Digital signature of this PDF file (signed copies only; 'reportgen verify' checks it)"),
     "signed_by": N_("Signed digitally by {signer} when this file was made."),

@@ -142,6 +142,7 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="otdr-trace" viewBox="0 0 {WIDTH} {HEIGHT}" '
            f'width="{WIDTH}" height="{HEIGHT}" role="img" aria-label="{escape(title)}" '
            'font-family="DejaVu Sans, sans-serif" font-size="9">',
+           f'<title>{escape(title)}</title>',  # the alternative text in a tagged PDF
            f'<rect x="{LEFT}" y="{TOP}" width="{plot_w}" height="{plot_h}" fill="none" stroke="#999999" '
            'stroke-width="0.5"/>']
     x_ticks, y_ticks = _ticks(x_low, x_high), _ticks(y_low, y_high)

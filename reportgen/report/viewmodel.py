@@ -393,6 +393,7 @@ class ArchiveView:
 
     digest: str
     signer: str = ""   # who signs the PDF (name on the certificate); "" when unsigned
+    not_embedded: tuple[str, ...] = ()  # input files listed but not attached (OTDR size cap)
 
 
 @dataclass(frozen=True)
@@ -450,6 +451,7 @@ class ReportView:
     input_files: tuple[InputFileView, ...] = ()  # every file read, by path
     archive: ArchiveView | None = None    # None when no manifest was made (e.g. golden file)
     language: str = "en"  # report.language: the HTML lang attribute, the PDF's /Lang
+    tagged: bool = False                  # the PDF parts ask for a structure tree
 
 
 def slugify(text: str) -> str:
@@ -827,6 +829,7 @@ def build_view(project: Project, judgement: Judgement, *, now: datetime, version
         input_files=tuple(InputFileView(path=f.path, size_bytes=f.size_bytes, sha256=f.sha256,
                                         results=f.results, links=f.links) for f in project.input_files),
         archive=archive, language=lang.code,
+        tagged=project.report.tagged,
     )
 
 
