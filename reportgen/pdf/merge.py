@@ -16,9 +16,11 @@ from __future__ import annotations
 
 import io
 import logging
+import resource
 import shutil
 import subprocess
 import tempfile
+import time
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from datetime import datetime
@@ -197,6 +199,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     ``seal(pdf, places)``, given, signs the finished file (:mod:`reportgen.pdf.sign`);
     ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).
     """
+    clock = _StepClock()
     for index, page in enumerate(PdfReader(io.BytesIO(front.pdf)).pages):
         writer.insert_page(page, index)
     parts = [front, *bodies]
@@ -209,6 +212,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     stamper = Stamper(writer, make_stamp_font(writer, [*texts, SLOT_CHARS]))
     for page, text, frame, slots in zip(writer.pages, texts, frames, slot_texts):
         stamper.stamp(page, text, frame, slots)
+    clock.step("front matter and page stamps")
     add_links(writer, frames, anchors)
     add_outline(writer, parts, anchors)
     add_named_destinations(writer, parts, anchors)
@@ -217,17 +221,46 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
         "/Title": TextStringObject(title), "/Creator": CREATOR, "/Producer": PRODUCER,
         "/CreationDate": date, "/ModDate": date,
     })
+    clock.step("links, outline, names")
     make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
                   created=created, attachments=attachments)
+    clock.step("archive file (PDF/A, attachments)")
     if compact:
         writer.compress_identical_objects()
+        clock.step("identical objects merged")
     buffer = io.BytesIO()
     writer.write(buffer)
+    clock.step("pypdf write")
     pdf = repack_with_qpdf(buffer.getvalue()) if compact else buffer.getvalue()
+    clock.step("qpdf repack")
     if seal is not None:
         pdf = seal(pdf, {name: (page, anchor.x_pt, anchor.y_pt)
                          for name, (page, anchor) in anchors.items()})
+        clock.step("signing")
+    LOGGER.debug("finishing the PDF (%d pages): %s", total, clock)
     return pdf
+
+
+class _StepClock:
+    """Wall and CPU time (this process and its children: qpdf) of each named step, for
+    the debug log (benchmarks/bench_merge.py prints it)."""
+
+    def __init__(self) -> None:
+        self.last = self._now()
+        self.steps: list[tuple[str, float, float]] = []
+
+    @staticmethod
+    def _now() -> tuple[float, float]:
+        children = resource.getrusage(resource.RUSAGE_CHILDREN)
+        return time.perf_counter(), time.process_time() + children.ru_utime + children.ru_stime
+
+    def step(self, name: str) -> None:
+        now = self._now()
+        self.steps.append((name, now[0] - self.last[0], now[1] - self.last[1]))
+        self.last = now
+
+    def __str__(self) -> str:
+        return ", ".join(f"{name} {wall:.2f} s ({cpu:.2f} s CPU)" for name, wall, cpu in self.steps)
 
 
 def repack_with_qpdf(pdf: bytes) -> bytes:
