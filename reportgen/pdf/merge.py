@@ -43,7 +43,7 @@ from pypdf.generic import (
 
 from reportgen import __version__
 from reportgen.pdf.archive import Attachment, make_archival
-from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
+from reportgen.pdf.pypdf_access import add_indirect, named_destination_array, parse_all_objects
 from reportgen.pdf.stamp import Stamper, make_stamp_font
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
 
@@ -52,6 +52,7 @@ QPDF_ARGS: Final = ("--object-streams=generate", "--deterministic-id")
 QPDF_OK_STATUSES: Final = (0, 3)  # 3: succeeded with warnings
 MISSING_SLOT_TEXT: Final = "\u2013"
 SLOT_CHARS: Final = "0123456789" + MISSING_SLOT_TEXT
+PARSE_AHEAD_PAGES: Final = 1000  # pages of parts parsed while waiting for an earlier part
 CREATOR: Final = f"reportgen {__version__}"
 Seal = Callable[[bytes, Mapping[str, tuple[int, float, float]]], bytes]
 PRODUCER: Final = f"WeasyPrint {weasyprint.__version__}, pypdf {pypdf.__version__}"
@@ -169,22 +170,49 @@ def add_outline(writer: PdfWriter, parts: Sequence[RenderedPart],
 class PageCopier:
     """Copies the pages of body parts into a new writer in report order.
 
-    Parts may be offered in any order (as the workers finish them); each is copied
-    as soon as every part before it has been, so most of the copying is done while
-    later parts are still rendering.
+    Parts may be offered in any order (as the workers finish them or the part cache
+    has them); each is copied as soon as every part before it has been, so most of the
+    copying is done while later parts are still rendering. The copy order is the report
+    order whatever the arrival order: it numbers the objects of the merged file, so it
+    keeps a rebuild byte-identical to a full build.
+
+    A part that must wait for an earlier one is parsed at once (:func:`parsed_reader`),
+    which is most of the cost of copying it, so that only the cheap copy is left when
+    its turn comes: in a rebuild, the parts from the cache are parsed while the changed
+    ones render. At most :data:`PARSE_AHEAD_PAGES` pages wait parsed, which bounds the
+    memory they hold; later ones wait as bytes.
     """
 
     def __init__(self) -> None:
         self.writer = PdfWriter()
         self.copied = 0                    # parts copied so far: 0 .. copied-1
         self._waiting: dict[int, RenderedPart] = {}
+        self._parsed: dict[int, PdfReader] = {}
+        self._parsed_pages = 0
 
     def offer(self, index: int, part: RenderedPart) -> None:
         self._waiting[index] = part
         while self.copied in self._waiting:
-            for page in PdfReader(io.BytesIO(self._waiting.pop(self.copied).pdf)).pages:
+            part = self._waiting.pop(self.copied)
+            reader = self._parsed.pop(self.copied, None)
+            if reader is not None:
+                self._parsed_pages -= part.page_count
+            else:
+                reader = PdfReader(io.BytesIO(part.pdf))
+            for page in reader.pages:
                 self.writer.add_page(page)
             self.copied += 1
+        if index in self._waiting and self._parsed_pages + part.page_count <= PARSE_AHEAD_PAGES:
+            self._parsed[index] = parsed_reader(part.pdf)
+            self._parsed_pages += part.page_count
+
+
+def parsed_reader(pdf: bytes) -> PdfReader:
+    """A reader of ``pdf`` with every object already parsed (pypdf keeps parsed objects,
+    so copying pages from it later does not parse them again)."""
+    reader = PdfReader(io.BytesIO(pdf))
+    parse_all_objects(reader)
+    return reader
 
 
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
