@@ -54,7 +54,11 @@ TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
 
 # How the PDF is cut into parts (ReportDocument.bodies), each rendered by a worker.
-LINKS_PER_PART: Final = 40  # most link sheets per PDF body part
+# Most link sheets per PDF body part. A part costs little besides its sheets (about 0.07 s
+# of CPU for a fresh worker and its fonts, measured), and a rebuild renders the whole run
+# that holds a changed link: runs of 20 rather than 40 took the 500-link rebuild after one
+# changed result from 18-19 % to 14 % of the full build's time (benchmarks/README.md).
+LINKS_PER_PART: Final = 20
 MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
