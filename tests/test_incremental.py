@@ -91,3 +91,20 @@ def test_rebuilds_after_each_kind_of_change_equal_full_builds(project: Path, tmp
     _edit(project / "look" / "partials" / "appendix.html.j2", "</section>",
           "<p>Checked again after the retest.</p></section>")
     assert len(_rebuild_equals_full_build(project, out, tmp_path / "full-template")) >= 3
+
+
+@pytest.mark.slow
+def test_rebuild_with_our_templates_renders_only_the_pieces_a_result_touches(tmp_path: Path) -> None:
+    # Our own templates cut the front matter and appendix into pieces (render.FRONT_SECTIONS,
+    # APPENDIX_SECTIONS): one changed result touches the cover (the manifest digest), the
+    # charts (every result is plotted), the list of input files, the run of sheets holding
+    # the link and at most the register; the contents with the links needing action, the
+    # appendix and the other runs come from the cache.
+    project = write_large_project(tmp_path / "project", links=24)
+    out = tmp_path / "out"
+    pipeline.build(project, out, now=NOW, jobs=2)
+    entries = _entries(out)
+    assert len(entries) == 9  # cover, 3 front pieces, 3 runs of sheets, appendix, input files
+    _edit(project / "results" / "day1.csv", "L00001,1,850,ab,1.00", "L00001,1,850,ab,1.40")
+    reused = _rebuild_equals_full_build(project, out, tmp_path / "full")
+    assert len(reused) >= len(entries) - 5

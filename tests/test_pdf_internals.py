@@ -33,7 +33,12 @@ from weasyprint import HTML
 
 from reportgen.pdf import weasy
 from reportgen.pdf.fetcher import make_url_fetcher, root_url
-from reportgen.pdf.pypdf_access import add_indirect, named_destination_array, set_file_identifier
+from reportgen.pdf.pypdf_access import (
+    add_indirect,
+    named_destination_array,
+    parse_all_objects,
+    set_file_identifier,
+)
 
 PX_PER_MM = 96 / 25.4       # CSS Values 4, 5.2: 1in = 96px = 25.4mm
 PX_PER_PT = 96 / 72         # CSS Values 4, 5.2: 1in = 96px = 72pt
@@ -308,3 +313,30 @@ def test_pypdf_id_attribute_is_written_as_the_trailer_id() -> None:
         identifier] * 2, changed(
         "pypdf", "PdfWriter._ID (not written as the trailer's /ID)", "set_file_identifier",
         "Check how PdfWriter writes the trailer (pypdf/_writer.py, _write_trailer).")
+
+
+# pypdf, use 4: PdfReader.xref and xref_objStm list every object; pypdf keeps what it parsed.
+
+def test_pypdf_keeps_every_object_parse_all_objects_parsed(tmp_path: Path) -> None:
+    # WeasyPrint packs most objects into object streams, so both tables are used
+    pdf = HTML(string="<p>one</p><p style='break-before: page'>two</p>",
+               base_url=str(tmp_path)).write_pdf()
+    assert isinstance(getattr(PdfReader(io.BytesIO(pdf)), "xref_objStm", None), dict), changed(
+        "pypdf", "PdfReader.xref_objStm (gone)", "parse_all_objects",
+        "Find how PdfReader now lists the objects in object streams (pypdf/_reader.py).")
+
+    def copy(reader: PdfReader) -> bytes:
+        writer = PdfWriter()
+        for page in reader.pages:
+            writer.add_page(page)
+        buffer = io.BytesIO()
+        writer.write(buffer)
+        return buffer.getvalue().split(b"\n", 1)[1]  # the header line names the reader's version
+
+    reader = PdfReader(io.BytesIO(pdf))
+    parse_all_objects(reader)
+    reader.stream = io.BytesIO(b"")  # nothing left to read: copying must use parsed objects only
+    assert copy(reader) == copy(PdfReader(io.BytesIO(pdf))), changed(
+        "pypdf", "PdfReader.get_object (parsed objects not kept, or xref tables incomplete)",
+        "parse_all_objects", "Check PdfReader.get_object and cache_indirect_object "
+        "in pypdf/_reader.py.")

@@ -52,17 +52,31 @@ def test_every_link_id_and_verdict_appears_and_html_is_well_formed():
     assert "9.9-test" in doc.html and "2030-02-01" in doc.html
 
 
-def test_parts_follow_the_pdf_contract():
+def test_parts_follow_the_pdf_contract(tmp_path):
     project = mixed_project()
     doc = render(project)
-    assert len(doc.bodies) == 2  # one run of link sheets, then the appendix
+    # the cover, then the rest of the front matter in three pieces (contents and links
+    # needing action, register, charts), one run of link sheets, the appendix (no input
+    # files are listed without the archive, so no part for them)
+    assert len(doc.bodies) == 5
     front = doc.front({"link-l-pass": 7, "link-l-fail": 8, "link-l-inc": 9, "appendix": 10}, 12)
     for part in (front, *doc.bodies):
         assert part.startswith("<!DOCTYPE html>") and "size: A4" in part
         well_formed(part)
-    assert 'id="link-l-fail"' in doc.bodies[0] and 'data-bookmark-level="2"' in doc.bodies[0]
-    assert 'id="appx-safety"' in doc.bodies[-1]
-    assert '<a href="#link-l-fail">8</a>' in front
+    assert 'id="cover"' in front and 'id="contents"' not in front
+    lists, register, charts, sheets, appendix = doc.bodies
+    assert 'id="contents"' in lists and 'id="needs-action"' in lists and 'id="register"' not in lists
+    assert 'id="register"' in register and 'id="charts"' in charts
+    assert 'id="link-l-fail"' in sheets and 'data-bookmark-level="2"' in sheets
+    assert 'id="appx-safety"' in appendix and 'id="cover"' not in appendix
+    # page numbers of the PDF parts are slots, filled in after the merge
+    assert '<a class="page-slot" href="#link-l-fail"></a>' in register
+    # a project's own templates keep the front matter in one part, which prints the
+    # numbers it is given (the engine then lays it out again until they settle)
+    own = render(dataclasses.replace(project, report=ReportOptions(templates=tmp_path)))
+    assert len(own.bodies) == 2  # one run of link sheets, then the appendix
+    own_front = own.front({"link-l-pass": 7, "link-l-fail": 8, "link-l-inc": 9, "appendix": 10}, 12)
+    assert '<a href="#link-l-fail">8</a>' in own_front and 'id="charts"' in own_front
     assert "@bottom-right" not in doc.html  # left empty for the page stamp
     letter = render(dataclasses.replace(project, report=ReportOptions(paper=Paper.LETTER)))
     assert "size: letter" in letter.bodies[0]

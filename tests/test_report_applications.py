@@ -137,9 +137,16 @@ def test_transceiver_description_is_escaped(hand_doc):
     assert HOSTILE not in hand_doc.html and "&lt;b&gt;optic&lt;/b&gt;" in hand_doc.html
 
 
+def front_matter(doc) -> str:
+    """The whole front matter, each of its PDF parts checked to be well-formed."""
+    parts = doc.front_matter()
+    for part in parts:
+        well_formed(part)
+    return "\n".join(parts)
+
+
 def test_project_section_matrix_and_power_list_in_the_front(hand_doc):
-    front = hand_doc.front({}, 1)
-    well_formed(front)
+    front = front_matter(hand_doc)
     section = front.split('id="applications"')[1].split("</section>")[0]
     assert 'data-bookmark="' + messages.TEXT["apps_heading"] in front
     assert '<a href="#applications">' in front  # contents entry
@@ -153,8 +160,11 @@ def test_project_section_matrix_and_power_list_in_the_front(hand_doc):
     assert 'class="cell listed c-not-supported"' in section
     assert 'class="cell listed c-untested"' in section
     assert 'class="cell capable c-supported"' in section
-    # The applications part does not exist separately for a small project.
-    assert all('id="applications"' not in body for body in hand_doc.bodies)
+    # The applications part does not exist separately for a small project: it is in
+    # the front matter's piece with the register.
+    assert all('id="applications"' not in body
+               for body in hand_doc.bodies[hand_doc.front_bodies:])
+    assert 'id="applications"' in hand_doc.bodies[1] and 'id="register"' in hand_doc.bodies[1]
 
 
 def test_appendix_names_rules_and_sources(hand_doc):
@@ -170,13 +180,16 @@ def test_appendix_names_rules_and_sources(hand_doc):
 def test_large_project_gets_a_part_of_its_own(monkeypatch):
     monkeypatch.setattr(viewmodel, "FRONT_MATRIX_MAX_LINKS", 2)
     doc = render(hand_project())
-    assert 'id="applications"' not in doc.front({}, 1)
+    assert 'id="applications"' not in front_matter(doc)
     parts = [body for body in doc.bodies if 'class="apps-section' in body]
-    assert len(parts) == 1 and doc.bodies[-2] is parts[0]  # just before the appendix
+    # just before the appendix (a built project has one more part after it: the list of
+    # its input files; this one was made in memory)
+    assert 'id="appendix"' in doc.bodies[-1]
+    assert len(parts) == 1 and doc.bodies[-2] is parts[0]
     assert 'id="applications" data-bookmark=' in parts[0]
     for part in doc.bodies:
         well_formed(part)
-    assert '<a href="#applications">' in doc.front({}, 1)
+    assert '<a href="#applications">' in front_matter(doc)
 
 
 def test_split_groups_cuts_rows_and_marks_continuations():
@@ -205,7 +218,7 @@ def test_demo_project_power_verdicts():
 
 def test_long_power_list_keeps_only_the_links_needing_action(monkeypatch):
     monkeypatch.setattr(viewmodel, "POWER_LIST_ALL_MAX", 2)
-    front = render(hand_project()).front({}, 1)
+    front = front_matter(render(hand_project()))
     section = front.split('id="applications"')[1].split("</section>")[0]
     listing = section.split(messages.TEXT["matrix_heading"])[0]
     assert 'href="#link-sr-weak"' in listing and 'href="#link-er-hot"' in listing

@@ -247,9 +247,13 @@ class ClusterSlots:
     def _submit(self, task: _Task) -> None:
         with self.session.lock:
             files = dict(self.session.files)
+        # Earlier parts first (Dask runs higher priorities first): the merge copies the
+        # parts in report order, so a part that is back early but behind a later-started
+        # earlier one waits, and the copy work piles up at the end.
         future = self.session.client.submit(
             render_task, task.html, str(task.root), task.xml_first, files,
-            key=f"reportgen-part-{task.index + 1}-{uuid.uuid4().hex}", pure=False)
+            key=f"reportgen-part-{task.index + 1}-{uuid.uuid4().hex}", pure=False,
+            priority=-task.index)
         self.tasks[future] = task
         future.add_done_callback(lambda _future: self.arrived.set())
 

@@ -16,9 +16,11 @@ from __future__ import annotations
 
 import io
 import logging
+import resource
 import shutil
 import subprocess
 import tempfile
+import time
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from datetime import datetime
@@ -41,7 +43,7 @@ from pypdf.generic import (
 
 from reportgen import __version__
 from reportgen.pdf.archive import Attachment, make_archival
-from reportgen.pdf.pypdf_access import add_indirect, named_destination_array
+from reportgen.pdf.pypdf_access import add_indirect, named_destination_array, parse_all_objects
 from reportgen.pdf.stamp import Stamper, make_stamp_font
 from reportgen.pdf.tags import StructureMerger
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
@@ -51,6 +53,7 @@ QPDF_ARGS: Final = ("--object-streams=generate", "--deterministic-id")
 QPDF_OK_STATUSES: Final = (0, 3)  # 3: succeeded with warnings
 MISSING_SLOT_TEXT: Final = "\u2013"
 SLOT_CHARS: Final = "0123456789" + MISSING_SLOT_TEXT
+PARSE_AHEAD_PAGES: Final = 1000  # pages of parts parsed while waiting for an earlier part
 CREATOR: Final = f"reportgen {__version__}"
 Seal = Callable[[bytes, Mapping[str, tuple[int, float, float]]], bytes]
 PRODUCER: Final = f"WeasyPrint {weasyprint.__version__}, pypdf {pypdf.__version__}"
@@ -168,9 +171,17 @@ def add_outline(writer: PdfWriter, parts: Sequence[RenderedPart],
 class PageCopier:
     """Copies the pages of body parts into a new writer in report order.
 
-    Parts may be offered in any order (as the workers finish them); each is copied
-    as soon as every part before it has been, so most of the copying is done while
-    later parts are still rendering.
+    Parts may be offered in any order (as the workers finish them or the part cache
+    has them); each is copied as soon as every part before it has been, so most of the
+    copying is done while later parts are still rendering. The copy order is the report
+    order whatever the arrival order: it numbers the objects of the merged file, so it
+    keeps a rebuild byte-identical to a full build.
+
+    A part that must wait for an earlier one is parsed at once (:func:`parsed_reader`),
+    which is most of the cost of copying it, so that only the cheap copy is left when
+    its turn comes: in a rebuild, the parts from the cache are parsed while the changed
+    ones render. At most :data:`PARSE_AHEAD_PAGES` pages wait parsed, which bounds the
+    memory they hold; later ones wait as bytes.
     """
 
     def __init__(self) -> None:
@@ -178,14 +189,32 @@ class PageCopier:
         self.structure = StructureMerger(self.writer)  # the parts' structure trees, if tagged
         self.copied = 0                    # parts copied so far: 0 .. copied-1
         self._waiting: dict[int, RenderedPart] = {}
+        self._parsed: dict[int, PdfReader] = {}
+        self._parsed_pages = 0
 
     def offer(self, index: int, part: RenderedPart) -> None:
         self._waiting[index] = part
         while self.copied in self._waiting:
-            reader = PdfReader(io.BytesIO(self._waiting.pop(self.copied).pdf))
+            part = self._waiting.pop(self.copied)
+            reader = self._parsed.pop(self.copied, None)
+            if reader is not None:
+                self._parsed_pages -= part.page_count
+            else:
+                reader = PdfReader(io.BytesIO(part.pdf))
             pages = [self.writer.add_page(page) for page in reader.pages]
             self.structure.add_part(self.copied + 1, reader, pages)  # part 0: front matter
             self.copied += 1
+        if index in self._waiting and self._parsed_pages + part.page_count <= PARSE_AHEAD_PAGES:
+            self._parsed[index] = parsed_reader(part.pdf)
+            self._parsed_pages += part.page_count
+
+
+def parsed_reader(pdf: bytes) -> PdfReader:
+    """A reader of ``pdf`` with every object already parsed (pypdf keeps parsed objects,
+    so copying pages from it later does not parse them again)."""
+    reader = PdfReader(io.BytesIO(pdf))
+    parse_all_objects(reader)
+    return reader
 
 
 def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[RenderedPart], *,
@@ -206,6 +235,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     ``places`` maps each element id to (0-based page, x, y of its top-left corner in points).
     ``language`` is written as the document catalog's /Lang (PDF 1.4+, read by screen readers).
     """
+    clock = _StepClock()
     if structure is None:
         structure = StructureMerger(writer)
     reader = PdfReader(io.BytesIO(front.pdf))
@@ -221,6 +251,7 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     stamper = Stamper(writer, make_stamp_font(writer, [*texts, SLOT_CHARS]))
     for page, text, frame, slots in zip(writer.pages, texts, frames, slot_texts):
         stamper.stamp(page, text, frame, slots)
+    clock.step("front matter and page stamps")
     add_links(writer, frames, anchors)
     add_outline(writer, parts, anchors)
     add_named_destinations(writer, parts, anchors)
@@ -232,17 +263,46 @@ def finish_pdf(writer: PdfWriter, front: RenderedPart, bodies: Sequence[Rendered
     writer.metadata = {"/Title": TextStringObject(title), "/Creator": CREATOR,
                        "/CreationDate": pdf_date(created)}
     writer.root_object[NameObject("/Lang")] = TextStringObject(language)
+    clock.step("links, outline, names, structure")
     make_archival(writer, title=title, author=author, creator=CREATOR, producer=PRODUCER,
                   created=created, attachments=attachments, language=language)
+    clock.step("archive file (PDF/A, attachments)")
     if compact:
         writer.compress_identical_objects()
+        clock.step("identical objects merged")
     buffer = io.BytesIO()
     writer.write(buffer)
+    clock.step("pypdf write")
     pdf = repack_with_qpdf(buffer.getvalue()) if compact else buffer.getvalue()
+    clock.step("qpdf repack")
     if seal is not None:
         pdf = seal(pdf, {name: (page, anchor.x_pt, anchor.y_pt)
                          for name, (page, anchor) in anchors.items()})
+        clock.step("signing")
+    LOGGER.debug("finishing the PDF (%d pages): %s", total, clock)
     return pdf
+
+
+class _StepClock:
+    """Wall and CPU time (this process and its children: qpdf) of each named step, for
+    the debug log (benchmarks/bench_merge.py prints it)."""
+
+    def __init__(self) -> None:
+        self.last = self._now()
+        self.steps: list[tuple[str, float, float]] = []
+
+    @staticmethod
+    def _now() -> tuple[float, float]:
+        children = resource.getrusage(resource.RUSAGE_CHILDREN)
+        return time.perf_counter(), time.process_time() + children.ru_utime + children.ru_stime
+
+    def step(self, name: str) -> None:
+        now = self._now()
+        self.steps.append((name, now[0] - self.last[0], now[1] - self.last[1]))
+        self.last = now
+
+    def __str__(self) -> str:
+        return ", ".join(f"{name} {wall:.2f} s ({cpu:.2f} s CPU)" for name, wall, cpu in self.steps)
 
 
 def repack_with_qpdf(pdf: bytes) -> bytes:

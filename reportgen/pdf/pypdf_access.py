@@ -30,6 +30,12 @@ one test per use; run it before raising the pypdf bound in pyproject.toml):
    Ours is derived from the content, so builds stay byte-identical (qpdf's
    ``--deterministic-id`` replaces it by its own, also derived from the content, when
    the file is repacked). Used by archive.make_archival. Checked on pypdf 7.1.1.
+4. ``PdfReader.xref`` and ``PdfReader.xref_objStm`` (public names, undocumented), in
+   :func:`parse_all_objects`. The numbers of the objects in a file (direct, and inside
+   object streams); getting each once with the documented ``PdfReader.get_object``
+   parses it, and pypdf keeps what it parsed, so pages copied from that reader later
+   are not parsed again (merge.PageCopier parses a part while an earlier one renders).
+   Checked on pypdf 7.1.1.
 
 Everything else the pdf package does with pypdf uses documented API: ``PdfReader``
 (``trailer``, ``pages``), ``PdfWriter.add_page``/``insert_page`` (and the page they
@@ -41,7 +47,7 @@ the objects of :mod:`pypdf.generic` (``DictionaryObject.raw_get``, ``clone``,
 
 from __future__ import annotations
 
-from pypdf import PdfWriter
+from pypdf import PdfReader, PdfWriter
 from pypdf.generic import ArrayObject, ByteStringObject, IndirectObject, PdfObject
 
 
@@ -62,3 +68,12 @@ def named_destination_array(writer: PdfWriter) -> ArrayObject:
 def set_file_identifier(writer: PdfWriter, identifier: bytes) -> None:
     """Write ``identifier`` as both halves of the trailer's ``/ID`` (use 3)."""
     writer._ID = ArrayObject([ByteStringObject(identifier), ByteStringObject(identifier)])
+
+
+def parse_all_objects(reader: PdfReader) -> None:
+    """Parse every object of ``reader``'s file now; pypdf keeps them parsed (use 4)."""
+    for number in list(reader.xref_objStm):
+        reader.get_object(number)
+    for generation, entries in reader.xref.items():
+        for number in entries:
+            reader.get_object(IndirectObject(number, generation, reader))

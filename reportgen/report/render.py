@@ -57,11 +57,23 @@ TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
 
 # How the PDF is cut into parts (ReportDocument.bodies), each rendered by a worker.
-LINKS_PER_PART: Final = 40  # most link sheets per PDF body part
+# Most link sheets per PDF body part. A part costs little besides its sheets (about 0.07 s
+# of CPU for a fresh worker and its fonts, measured), and a rebuild renders the whole run
+# that holds a changed link: runs of 20 rather than 40 took the 500-link rebuild after one
+# changed result from 18-19 % to 14 % of the full build's time (benchmarks/README.md).
+LINKS_PER_PART: Final = 20
 MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
 MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
+# The front matter and the appendix of our templates are PDF parts of a few pieces each,
+# cut where a page break is anyway, so that a rebuild renders again only the piece that
+# changed (the part cache, reportgen.pdf.cache): the cover holds the manifest digest,
+# which changes with any input file, the charts plot every result, the register and the
+# list of links needing action change with a link's verdict or worst margin, and the list
+# of input files (last in the appendix) changes with any input file.
+FRONT_SECTIONS: Final = ("cover", "lists", "register", "charts")  # the first is the front part
+APPENDIX_SECTIONS: Final = ("main", "files")
 
 
 def templates_dir() -> Path:
@@ -101,10 +113,13 @@ class ReportDocument:
     """The rendered report: one HTML file, and the parts of the PDF, each made when read."""
 
     _html: Callable[[], str] = field(repr=False, compare=False)
-    bodies: Sequence[str]  # runs of link sheets, then the appendix as the last part
+    # after the front part: the rest of the front matter (FRONT_SECTIONS, our templates),
+    # runs of link sheets, applications, the appendix (APPENDIX_SECTIONS, our templates)
+    bodies: Sequence[str]
     _front: Callable[[Mapping[str, int] | None, int | None], str] = field(repr=False, compare=False)
     # only our own templates are known to write well-formed XML (see reportgen.pdf.weasy.parse_xml)
     own_templates: bool = True
+    front_bodies: int = 0  # how many of the bodies are pieces of the front matter (the first ones)
 
     @functools.cached_property
     def html(self) -> str:
@@ -112,8 +127,13 @@ class ReportDocument:
         return self._html()
 
     def front(self, page_of: Mapping[str, int], total_pages: int) -> str:
-        """The front matter as a complete HTML document, with absolute page numbers."""
+        """The front part (the cover; all the front matter with a project's own templates)
+        as a complete HTML document, with absolute page numbers."""
         return self._front(page_of, total_pages)
+
+    def front_matter(self) -> list[str]:
+        """The documents of the whole front matter, page slots left empty."""
+        return [self.front({}, 1), *self.bodies[:self.front_bodies]]
 
 
 def chunk_links(links: tuple[LinkView, ...], size: int | None = None) -> list[tuple[LinkView, ...]]:
@@ -254,9 +274,9 @@ def toc_entries(view: ReportView) -> list[tuple[str, str, int]]:
         entries.append(("appx-applications", "appx_apps_heading", 2))
     if view.rules:
         entries.append(("appx-audit", "audit_heading", 2))
+    entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     if view.input_files:
         entries.append(("appx-files", "files_heading", 2))
-    entries += [("appx-safety", "safety_heading", 2), ("appx-glossary", "glossary_heading", 2)]
     return entries
 
 
@@ -343,15 +363,21 @@ class _Renderer:
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
                page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
-               matrix_groups: tuple | None = None) -> str:
+               matrix_groups: tuple | None = None, section: str | None = None) -> str:
+        """One document; ``section`` names the one piece of the front matter or appendix
+        it shows (:data:`FRONT_SECTIONS`, :data:`APPENDIX_SECTIONS`), None: all of ``part``."""
         if matrix_groups is None:
             matrix_groups = self.view.apps.groups if self.view.apps is not None else ()
-        return squeeze_html(self.template.render(**self.common, part=part, links=links,
-                                                 first_part=first_part, page_of=page_of or {},
-                                                 total_pages=total_pages, matrix_groups=matrix_groups))
+        return squeeze_html(self.template.render(
+            **self.common, part=part, links=links, first_part=first_part, page_of=page_of or {},
+            total_pages=total_pages, matrix_groups=matrix_groups,
+            front_section=section if part == "front" else None,
+            appendix_section=section if part == "appendix" else None))
 
-    def front(self, page_of: Mapping[str, int] | None, total_pages: int | None) -> str:
-        return self.render("front", page_of=page_of or {}, total_pages=total_pages)
+    def front(self, page_of: Mapping[str, int] | None, total_pages: int | None,
+              section: str | None = None) -> str:
+        return self.render("front", page_of=page_of or {}, total_pages=total_pages,
+                           section=section)
 
 
 def language_of(project: Project, language: str | None = None) -> Language:
@@ -386,18 +412,35 @@ def build_report(
     env = make_environment(project.report.templates, view.length_unit, lang)
     renderer = _Renderer(env, view, power_diagrams(project, judgement, view, applications, lang),
                          otdr_figures(project, view, otdr, lang), lang)
-    makers: list[Callable[[], str]] = [
-        functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
-        for index, chunk in enumerate(chunk_links(view.links))]
+    # Our own templates: the front matter and appendix are cut into the pieces of
+    # FRONT_SECTIONS and APPENDIX_SECTIONS, each a PDF part (see their comment). A
+    # project's own templates may predate the pieces: their front matter and appendix
+    # stay one part each.
+    pieces = project.report.templates is None
+    makers: list[Callable[[], str]] = []
+    if pieces:
+        makers += [functools.partial(renderer.render, "front", section=section)
+                   for section in FRONT_SECTIONS[1:]]
+    first_run = len(makers)
+    makers += [functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
+               for index, chunk in enumerate(chunk_links(view.links))]
     if view.apps is not None and not view.apps.in_front:
         makers += [functools.partial(renderer.render, "applications", first_part=index == 0,
                                      matrix_groups=groups)
                    for index, groups in enumerate(split_groups(view.apps.groups))]
-    makers.append(functools.partial(renderer.render, "appendix"))
+    last_run = len(makers) - 1
+    if not pieces:
+        makers.append(functools.partial(renderer.render, "appendix"))
+    else:
+        makers += [functools.partial(renderer.render, "appendix", section=section)
+                   for section in APPENDIX_SECTIONS if section != "files" or view.input_files]
     bodies = LazyDocuments(makers)
+    front = (functools.partial(renderer.front, section=FRONT_SECTIONS[0]) if pieces
+             else renderer.front)
     # one part of each kind now, so that a template error fails before the long work
-    for index in {0, len(makers) - 2, len(makers) - 1}:
-        bodies[index]
+    for index in {0, first_run, last_run, len(makers) - 1}:
+        if 0 <= index < len(makers):
+            bodies[index]
     return ReportDocument(
         _html=functools.partial(renderer.render, "all", links=view.links, first_part=True),
-        bodies=bodies, _front=renderer.front, own_templates=project.report.templates is None)
+        bodies=bodies, _front=front, own_templates=pieces, front_bodies=first_run)

@@ -1,0 +1,66 @@
+"""Time the serial merge of the PDF parts without rendering them: page copy and finishing.
+
+Usage (from the repository root)::
+
+    python -m reportgen build PROJECT -o OUT               # any build fills OUT/.reportgen-cache
+    python benchmarks/bench_merge.py OUT/.reportgen-cache --times 4
+
+The parts are taken from the part cache of an earlier build (``OUT/.reportgen-cache``,
+:mod:`reportgen.pdf.cache`) and each is merged ``--times`` times, so a 500-link build's
+parts stand for a 2,000-link report (same pages, links and bookmarks per page; anchors
+repeated in later copies are ignored by the merge, as in any report). It times what the
+build does after the parts are rendered, in the build's own functions: copying each
+part's pages into one writer (:class:`reportgen.pdf.merge.PageCopier`), then each step
+of :func:`reportgen.pdf.merge.finish_pdf` (page stamps, links and outline, the archive
+file's metadata, merging identical objects, the pypdf write, the qpdf repack), and the
+peak memory of this process. No render, no network.
+"""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import resource
+import sys
+import time
+from datetime import datetime, timezone
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+
+from reportgen.pdf import merge  # noqa: E402
+from reportgen.pdf.cache import ENTRY_SUFFIX, decode_entry  # noqa: E402
+from reportgen.pdf.engine import _cycle_collector_paused  # noqa: E402
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("cache", type=Path, help="a part cache folder (OUT/.reportgen-cache)")
+    parser.add_argument("--times", type=int, default=1, help="merge each part this many times")
+    args = parser.parse_args()
+    entries = sorted(args.cache.glob(f"*{ENTRY_SUFFIX}"))
+    parts = [decode_entry(path.name[:-len(ENTRY_SUFFIX)], path.read_bytes()) for path in entries]
+    parts.sort(key=lambda part: -part.page_count)  # the front: a short one, at the end
+    front, bodies = parts[-1], parts[:-1] * args.times
+    pages = front.page_count + sum(part.page_count for part in bodies)
+    logging.basicConfig(level=logging.WARNING, format="%(message)s")
+    logging.getLogger("reportgen.pdf.merge").setLevel(logging.DEBUG)
+    with _cycle_collector_paused():
+        started = time.perf_counter()
+        copier = merge.PageCopier()
+        for index, part in enumerate(bodies):
+            copier.offer(index, part)
+        copied = time.perf_counter()
+        pdf = merge.finish_pdf(copier.writer, front, bodies, title="Merge benchmark",
+                               page_label="Page {page} of {pages}",
+                               created=datetime(2030, 1, 1, tzinfo=timezone.utc))
+        finished = time.perf_counter()
+    peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(f"{pages} pages from {len(bodies) + 1} parts: page copy {copied - started:.2f} s "
+          f"({1000 * (copied - started) / pages:.1f} ms/page), finishing "
+          f"{finished - copied:.2f} s ({1000 * (finished - copied) / pages:.1f} ms/page); "
+          f"{len(pdf) / 1e6:.1f} MB; peak memory of this process {peak_mb:.0f} MB")
+
+
+if __name__ == "__main__":
+    main()
