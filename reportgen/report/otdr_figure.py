@@ -14,7 +14,11 @@ event a square; a failed event is filled black, a passed one open. Meaning is ca
 style, shape and fill, never by colour alone, so a grayscale print reads the same.
 
 Texts come from :data:`LABELS` (English, marked for translation); :func:`translated_labels`
-gives them in a report language, and tick numbers are written in its form.
+gives them in a report language, and tick numbers are written in its form. The key to the two
+line styles and the axis titles are not in the figure: they are the same for every figure, and
+the link sheet prints them once above its figures as HTML text (``otdr_labels`` in
+templates/partials/link_otdr.html.j2), because WeasyPrint lays out and draws SVG text letter by
+letter, which made them the larger part of a figure's render time.
 """
 from __future__ import annotations
 
@@ -38,8 +42,8 @@ LABELS: Final[dict[str, str]] = {
     "no_trace": N_("event table only: no trace samples"),
 }
 WIDTH: Final = 640
-HEIGHT: Final = 190
-LEFT, RIGHT, TOP, BOTTOM = 46, 10, 28, 34
+HEIGHT: Final = 162
+LEFT, RIGHT, TOP, BOTTOM = 34, 10, 16, 18
 SIMPLIFY_PX: Final = 0.2  # drawing units (1/640 of the figure's width); the line is 0.8 wide
 TICKS: Final = 5  # about this many ticks per axis
 STYLE: Final = {Direction.AB: ('stroke="#111111"', ""), Direction.BA: ('stroke="#777777"', ' stroke-dasharray="4 2"')}
@@ -125,7 +129,10 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     # floor past the end is cut at the bottom), with 2 dB to spare below.
     ends = [e.position_m for e in strand.events if e.kind is OtdrEventKind.END]
     fiber_to = (min(ends) if ends else x_high) - 2.0
-    levels = [lv[(x >= x_low) & (x <= fiber_to)] for _d, x, lv in drawn]
+    # each trace only up to its own fiber end: past it, a mirrored trace's noise floor would
+    # otherwise fall inside the drawn range and stretch the axis down to the floor
+    levels = [lv[(x >= x_low) & (x <= fiber_to) & (np.arange(len(lv)) <= own_end)]
+              for (_d, x, lv), own_end in zip(drawn, _end_samples(strand, settings))]
     levels = [lv for lv in levels if len(lv)]
     y_high = math.ceil(max(float(lv.max()) for lv in levels)) if levels else 0.0
     y_low = math.floor(min(float(np.percentile(lv, 1)) for lv in levels)) - 2.0 if levels else -1.0
@@ -152,10 +159,6 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     out += [f'<text x="{px(t):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{lang.number(f"{t:g}")}</text>'
             for t in x_ticks]
     out += [f'<text x="{LEFT - 5}" y="{py(t) + 3:.1f}" text-anchor="end">{lang.number(f"{t:g}")}</text>' for t in y_ticks]
-    out.append(f'<text x="{LEFT + plot_w / 2:.1f}" y="{HEIGHT - 4}" text-anchor="middle">'
-               f'{escape(labels["axis_x"])}</text>')
-    out.append(f'<text x="10" y="{TOP + plot_h / 2:.1f}" text-anchor="middle" '
-               f'transform="rotate(-90 10 {TOP + plot_h / 2:.1f})">{escape(labels["axis_y"])}</text>')
     for direction, x, level in drawn:
         cols, low, high = envelope(x, level, x_low, x_high, plot_w)
         if not len(cols):
@@ -193,16 +196,20 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
         if parts:
             out.append(f'<path d="{"".join(parts)}" fill="{fill}" stroke="#111111" stroke-width="0.8"/>')
     out += numbers
-    legend_y = 12
-    for i, direction in enumerate((Direction.AB, Direction.BA)):
-        if not any(d is direction for d, _x, _l in drawn):
-            continue
-        stroke, dash = STYLE[direction]
-        x0 = LEFT + 6 + i * 190
-        out.append(f'<line x1="{x0}" y1="{legend_y}" x2="{x0 + 22}" y2="{legend_y}" {stroke}{dash} stroke-width="1.2"/>'
-                   f'<text x="{x0 + 26}" y="{legend_y + 3}">{escape(labels[direction.value])}</text>')
     out.append("</svg>")
     return "".join(out)
+
+
+def _end_samples(strand: StrandOtdr, settings: OtdrSettings) -> list[float]:
+    """Per drawn trace of ``strand`` (as :func:`trace_svg` draws them), the index of the sample
+    at its own fiber end (2 m short of it), or infinity when the trace has no end event."""
+    out = []
+    for t in strand.traces:
+        if t.samples_db is None or not len(t.samples_db) or not t.sample_spacing_m:
+            continue
+        ends = [e.position_m for e in t.events if e.kind is OtdrEventKind.END]
+        out.append((max(ends) - 2.0) / t.sample_spacing_m if ends else math.inf)
+    return out
 
 
 def _ticks(low: float, high: float, count: int = TICKS) -> list[float]:

@@ -359,6 +359,7 @@ class _Renderer:
             "toc": toc_entries(view),
             "power_diagrams": dict(power_svgs or {}),
             "otdr_figures": dict(otdr_svgs or {}),
+            "otdr_labels": otdr_figure.translated_labels(lang),
         }
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
