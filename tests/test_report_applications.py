@@ -10,13 +10,14 @@ import pytest
 
 from builders import make_link, make_project, well_formed
 from reportgen.report import messages
-from reportgen.report import viewmodel
+from reportgen.report import view_apps
 from reportgen.engine.applications import assess_project
 from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
 from reportgen.report.render import build_report, split_groups
 from reportgen.inputs.project import load_project
-from reportgen.report.viewmodel import MatrixGroup, MatrixRow, link_anchors
+from reportgen.report.view_apps import MatrixGroup, MatrixRow
+from reportgen.report.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
 DEMO = Path(__file__).resolve().parent.parent / "demo_project"
@@ -178,7 +179,7 @@ def test_appendix_names_rules_and_sources(hand_doc):
 
 
 def test_large_project_gets_a_part_of_its_own(monkeypatch):
-    monkeypatch.setattr(viewmodel, "FRONT_MATRIX_MAX_LINKS", 2)
+    monkeypatch.setattr(view_apps, "FRONT_MATRIX_MAX_LINKS", 2)
     doc = render(hand_project())
     assert 'id="applications"' not in front_matter(doc)
     parts = [body for body in doc.bodies if 'class="apps-section' in body]
@@ -217,7 +218,7 @@ def test_demo_project_power_verdicts():
 
 
 def test_long_power_list_keeps_only_the_links_needing_action(monkeypatch):
-    monkeypatch.setattr(viewmodel, "POWER_LIST_ALL_MAX", 2)
+    monkeypatch.setattr(view_apps, "POWER_LIST_ALL_MAX", 2)
     front = front_matter(render(hand_project()))
     section = front.split('id="applications"')[1].split("</section>")[0]
     listing = section.split(messages.TEXT["matrix_heading"])[0]

@@ -20,7 +20,7 @@ Applications and power budgets (``applications``, a
 :class:`reportgen.engine.applications.ProjectApplications`) add a block to each link sheet and
 a project section ``id="applications"`` (matrix and power list): in the front matter
 after the link register for small projects, else as parts of their own between the
-link sheets and the appendix (:data:`viewmodel.FRONT_MATRIX_MAX_LINKS`).
+link sheets and the appendix (:data:`view_apps.FRONT_MATRIX_MAX_LINKS`).
 """
 from __future__ import annotations
 
@@ -51,7 +51,8 @@ from reportgen.engine.judge import Judgement
 from reportgen.report import level_diagram, otdr_figure
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.viewmodel import ArchiveView, LinkView, MatrixGroup, ReportView, build_view, otdr_figure_key
+from reportgen.report.view_apps import MatrixGroup
+from reportgen.report.viewmodel import ArchiveView, LinkView, ReportView, build_view, otdr_figure_key
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
