@@ -86,6 +86,34 @@ def test_link_sheet_shows_the_event_table(make_project):
     assert html.count('class="otdr-trace"') == 1
     # the splice: 0.08 dB both ways, 800 m into the A trace = 700 m past the 100 m launch cord
     # (from B: 900 − 100 = 800 m, mirrored 1500 − 800 = 700 m), judged against 0.30 dB
-    row = re.search(r'<tr class="row-pass"><td class="num">3</td><td class="num">700\xa0m</td><td>splice</td>'
-                    r'<td class="num">0.08 / 0.08</td><td class="num">0.08</td>', html)
-    assert row is not None
+    # the event table is set as lines of monospaced text (report/text_table.py): one line per event
+    rows = re.search(r'<div class="oe-rows">(.*?)</div>', html, re.S)
+    assert rows is not None
+    lines = rows.group(1).split("\n")
+    # one line per event, numbered in order (launch, connection, splice, connection, fiber end)
+    assert [line.split()[0] for line in lines] == ["1", "2", "3", "4", "5"]
+    row = re.fullmatch(r' *3 +700\xa0m +splice +0\.08 / 0\.08 +0\.08 +.* +0\.30 +pass *', lines[2])
+    assert row is not None, lines[2]  # a passed event: plain text, not in a failed row's mark
+
+
+def test_figure_numbers_are_placed_by_the_advance_of_their_monospaced_face():
+    """Tick labels and event numbers are placed letter by letter (their left ends computed from
+    MONO_ADVANCE_EM, see otdr_figure.py); the advance is read here from the font file itself
+    (DejaVu Sans Mono, found by fontconfig as the PDF renderer finds it): every character a
+    number can be written with, in every report language, advances the same."""
+    import shutil
+    import subprocess
+
+    from fontTools.ttLib import TTFont
+
+    from reportgen.report.otdr_figure import MONO_ADVANCE_EM, NUMERALS
+
+    assert shutil.which("fc-match"), "fontconfig is needed to render the report"
+    path = subprocess.run(["fc-match", "--format=%{file}", NUMERALS.split(",")[0]],
+                          capture_output=True, text=True, check=True).stdout
+    assert path.endswith("DejaVuSansMono.ttf"), path
+    font = TTFont(path)
+    cmap, metrics = font.getBestCmap(), font["hmtx"]
+    # digits, signs, separators of en/de/fr/es (CLDR: "," "." and U+202F in French), no-break space
+    advances = {metrics[cmap[ord(ch)]][0] for ch in "0123456789-−+.,\u202f\u00a0"}
+    assert advances == {round(MONO_ADVANCE_EM * font["head"].unitsPerEm)}

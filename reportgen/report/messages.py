@@ -280,10 +280,10 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "col_event_no": N_("No."),
     "col_position": C_("along the fiber", "Position"),
     "col_event": N_("Event"),
-    "col_loss_one_way": N_("Loss A→B / B→A"),
+    "col_event_loss": N_("Loss"),  # over "A→B / B→A [dB]" (the event table's second header line)
     "col_verdict_notes": N_("Verdict, notes"),
     "col_loss_avg": N_("Average"),
-    "col_lsa": N_("Re-measured (LSA)"),
+    "col_remeasured": N_("Re-measured"),  # over "LSA [dB]"
     "col_reflectance": N_("Reflectance"),
     "col_allowance_short": N_("Allowed"),
     "otdr_kind_launch": N_("launch"),

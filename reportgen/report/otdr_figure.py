@@ -7,8 +7,9 @@ draws a vertical stroke from its lowest to its highest sample, so no reflective 
 narrow, is lost between columns. The strokes of one direction are one polyline, whose points
 are then thinned where they lie on a straight line to within :data:`SIMPLIFY_PX` of a pixel
 (:func:`simplify`): a point further off, such as the top of any peak, is always kept, so the
-drawing is the envelope's to a fraction of the line's width, with far fewer points for the PDF
-renderer to handle. Events are numbered as in the event table below the figure and
+drawing is the envelope's to within half the line's width, with far fewer points for the PDF
+renderer to handle (the benchmark's traces, whose noise of a few hundredths of a dB is
+narrower than the line: about 500 points a figure at 0.2 units, about 100 at 0.4). Events are numbered as in the event table below the figure and
 marked by kind with our own shapes: a connection is a diamond, a splice a circle, any other
 event a square; a failed event is filled black, a passed one open. Meaning is carried by line
 style, shape and fill, never by colour alone, so a grayscale print reads the same.
@@ -44,8 +45,14 @@ LABELS: Final[dict[str, str]] = {
 WIDTH: Final = 640
 HEIGHT: Final = 162
 LEFT, RIGHT, TOP, BOTTOM = 34, 10, 16, 18
-SIMPLIFY_PX: Final = 0.2  # drawing units (1/640 of the figure's width); the line is 0.8 wide
+SIMPLIFY_PX: Final = 0.4  # drawing units (1/640 of the figure's width): half the line's 0.8
 TICKS: Final = 5  # about this many ticks per axis
+# Numbers in the figure (ticks, event numbers) are set in a monospaced face and placed by their
+# left end: a text anchored at its middle or end is drawn by the PDF renderer as a group of its
+# own (a form object in the PDF, about 250 in every 20 figures), a text anchored at its start is
+# not. Their widths are known: every glyph of DejaVu Sans Mono advances 1233/2048 em.
+NUMERALS: Final = "DejaVu Sans Mono, monospace"
+MONO_ADVANCE_EM: Final = 1233 / 2048
 STYLE: Final = {Direction.AB: ('stroke="#111111"', ""), Direction.BA: ('stroke="#777777"', ' stroke-dasharray="4 2"')}
 TRACE_DASH: Final = {Direction.AB: "", Direction.BA: ' stroke-dasharray="40 20"'}  # STYLE × 10
 
@@ -156,9 +163,8 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     marks = [f"M{px(t):.1f},{TOP + plot_h}v3" for t in x_ticks]
     marks += [f"M{LEFT - 3},{py(t):.1f}h3" for t in y_ticks]
     out.append(f'<path d="{"".join(marks)}" stroke="#111111" stroke-width="0.5" fill="none"/>')
-    out += [f'<text x="{px(t):.1f}" y="{TOP + plot_h + 12}" text-anchor="middle">{lang.number(f"{t:g}")}</text>'
-            for t in x_ticks]
-    out += [f'<text x="{LEFT - 5}" y="{py(t) + 3:.1f}" text-anchor="end">{lang.number(f"{t:g}")}</text>' for t in y_ticks]
+    out.append(_placed_text([(px(t), TOP + plot_h + 12, 0.5, lang.number(f"{t:g}")) for t in x_ticks]
+                            + [(LEFT - 5, py(t) + 3, 1.0, lang.number(f"{t:g}")) for t in y_ticks], 9))
     for direction, x, level in drawn:
         cols, low, high = envelope(x, level, x_low, x_high, plot_w)
         if not len(cols):
@@ -188,7 +194,8 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
             f"M{cx:.1f},{cy - 5:.1f}l5,5l-5,5l-5,-5z" if event.kind in JUDGED_AS_CONNECTION
             else f"M{cx - 4:.1f},{cy:.1f}a4,4 0 1,0 8,0a4,4 0 1,0 -8,0z" if event.kind is OtdrEventKind.SPLICE
             else f"M{cx - 3.5:.1f},{cy - 3.5:.1f}h7v7h-7z")
-        numbers.append(f'<text x="{cx:.1f}" y="{cy - 8:.1f}" text-anchor="middle" font-size="8">{number}</text>')
+        left = cx - len(str(number)) * MONO_ADVANCE_EM * 8 / 2  # centred over the mark
+        numbers.append(f'<text x="{left:.1f}" y="{cy - 8:.1f}" font-family="{NUMERALS}" font-size="8">{number}</text>')
     if guides:
         out.append(f'<path d="{"".join(guides)}" stroke="#bbbbbb" stroke-width="0.5" '
                    'stroke-dasharray="1 2" fill="none"/>')
@@ -198,6 +205,22 @@ def trace_svg(strand: StrandOtdr, settings: OtdrSettings | None = None,
     out += numbers
     out.append("</svg>")
     return "".join(out)
+
+
+def _placed_text(labels: list[tuple[float, float, float, str]], size: float) -> str:
+    """One ``<text>`` element in :data:`NUMERALS` holding every label of ``labels``, each given
+    as (x, y of its baseline, anchor, text), anchor 0 for its left end at x, 0.5 its middle,
+    1 its right end: each letter is placed by its own x and y (one text element draws faster
+    than one per label)."""
+    advance = MONO_ADVANCE_EM * size
+    xs, ys, letters = [], [], []
+    for x, y, anchor, text in labels:
+        left = x - anchor * len(text) * advance
+        xs += [f"{left + i * advance:.1f}" for i in range(len(text))]
+        ys += [f"{y:.1f}"] * len(text)
+        letters.append(text)
+    return (f'<text x="{" ".join(xs)}" y="{" ".join(ys)}" font-family="{NUMERALS}" font-size="{size:g}">'
+            f'{escape("".join(letters))}</text>')
 
 
 def _end_samples(strand: StrandOtdr, settings: OtdrSettings) -> list[float]:

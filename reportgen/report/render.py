@@ -48,7 +48,7 @@ from reportgen.report.messages_findings import RULE_TEXT, THRESHOLD_UNIT, findin
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.findings import Findings
 from reportgen.engine.judge import Judgement
-from reportgen.report import level_diagram, otdr_figure
+from reportgen.report import level_diagram, otdr_figure, text_table
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
 from reportgen.report.view_apps import MatrixGroup
@@ -227,7 +227,7 @@ def make_environment(project_templates: Path | None, length_unit: str = "m",
                        finding_text=functools.partial(finding_text, lang=lang),
                        rule_text={rule: (lang.gettext(what), lang.gettext(basis))
                                   for rule, (what, basis) in RULE_TEXT.items()},
-                       threshold_unit=THRESHOLD_UNIT)
+                       threshold_unit=THRESHOLD_UNIT, text_table=text_table.text_table)
     return env
 
 
