@@ -286,6 +286,9 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     "col_remeasured": N_("Re-measured"),  # over "LSA [dB]"
     "col_reflectance": N_("Reflectance"),
     "col_allowance_short": N_("Allowed"),
+    # the event table's headers before it was set as text, kept for a project's own templates
+    "col_loss_one_way": N_("Loss A→B / B→A"),
+    "col_lsa": N_("Re-measured (LSA)"),
     "otdr_kind_launch": N_("launch"),
     "otdr_kind_connector": N_("connection"),
     "otdr_kind_splice": N_("splice"),
