@@ -191,10 +191,12 @@ def _resources_fonts(resources: Object | None, seen: set[tuple[int, int]],
                      found: list[Object]) -> None:
     """The font dictionaries of ``resources``, and of its form XObjects, patterns and Type 3
     fonts, appended to ``found`` (each indirect object once)."""
-    if not isinstance(resources, Dictionary):
-        return
+    if not isinstance(resources, Dictionary) or not _first_visit(resources, seen):
+        return   # a part's pages and forms share resource dictionaries: each is read once
     fonts = resources.get("/Font")
-    for font in (fonts.values() if isinstance(fonts, Dictionary) else ()):
+    if not isinstance(fonts, Dictionary) or not _first_visit(fonts, seen):
+        fonts = None
+    for font in (fonts.values() if fonts is not None else ()):
         if isinstance(font, Dictionary) and _first_visit(font, seen):
             found.append(font)
             _resources_fonts(font.get("/Resources"), seen, found)   # a Type 3 font's glyphs

@@ -8,7 +8,9 @@ positions: a GoTo link annotation for every ``<a href="#id">`` whose target exis
 somewhere in the report, an outline entry and a named destination for every bookmark
 element, the "Page X of Y" stamp and the numbers of the page slots
 (:mod:`reportgen.pdf.stamp`). qpdf writes the file, with object streams and a file
-identifier derived from the content. Only pikepdf's documented API is used.
+identifier derived from the content. pikepdf's documented API is used, except the two
+behaviours listed in :mod:`reportgen.pdf.pikepdf_access` (pages added to the page tree
+directly, parts dropped once copied).
 """
 
 from __future__ import annotations
@@ -177,7 +179,8 @@ class PageCopier:
     the part is then dropped, and its stream data is read from the file when the merged
     file is saved (:mod:`reportgen.pdf.pikepdf_access`). A part waiting for an earlier
     one waits as that file, so its bytes need not be kept. :meth:`close` (or leaving the
-    ``with`` block) removes the folder.
+    ``with`` block) removes the folder. The folder is in the system's temporary directory
+    (``TMPDIR``) and holds the parts' bytes (about 15 KB a page) and the merged file.
     """
 
     def __init__(self) -> None:
@@ -286,9 +289,10 @@ class IdenticalResources:
             elif subtype == Name.Image:
                 self._replace(xobjects, key)
         fonts = resources.get("/Font")
-        for font in (fonts.values() if isinstance(fonts, Dictionary) else ()):
-            if isinstance(font, Dictionary) and self._first_visit(font):
-                self._font(font)
+        if isinstance(fonts, Dictionary) and self._first_visit(fonts):
+            for font in fonts.values():
+                if isinstance(font, Dictionary) and self._first_visit(font):
+                    self._font(font)
 
     def _font(self, font: Dictionary) -> None:
         if isinstance(font.get("/ToUnicode"), Stream):
