@@ -20,6 +20,7 @@ import logging
 import shutil
 import tempfile
 import time
+import weakref
 from collections.abc import Callable, Mapping, Sequence
 from datetime import datetime
 from pathlib import Path
@@ -189,6 +190,8 @@ class PageCopier:
         self.copied = 0                    # parts copied so far: 0 .. copied-1
         self.pages: list[Dictionary] = []  # the merged file's pages, in order
         self._folder = Path(tempfile.mkdtemp(prefix="reportgen-merge-"))
+        # removed by close(), or when the copier is collected or the interpreter exits
+        self._remove_folder = weakref.finalize(self, shutil.rmtree, self._folder, True)
         self._waiting: set[int] = set()
         self._identical = IdenticalResources()
 
@@ -241,7 +244,7 @@ class PageCopier:
 
     def close(self) -> None:
         self.pdf.close()
-        shutil.rmtree(self._folder, ignore_errors=True)
+        self._remove_folder()
 
 
 class IdenticalResources:
