@@ -110,6 +110,8 @@ def test_6_1_2_header_is_pdf_1_x_followed_by_a_binary_comment(archive_pdf: bytes
     # line whose first four bytes are above 127.
     first, second = archive_pdf.split(b"\n")[:2]
     assert first[:7] == b"%PDF-1." and first[7:8] in b"01234567" and len(first) == 8
+    # ISO 19005-3, 1 (from memory): PDF/A-3 is based on ISO 32000-1, which is PDF 1.7
+    assert first == b"%PDF-1.7"
     assert second[:1] == b"%" and all(byte > 127 for byte in second[1:5])
 
 

@@ -103,7 +103,8 @@ def test_two_builds_are_byte_identical(demo_build: Path, tmp_path: Path) -> None
 
 @pytest.mark.slow
 def test_report_carries_the_project_and_the_digest_everywhere(demo_build: Path) -> None:
-    files = {name: data[0] for name, data in PdfReader(demo_build / "report.pdf").attachments.items()}
+    attached = PdfReader(demo_build / "report.pdf").attachments
+    files = {name: data[0] for name, data in attached.items()}
     for path in ("project.yaml", "links.csv", "results/day1-building-a.csv"):
         assert files["project/" + path] == (DEMO / path).read_bytes()
     assert files["results.csv"] == (demo_build / "results.csv").read_bytes()

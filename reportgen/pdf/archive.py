@@ -62,6 +62,7 @@ from reportgen.pdf.weasy import srgb_icc_profile
 
 LOGGER: Final = logging.getLogger(__name__)
 PDFA_PART: Final = 3
+PDF_VERSION: Final = "1.7"
 PDFA_UNICODE: Final = "U"   # level U: level B, and every font maps its codes to Unicode
 PDFA_BASIC: Final = "B"
 OUTPUT_CONDITION: Final = "sRGB IEC61966-2.1"
@@ -258,11 +259,14 @@ def make_archival(pdf: Pdf, *, title: str, author: str, creator: str, producer: 
 
 def save_options(compact: bool = True) -> dict[str, object]:
     """How the archive file is saved (``Pdf.save`` keywords): a file identifier derived from
-    the content, so builds stay byte-identical (6.1.3 asks for one); the XMP packet left as
-    it is (never compressed, qpdf's rule); with ``compact``, objects packed into object
-    streams (about a quarter smaller)."""
+    the content, so builds stay byte-identical (6.1.3 asks for one); PDF 1.7; the XMP
+    packet left as it is (never compressed, qpdf's rule); with ``compact``, objects packed
+    into object streams (about a quarter smaller)."""
     return {"deterministic_id": True, "fix_metadata_version": False, "preserve_pdfa": True,
             "compress_streams": True,
+            # PDF/A-3 is based on ISO 32000-1 (PDF 1.7), as are WeasyPrint's parts; qpdf
+            # would otherwise write the lowest version its objects need (1.5)
+            "min_version": PDF_VERSION,
             "object_stream_mode": ObjectStreamMode.generate if compact
             else ObjectStreamMode.disable}
 
