@@ -216,8 +216,8 @@ class PageCopier:
             self.copied += 1
 
     @property
-    def streams_merged(self) -> int:
-        """How many references now point at an earlier identical stream."""
+    def objects_shared(self) -> int:
+        """How many references now point at an earlier identical object."""
         return self._identical.merged
 
     def _copy(self, path: Path, order: int) -> None:
@@ -249,12 +249,14 @@ class PageCopier:
 
 class IdenticalResources:
     """Makes the pages refer to one copy of each image, font program and ToUnicode map
-    that several parts embed with the same bytes and dictionary: a project's logo on
-    every page, a font subset two parts happen to share (link sheets often use the same
-    characters). Copying a part copies all of its objects, so without this the merged
-    file would hold them once per part; a copy no page refers to any more is not written.
+    that several parts embed with the same bytes and dictionary (a project's logo on
+    every page, a font subset two parts happen to share: link sheets often use the same
+    characters), and the forms of a part to one copy of each resource dictionary
+    (WeasyPrint gives every form of a part its own copy of the same one). Copying a part
+    copies all of its objects, so without this the merged file would hold them once per
+    part or form; a copy nothing refers to any more is not written.
 
-    Only these streams are compared (in the pages' resources, their form XObjects' and
+    Only these objects are compared (in the pages' resources, their form XObjects' and
     Type 3 fonts'), each hashed once, so the cost follows the resources, not the objects
     of the file.
     """
@@ -268,8 +270,21 @@ class IdenticalResources:
         self.merged = 0
 
     def merge(self, pages: Sequence[Dictionary]) -> None:
+        """Share what ``pages`` (one part's) hold that earlier pages hold too."""
+        self._part_resources: dict[bytes, Dictionary] = {}
         for page in pages:
             self._resources(page.get("/Resources"))
+
+    def _share_resources(self, form: Object) -> None:
+        """Point ``form`` at the first resource dictionary of its part with the same
+        entries (WeasyPrint gives each form of a part its own copy of the same one)."""
+        resources = form.get("/Resources")
+        if not isinstance(resources, Dictionary) or not resources.is_indirect:
+            return
+        kept = self._part_resources.setdefault(resources.unparse(resolved=True), resources)
+        if kept.objgen != resources.objgen:
+            form[Name.Resources] = kept
+            self.merged += 1
 
     def _first_visit(self, obj: Object) -> bool:
         if not obj.is_indirect:
@@ -288,6 +303,7 @@ class IdenticalResources:
                 continue
             subtype = xobject.get("/Subtype")
             if subtype == Name.Form and self._first_visit(xobject):
+                self._share_resources(xobject)
                 self._resources(xobject.get("/Resources"))
             elif subtype == Name.Image:
                 self._replace(xobjects, key)
@@ -398,8 +414,8 @@ def finish_pdf(copier: PageCopier, front: RenderedPart, bodies: Sequence[Rendere
         data = seal(data, {name: (page, anchor.x_pt, anchor.y_pt)
                            for name, (page, anchor) in anchors.items()})
         clock.step("signing")
-    LOGGER.debug("finishing the PDF (%d pages, %d identical streams merged): %s", total,
-                 copier.streams_merged, clock)
+    LOGGER.debug("finishing the PDF (%d pages, %d identical objects shared): %s", total,
+                 copier.objects_shared, clock)
     return data
 
 
