@@ -8,8 +8,8 @@ Makes a synthetic project (benchmarks/make_synthetic.py), loads and judges it, t
 
 1. reading the project's files again and making the manifest (``pipeline.archive_of``);
 2. finishing a merged PDF of ``--pages`` pages without and with the archive step
-   (``make_archival``: XMP, output intent, attachments), each written and repacked with
-   qpdf as a build does. The pages are copies of the demo report's pages, so no WeasyPrint
+   (``make_archival``: XMP, output intent, attachments), each written by qpdf (pikepdf)
+   with object streams as a build does. The pages are copies of the demo report's pages, so no WeasyPrint
    render is needed; the attachments are the synthetic project's files and outputs;
 3. signing the result (PAdES B-B, a key made here).
 
@@ -29,30 +29,30 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from pypdf import PdfReader, PdfWriter  # noqa: E402
+import pikepdf  # noqa: E402
 
 from make_synthetic import make_project  # noqa: E402
 from reportgen import pipeline  # noqa: E402
 from reportgen.export.results_csv import results_csv_bytes  # noqa: E402
 from reportgen.export.summary import json_bytes  # noqa: E402
-from reportgen.pdf.archive import make_archival  # noqa: E402
-from reportgen.pdf.merge import repack_with_qpdf  # noqa: E402
+from reportgen.pdf.archive import make_archival, save_options  # noqa: E402
 
 NOW = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
 DEMO_PDF_HINT = "build the demo first: reportgen build demo_project -o /tmp/demo-report"
 
 
-def finished(pages: PdfReader, count: int, attachments: list | None) -> bytes:
-    writer = PdfWriter()
-    for index in range(count):
-        writer.add_page(pages.pages[index % len(pages.pages)])
+def finished(demo: Path, count: int, attachments: list | None) -> bytes:
+    pdf = pikepdf.Pdf.new()
+    sources = []
+    while len(pdf.pages) < count:   # a fresh copy of the demo per round: distinct objects
+        sources.append(pikepdf.open(demo))
+        pdf.pages.extend(sources[-1].pages[:count - len(pdf.pages)])
     if attachments is not None:
-        make_archival(writer, title="t", author="a", creator="c", producer="p", created=NOW,
+        make_archival(pdf, title="t", author="a", creator="c", producer="p", created=NOW,
                       attachments=attachments)
-    writer.compress_identical_objects()
     buffer = io.BytesIO()
-    writer.write(buffer)
-    return repack_with_qpdf(buffer.getvalue())
+    pdf.save(buffer, **save_options())
+    return buffer.getvalue()
 
 
 def main() -> None:
@@ -75,12 +75,11 @@ def main() -> None:
         size = sum(len(a.data) for a in attachments)
         print(f"manifest of {len(archive.inputs)} inputs + outputs ({size / 1e6:.1f} MB "
               f"attached): {manifest_s:.2f} s")
-        pages = PdfReader(args.demo_pdf)
         started = time.perf_counter()
-        plain = finished(pages, args.pages, None)
+        plain = finished(args.demo_pdf, args.pages, None)
         plain_s = time.perf_counter() - started
         started = time.perf_counter()
-        archived = finished(pages, args.pages, attachments)
+        archived = finished(args.demo_pdf, args.pages, attachments)
         archived_s = time.perf_counter() - started
         print(f"finish {args.pages} pages: plain {plain_s:.1f} s ({len(plain) / 1e6:.1f} MB), "
               f"archive {archived_s:.1f} s ({len(archived) / 1e6:.1f} MB): "

@@ -6,6 +6,7 @@ page texts, the outline, link annotations and their destination pages.
 
 from __future__ import annotations
 
+import base64
 import io
 import multiprocessing
 from collections.abc import Mapping
@@ -244,16 +245,46 @@ def test_pdf_date_format(moment: datetime, expected: str) -> None:
     assert pdf_date(moment) == expected
 
 
-def test_without_qpdf_the_merged_file_is_still_complete(
-        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr("reportgen.pdf.merge.shutil.which", lambda name: None)
-    first = render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED)
-    again = render_pdf(toc_front, BODIES, root=tmp_path, title="t", created=CREATED)
-    assert first == again
-    reader = read(first)
-    assert "/ObjStm" not in first.decode("latin-1")  # qpdf's object streams are absent
-    assert "Page 5 of 5" in texts(reader)[4]
-    assert link_targets(reader, 0) == [1, 4]
+def _png(colour: tuple[int, int, int]) -> str:
+    from PIL import Image
+    buffer = io.BytesIO()
+    Image.new("RGB", (8, 8), colour).save(buffer, format="PNG")
+    return "data:image/png;base64," + base64.b64encode(buffer.getvalue()).decode("ascii")
+
+
+def _image_objects(reader: pypdf.PdfReader) -> list[int]:
+    """The object numbers of the image XObjects the pages use (directly or in forms)."""
+    found: set[int] = set()
+
+    def walk(resources: object, seen: set[int]) -> None:
+        resources = resources.get_object() if resources is not None else None
+        for reference in (resources or {}).get("/XObject", {}).values():
+            if reference.idnum in seen:
+                continue
+            seen.add(reference.idnum)
+            xobject = reference.get_object()
+            if xobject.get("/Subtype") == "/Image":
+                found.add(reference.idnum)
+            else:
+                walk(xobject.get("/Resources"), seen)
+
+    for page in reader.pages:
+        walk(page.get("/Resources"), set())
+    return sorted(found)
+
+
+def test_an_image_in_every_part_is_embedded_once_in_object_streams(tmp_path: Path) -> None:
+    logo, other = _png((0, 90, 160)), _png((200, 30, 30))
+    bodies = [document(f'<p>part {n}</p><img src="{logo}" alt="logo">'
+                       + (f'<img src="{other}" alt="other">' if n == 2 else ""))
+              for n in (1, 2, 3)]
+    pdf = render_pdf(cover_only, bodies, root=tmp_path, title="t", created=CREATED)
+    reader = read(pdf)
+    # the same PNG in three parts: one image object; the other PNG: a second one
+    assert len(_image_objects(reader)) == 2
+    # ISO 32000-1, 7.5.7: objects packed in object streams (/Type /ObjStm)
+    assert b"/ObjStm" in pdf
+    assert "Page 4 of 4" in texts(reader)[3]
 
 
 def test_a_worker_that_dies_without_a_result_fails_the_build_with_a_message() -> None:

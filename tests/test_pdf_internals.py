@@ -1,7 +1,7 @@
-"""Every WeasyPrint and pypdf internal the PDF engine relies on, one test per listed use.
+"""Every WeasyPrint and pikepdf internal the PDF engine relies on, one test per listed use.
 
-reportgen/pdf/weasy.py (WeasyPrint, uses 1 to 8) and reportgen/pdf/pypdf_access.py
-(pypdf, uses 1 to 3) list what they read beyond the libraries' documented API. Each
+reportgen/pdf/weasy.py (WeasyPrint, uses 1 to 8) and reportgen/pdf/pikepdf_access.py
+(pikepdf, uses 1 and 2) list what they rely on beyond the libraries' documented API. Each
 test here checks one of those uses on a tiny document and, when a new release changed
 it, fails with a message naming the use, the reportgen function that depends on it and
 what to look at. Run this file first when raising a bound in pyproject.toml.
@@ -11,34 +11,20 @@ Expected places and sizes come from CSS, not from our code: CSS Values and Units
 """
 from __future__ import annotations
 
+import gc
 import io
 from pathlib import Path
 from typing import Any
 
-import pypdf
+import pikepdf
 import pytest
 import weasyprint
-from pypdf import PdfReader, PdfWriter
-from pypdf.generic import (
-    ArrayObject,
-    DecodedStreamObject,
-    DictionaryObject,
-    IndirectObject,
-    NameObject,
-    NullObject,
-    NumberObject,
-    TextStringObject,
-)
+from pypdf import PdfReader
 from weasyprint import HTML
 
 from reportgen.pdf import weasy
 from reportgen.pdf.fetcher import make_url_fetcher, root_url
-from reportgen.pdf.pypdf_access import (
-    add_indirect,
-    named_destination_array,
-    parse_all_objects,
-    set_file_identifier,
-)
+from reportgen.pdf.pikepdf_access import add_page_copies, open_part
 
 PX_PER_MM = 96 / 25.4       # CSS Values 4, 5.2: 1in = 96px = 25.4mm
 PX_PER_PT = 96 / 72         # CSS Values 4, 5.2: 1in = 96px = 72pt
@@ -65,8 +51,8 @@ SPOT_RECT_PX = (LEFT_PX, TOP_PX + 48, LEFT_PX + 48, TOP_PX + 48 + 24)
 
 def changed(library: str, use: str, function: str, check: str) -> str:
     version = (f"WeasyPrint {weasyprint.__version__}" if library == "weasyprint"
-               else f"pypdf {pypdf.__version__}")
-    module = "weasy" if library == "weasyprint" else "pypdf_access"
+               else f"pikepdf {pikepdf.__version__} (qpdf {pikepdf.__libqpdf_version__})")
+    module = "weasy" if library == "weasyprint" else "pikepdf_access"
     return (f"{version} changed {use}, which reportgen.pdf.{module}.{function} relies on "
             f"(listed in that module's docstring). {check}")
 
@@ -246,97 +232,67 @@ def test_weasyprint_ships_an_srgb_icc_profile() -> None:
         "(weasyprint/pdf/pdfa.py).")
 
 
-# pypdf, use 1: PdfWriter._add_object.
+# pikepdf, use 1: pages put into the page tree directly are the file's pages.
 
-def test_pypdf_add_object_makes_a_written_indirect_object() -> None:
-    assert callable(getattr(PdfWriter, "_add_object", None)), changed(
-        "pypdf", "PdfWriter._add_object (gone)", "add_indirect",
-        "Find how PdfWriter now adds an indirect object (pypdf/_writer.py).")
-    writer = PdfWriter()
-    writer.add_blank_page(200, 200)
-    page = writer.pages[0]
-    stream = DecodedStreamObject()
-    stream.set_data(b"0 0 m 10 10 l S")
-    annotation = DictionaryObject({
-        NameObject("/Type"): NameObject("/Annot"), NameObject("/Subtype"): NameObject("/Square"),
-        NameObject("/Rect"): ArrayObject([NumberObject(v) for v in (1, 2, 3, 4)])})
-    stream_ref, annotation_ref = add_indirect(writer, stream), add_indirect(writer, annotation)
-    assert isinstance(annotation_ref, IndirectObject) and (
-        annotation_ref.get_object() is annotation), changed(
-        "pypdf", "what PdfWriter._add_object returns (not a reference to the object added)",
-        "add_indirect", "Check PdfWriter._add_object in pypdf/_writer.py.")
-    page[NameObject("/Contents")] = ArrayObject([stream_ref])
-    page[NameObject("/Annots")] = ArrayObject([annotation_ref])
+def _parts(folder: Path) -> list[Path]:
+    """Three small parts (WeasyPrint packs objects in object streams), as files."""
+    paths = []
+    for number, count in enumerate((2, 1, 3)):
+        pages = "".join(f"<p style='break-before: page'>part {number} page {page}</p>"
+                        for page in range(count))
+        path = folder / f"part-{number}.pdf"
+        path.write_bytes(HTML(string=pages, base_url=str(folder)).write_pdf())
+        paths.append(path)
+    return paths
+
+
+def _saved(pdf: pikepdf.Pdf) -> bytes:
     buffer = io.BytesIO()
-    writer.write(buffer)
-    written = PdfReader(io.BytesIO(buffer.getvalue())).pages[0]
-    assert [c.get_object().get_data() for c in written["/Contents"]] == [b"0 0 m 10 10 l S"] and [
-        list(a.get_object()["/Rect"]) for a in written["/Annots"]] == [[1, 2, 3, 4]], changed(
-        "pypdf", "the objects PdfWriter._add_object adds (not written with the file)",
-        "add_indirect", "Check PdfWriter._add_object and write in pypdf/_writer.py.")
+    pdf.save(buffer, deterministic_id=True,
+             object_stream_mode=pikepdf.ObjectStreamMode.generate)
+    return buffer.getvalue()
 
 
-# pypdf, use 2: get_named_dest_root is the live array of named destinations.
-
-def test_pypdf_named_dest_root_is_the_written_array() -> None:
-    writer = PdfWriter()
-    writer.add_blank_page(200, 200)
-    names = named_destination_array(writer)
-    assert isinstance(names, ArrayObject) and named_destination_array(writer) is names, changed(
-        "pypdf", "PdfWriter.get_named_dest_root (not the same array on every call)",
-        "named_destination_array", "Check get_named_dest_root in pypdf/_doc_common.py.")
-    names.extend([TextStringObject("spot"), ArrayObject([
-        writer.pages[0].indirect_reference, NameObject("/XYZ"), NumberObject(10),
-        NumberObject(150), NullObject()])])
-    buffer = io.BytesIO()
-    writer.write(buffer)
-    reader = PdfReader(io.BytesIO(buffer.getvalue()))
-    destinations = reader.named_destinations
-    assert list(destinations) == ["spot"] and reader.get_destination_page_number(
-        destinations["spot"]) == 0, changed(
-        "pypdf", "PdfWriter.get_named_dest_root (what is appended to it is not written as "
-        "named destinations)", "named_destination_array",
-        "Check get_named_dest_root in pypdf/_doc_common.py.")
-
-
-# pypdf, use 3: PdfWriter._ID is written as the trailer's /ID.
-
-def test_pypdf_id_attribute_is_written_as_the_trailer_id() -> None:
-    writer = PdfWriter()
-    writer.add_blank_page(200, 200)
-    identifier = bytes(range(200, 216))  # not text: read back as a byte string
-    set_file_identifier(writer, identifier)
-    buffer = io.BytesIO()
-    writer.write(buffer)
-    written = PdfReader(io.BytesIO(buffer.getvalue())).trailer.get("/ID")
-    assert written is not None and [getattr(part, "original_bytes", part) for part in written] == [
-        identifier] * 2, changed(
-        "pypdf", "PdfWriter._ID (not written as the trailer's /ID)", "set_file_identifier",
-        "Check how PdfWriter writes the trailer (pypdf/_writer.py, _write_trailer).")
+def test_pikepdf_pages_added_to_the_tree_are_the_files_pages(tmp_path: Path) -> None:
+    first, second, front = _parts(tmp_path)
+    documented = pikepdf.Pdf.new()
+    opened = [pikepdf.open(path) for path in (first, second, front)]
+    documented.pages.extend(opened[0].pages)
+    documented.pages.extend(opened[1].pages)
+    for index, page in enumerate(opened[2].pages):
+        documented.pages.insert(index, page)
+    ours = pikepdf.Pdf.new()
+    sources = [pikepdf.open(path) for path in (first, second, front)]
+    copies = add_page_copies(ours, sources[0]) + add_page_copies(ours, sources[1])
+    copies = add_page_copies(ours, sources[2], first=True) + copies
+    assert [page.obj.objgen for page in ours.pages] == [copy.objgen for copy in copies], \
+        changed("pikepdf", "the page list (pages put into /Kids are not listed, or out of "
+                "order)", "add_page_copies", "Check when QPDF::getAllPages reads the page tree "
+                "(qpdf's QPDF_pages.cc) and whether pikepdf asks for it on Pdf.new().")
+    assert _saved(ours) == _saved(documented), changed(
+        "pikepdf", "the file written (pages copied with copy_foreign into /Kids differ from "
+        "Pdf.pages.extend)", "add_page_copies",
+        "Compare Pdf.copy_foreign of a page with PageList.extend (pikepdf's pagelist.cpp).")
 
 
-# pypdf, use 4: PdfReader.xref and xref_objStm list every object; pypdf keeps what it parsed.
+# pikepdf, use 2: a part may be dropped once its pages are copied.
 
-def test_pypdf_keeps_every_object_parse_all_objects_parsed(tmp_path: Path) -> None:
-    # WeasyPrint packs most objects into object streams, so both tables are used
-    pdf = HTML(string="<p>one</p><p style='break-before: page'>two</p>",
-               base_url=str(tmp_path)).write_pdf()
-    assert isinstance(getattr(PdfReader(io.BytesIO(pdf)), "xref_objStm", None), dict), changed(
-        "pypdf", "PdfReader.xref_objStm (gone)", "parse_all_objects",
-        "Find how PdfReader now lists the objects in object streams (pypdf/_reader.py).")
+def test_pikepdf_copies_outlive_the_dropped_part(tmp_path: Path) -> None:
+    paths = _parts(tmp_path)
 
-    def copy(reader: PdfReader) -> bytes:
-        writer = PdfWriter()
-        for page in reader.pages:
-            writer.add_page(page)
-        buffer = io.BytesIO()
-        writer.write(buffer)
-        return buffer.getvalue().split(b"\n", 1)[1]  # the header line names the reader's version
+    def merged(keep: bool) -> bytes:
+        pdf = pikepdf.Pdf.new()
+        kept = []
+        for path in paths:
+            source = open_part(path)
+            add_page_copies(pdf, source)
+            if keep:
+                kept.append(source)
+            del source
+        gc.collect()   # the parts not kept are gone before the save
+        return _saved(pdf)
 
-    reader = PdfReader(io.BytesIO(pdf))
-    parse_all_objects(reader)
-    reader.stream = io.BytesIO(b"")  # nothing left to read: copying must use parsed objects only
-    assert copy(reader) == copy(PdfReader(io.BytesIO(pdf))), changed(
-        "pypdf", "PdfReader.get_object (parsed objects not kept, or xref tables incomplete)",
-        "parse_all_objects", "Check PdfReader.get_object and cache_indirect_object "
-        "in pypdf/_reader.py.")
+    assert merged(keep=False) == merged(keep=True), changed(
+        "pikepdf", "the copied streams of a part that was dropped (not written the same)",
+        "open_part", "Check how qpdf copies foreign stream data (QPDF::copyStreamData, "
+        "ForeignStreamData) and what pikepdf's Pdf does when it is garbage-collected.")

@@ -10,7 +10,8 @@ on the whole file, so the merged report conforms and not only the WeasyPrint par
 - an sRGB output intent (6.2.3), with the ICC profile WeasyPrint ships
   (:func:`reportgen.pdf.weasy.srgb_icc_profile`);
 - every annotation printable and not hidden (6.3.2);
-- a file identifier in the trailer (6.1.3), derived from the content;
+- a file identifier in the trailer (6.1.3), derived from the content when the file is
+  saved (:func:`save_options`);
 - associated files (6.8): each :class:`Attachment` is embedded with its MIME type,
   modification date (the build date, so two builds stay byte-identical),
   ``AFRelationship`` and a description, listed in the catalog's ``/AF`` array and
@@ -24,17 +25,15 @@ Level: U (ISO 19005-3, 6.2.11.7.2: every font maps its character codes to Unicod
 when every font used has a ToUnicode CMap (:func:`fonts_without_unicode`; WeasyPrint
 writes one for each of its fonts, the page stamp one for its font), else B, and the
 names of the fonts without one are logged. Never level A: that needs a tagged PDF, and
-the parts are rendered untagged (pypdf would not carry a structure tree through the
-merge).
+tagging is optional (:mod:`reportgen.pdf.tags`).
 
+The merged file is built and written with pikepdf (qpdf), documented API only.
 :func:`read_archive` returns the embedded files and the text of each page, for
-``reportgen verify``. Only documented pypdf API is used, except the two helpers of
-:mod:`reportgen.pdf.pypdf_access` named where they are called.
+``reportgen verify``; it reads with pypdf, which extracts text (pikepdf does not).
 """
 
 from __future__ import annotations
 
-import hashlib
 import io
 import logging
 import xml.etree.ElementTree as ET
@@ -44,23 +43,26 @@ from datetime import datetime, timezone
 from typing import Final
 from xml.sax.saxutils import escape
 
-from pypdf import PdfReader, PdfWriter
-from pypdf.errors import PdfReadError
-from pypdf.generic import (
-    ArrayObject,
-    DecodedStreamObject,
-    DictionaryObject,
-    NameObject,
-    NumberObject,
-    TextStringObject,
+from pikepdf import (
+    Array,
+    AttachedFileSpec,
+    Dictionary,
+    Name,
+    Object,
+    ObjectStreamMode,
+    Pdf,
+    Stream,
+    String,
 )
+from pypdf import PdfReader
+from pypdf.errors import PdfReadError
 
 from reportgen.errors import ReportgenError
-from reportgen.pdf.pypdf_access import add_indirect, set_file_identifier
 from reportgen.pdf.weasy import srgb_icc_profile
 
 LOGGER: Final = logging.getLogger(__name__)
 PDFA_PART: Final = 3
+PDF_VERSION: Final = "1.7"
 PDFA_UNICODE: Final = "U"   # level U: level B, and every font maps its codes to Unicode
 PDFA_BASIC: Final = "B"
 OUTPUT_CONDITION: Final = "sRGB IEC61966-2.1"
@@ -128,121 +130,145 @@ def xmp_packet(*, title: str, author: str, creator: str, producer: str,
     return text.encode("utf-8")
 
 
-def _output_intent(writer: PdfWriter) -> DictionaryObject:
-    profile = DecodedStreamObject()
-    profile.set_data(srgb_icc_profile())
-    profile = profile.flate_encode()
-    profile[NameObject("/N")] = NumberObject(3)
-    return DictionaryObject({
-        NameObject("/Type"): NameObject("/OutputIntent"),
-        NameObject("/S"): NameObject("/GTS_PDFA1"),
-        NameObject("/OutputConditionIdentifier"): TextStringObject(OUTPUT_CONDITION),
-        NameObject("/Info"): TextStringObject(OUTPUT_CONDITION),
-        NameObject("/DestOutputProfile"): add_indirect(writer, profile),
-    })
+def pdf_date(moment: datetime) -> str:
+    """Format ``moment`` as a PDF date string (ISO 32000-1, 7.9.4), e.g. D:20300115093000Z."""
+    text = moment.strftime("D:%Y%m%d%H%M%S")
+    offset = moment.utcoffset()
+    if offset is None:
+        return text
+    minutes = int(offset.total_seconds() // 60)
+    if minutes == 0:
+        return text + "Z"
+    sign = "+" if minutes > 0 else "-"
+    return text + f"{sign}{abs(minutes) // 60:02d}'{abs(minutes) % 60:02d}'"
 
 
-def _printable_annotations(writer: PdfWriter) -> None:
-    for page in writer.pages:
-        annotations = page.get("/Annots")
+def _output_intent(pdf: Pdf) -> Dictionary:
+    profile = pdf.make_stream(srgb_icc_profile(), N=3)  # compressed when the file is saved
+    return Dictionary(
+        Type=Name.OutputIntent,
+        S=Name.GTS_PDFA1,
+        OutputConditionIdentifier=String(OUTPUT_CONDITION),
+        Info=String(OUTPUT_CONDITION),
+        DestOutputProfile=profile,
+    )
+
+
+def _printable_annotations(pdf: Pdf) -> None:
+    for page in pdf.pages:
+        annotations = page.obj.get("/Annots")
         if annotations is None:
             continue
-        for reference in annotations.get_object():
-            annotation = reference.get_object()
+        for annotation in annotations:
             flags = int(annotation.get("/F", 0))
-            annotation[NameObject("/F")] = NumberObject(
-                (flags | ANNOTATION_PRINT) & ~ANNOTATION_FORBIDDEN)
+            annotation[Name.F] = (flags | ANNOTATION_PRINT) & ~ANNOTATION_FORBIDDEN
 
 
-def _attach(writer: PdfWriter, attachments: Sequence[Attachment], modified: datetime) -> None:
+def _attach(pdf: Pdf, attachments: Sequence[Attachment], modified: datetime) -> None:
     references = []
     for attachment in sorted(attachments, key=lambda item: item.name):
-        embedded = writer.add_attachment(attachment.name, attachment.data)
-        embedded.subtype = NameObject("/" + attachment.mime)
-        embedded.alternative_name = TextStringObject(attachment.name)
-        embedded.description = TextStringObject(attachment.description)
-        embedded.associated_file_relationship = NameObject("/" + attachment.relationship)
-        embedded.modification_date = modified
-        embedded.size = NumberObject(len(attachment.data))
-        references.append(embedded.pdf_object.indirect_reference)
+        spec = AttachedFileSpec(
+            pdf, attachment.data, description=attachment.description,
+            filename=attachment.name, mime_type=attachment.mime, mod_date=pdf_date(modified),
+            relationship=Name("/" + attachment.relationship))
+        pdf.attachments[attachment.name] = spec
+        references.append(spec.obj)
     if references:
-        writer.root_object[NameObject("/AF")] = ArrayObject(references)
+        pdf.Root[Name.AF] = Array(references)
 
 
-def _resources_fonts(resources: object, seen: set[int], found: list[DictionaryObject]) -> None:
+def _first_visit(obj: Object, seen: set[tuple[int, int]]) -> bool:
+    """Whether ``obj`` is met for the first time (an indirect object is visited once; a
+    direct one, which only its container holds, every time its container is)."""
+    if not obj.is_indirect:
+        return True
+    if obj.objgen in seen:
+        return False
+    seen.add(obj.objgen)
+    return True
+
+
+def _resources_fonts(resources: Object | None, seen: set[tuple[int, int]],
+                     found: list[Object]) -> None:
     """The font dictionaries of ``resources``, and of its form XObjects, patterns and Type 3
-    fonts, appended to ``found`` (each object once)."""
-    resources = resources.get_object() if resources is not None else None
-    if not isinstance(resources, DictionaryObject):
-        return
+    fonts, appended to ``found`` (each indirect object once)."""
+    if not isinstance(resources, Dictionary) or not _first_visit(resources, seen):
+        return   # a part's pages and forms share resource dictionaries: each is read once
     fonts = resources.get("/Font")
-    for font in (fonts.get_object().values() if fonts is not None else ()):
-        font = font.get_object()
-        if id(font) in seen or not isinstance(font, DictionaryObject):
-            continue
-        seen.add(id(font))
-        found.append(font)
-        _resources_fonts(font.get("/Resources"), seen, found)   # a Type 3 font's glyphs
+    if not isinstance(fonts, Dictionary) or not _first_visit(fonts, seen):
+        fonts = None
+    for font in (fonts.values() if fonts is not None else ()):
+        if isinstance(font, Dictionary) and _first_visit(font, seen):
+            found.append(font)
+            _resources_fonts(font.get("/Resources"), seen, found)   # a Type 3 font's glyphs
     for key in ("/XObject", "/Pattern"):
         entries = resources.get(key)
-        for item in (entries.get_object().values() if entries is not None else ()):
-            item = item.get_object()
-            if id(item) not in seen and isinstance(item, DictionaryObject):
-                seen.add(id(item))
+        for item in (entries.values() if isinstance(entries, Dictionary) else ()):
+            if isinstance(item, (Dictionary, Stream)) and _first_visit(item, seen):
                 _resources_fonts(item.get("/Resources"), seen, found)
 
 
-def fonts_without_unicode(writer: PdfWriter) -> list[str]:
+def fonts_without_unicode(pdf: Pdf) -> list[str]:
     """The names of the fonts used on the pages (content, form XObjects, patterns, annotation
     appearances) whose dictionary has no ``/ToUnicode`` CMap; [] when every font has one.
 
     A CIDFont is reached only as the descendant of a Type 0 font, whose dictionary carries
     the CMap, so it is not listed.
     """
-    seen: set[int] = set()
-    fonts: list[DictionaryObject] = []
-    for page in writer.pages:
+    seen: set[tuple[int, int]] = set()
+    fonts: list[Object] = []
+    for page in pdf.pages:
+        page = page.obj
         _resources_fonts(page.get("/Resources"), seen, fonts)
         for annotation in page.get("/Annots") or ():
-            appearance = annotation.get_object().get("/AP")
-            for stream in (appearance.get_object().values() if appearance is not None else ()):
-                stream = stream.get_object()
-                streams = stream.values() if not hasattr(stream, "get_data") else [stream]
+            appearance = annotation.get("/AP")
+            for stream in (appearance.values() if isinstance(appearance, Dictionary) else ()):
+                streams = stream.values() if isinstance(stream, Dictionary) else [stream]
                 for item in streams:
-                    _resources_fonts(item.get_object().get("/Resources"), seen, fonts)
+                    if isinstance(item, Stream):
+                        _resources_fonts(item.get("/Resources"), seen, fonts)
     return sorted({str(font.get("/BaseFont", font.get("/Name", "?"))) for font in fonts
                    if "/ToUnicode" not in font})
 
 
-def make_archival(writer: PdfWriter, *, title: str, author: str, creator: str, producer: str,
+def make_archival(pdf: Pdf, *, title: str, author: str, creator: str, producer: str,
                   created: datetime, attachments: Sequence[Attachment] = (),
                   language: str = "en") -> None:
-    """Add what PDF/A-3 asks of the merged file (see the module docstring) to ``writer``.
+    """Add what PDF/A-3 asks of the merged file (see the module docstring) to ``pdf``.
 
-    Call it after the pages, links, outline and document information are in place.
+    Call it after the pages, links, outline and document information are in place. The
+    file identifier (6.1.3) is written when the file is saved: ``Pdf.save`` with
+    ``deterministic_id=True`` derives it from the content (:func:`save_options`).
     """
-    lacking = fonts_without_unicode(writer)
+    lacking = fonts_without_unicode(pdf)
     if lacking:  # level B still holds; level U would need a ToUnicode CMap in each
         LOGGER.info("PDF/A-3 level B only: no ToUnicode CMap in font(s) %s", ", ".join(lacking))
-    xmp = DecodedStreamObject()
-    xmp.set_data(xmp_packet(title=title, author=author, creator=creator, producer=producer,
-                            created=created, language=language,
-                            conformance=PDFA_BASIC if lacking else PDFA_UNICODE))
-    xmp[NameObject("/Type")] = NameObject("/Metadata")
-    xmp[NameObject("/Subtype")] = NameObject("/XML")
-    root = writer.root_object
-    root[NameObject("/Metadata")] = add_indirect(writer, xmp)
-    root[NameObject("/OutputIntents")] = ArrayObject([add_indirect(writer, _output_intent(writer))])
+    xmp = pdf.make_stream(
+        xmp_packet(title=title, author=author, creator=creator, producer=producer,
+                   created=created, language=language,
+                   conformance=PDFA_BASIC if lacking else PDFA_UNICODE),
+        Type=Name.Metadata, Subtype=Name.XML)
+    root = pdf.Root
+    root[Name.Metadata] = xmp
+    root[Name.OutputIntents] = Array([pdf.make_indirect(_output_intent(pdf))])
     if author:
-        writer.add_metadata({"/Author": TextStringObject(author)})
-    _printable_annotations(writer)
-    _attach(writer, attachments, created.astimezone(timezone.utc) if created.tzinfo else created)
-    identity = hashlib.sha256()
-    for part in (title, author, xmp_date(created), str(len(writer.pages))):
-        identity.update(part.encode("utf-8") + b"\0")
-    for attachment in sorted(attachments, key=lambda item: item.name):
-        identity.update(attachment.name.encode("utf-8") + hashlib.sha256(attachment.data).digest())
-    set_file_identifier(writer, identity.digest()[:16])
+        pdf.docinfo[Name.Author] = String(author)
+    _printable_annotations(pdf)
+    _attach(pdf, attachments, created.astimezone(timezone.utc) if created.tzinfo else created)
+
+
+def save_options(compact: bool = True) -> dict[str, object]:
+    """How the archive file is saved (``Pdf.save`` keywords): a file identifier derived from
+    the content, so builds stay byte-identical (6.1.3 asks for one); PDF 1.7; the XMP
+    packet left as it is (never compressed, qpdf's rule); with ``compact``, objects packed
+    into object streams (about a quarter smaller)."""
+    return {"deterministic_id": True, "fix_metadata_version": False, "preserve_pdfa": True,
+            "compress_streams": True,
+            # PDF/A-3 is based on ISO 32000-1 (PDF 1.7), as are WeasyPrint's parts; qpdf
+            # would otherwise write the lowest version its objects need (1.5)
+            "min_version": PDF_VERSION,
+            "object_stream_mode": ObjectStreamMode.generate if compact
+            else ObjectStreamMode.disable}
 
 
 @dataclass(frozen=True)
@@ -285,7 +311,7 @@ def read_archive(pdf: bytes) -> ArchiveContents:
         for name, contents in reader.attachments.items():
             files[name] = contents[0]
         root = reader.trailer["/Root"].get_object()
-        for reference in root.get("/AF", ArrayObject()):
+        for reference in root.get("/AF", []):
             spec = reference.get_object()
             name = str(spec.get("/UF", spec.get("/F", "")))
             relationships[name] = str(spec.get("/AFRelationship", "")).lstrip("/")

@@ -3,7 +3,7 @@
 One WeasyPrint render of our 2,000-link report takes about 18 minutes and 12 GB on
 a 2-core machine (benchmarks/README.md), and its memory grows with the document. So the body parts
 are rendered separately in worker processes (a fresh process per part keeps memory
-flat) and merged with pypdf; what spans parts is rebuilt after the merge
+flat) and merged with pikepdf (qpdf); what spans parts is rebuilt after the merge
 (:mod:`reportgen.pdf.merge`): page numbers, links between parts, the outline.
 
 The front matter (cover, contents, summary) shows page numbers. Ours leaves a slot of
@@ -25,7 +25,7 @@ from collections import deque
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from concurrent.futures import Future, ThreadPoolExecutor
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import datetime
 from functools import partial
 from multiprocessing.connection import Connection, wait
@@ -245,7 +245,8 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     running threads (the front matter estimate, a progress display). Like every
     multiprocessing program, the calling script must guard its entry point with
     ``if __name__ == "__main__":``. ``on_done(count)`` is called as each part finishes,
-    ``on_part(index, part)`` with each part, while the others are still rendering.
+    ``on_part(index, part)`` with each part, while the others are still rendering; it
+    takes the part's PDF bytes (the parts returned then have none, ``pdf == b""``).
     ``bodies[index]`` is read only when the part is about to be sent, so ``bodies``
     may produce its documents on demand.
 
@@ -305,12 +306,16 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     return [part for part in rendered if part is not None]
 
 
-def _hand_over(arrived: list[int], rendered: Sequence[RenderedPart | None],
+def _hand_over(arrived: list[int], rendered: list[RenderedPart | None],
                on_part: Callable[[int, RenderedPart], None] | None) -> None:
+    """Give each arrived part to ``on_part``, which takes its PDF bytes: the part kept
+    for the caller has none (its pages, anchors and bookmarks are all the merge needs
+    later), so a long report's parts are not all held in memory."""
     for index in arrived:
         part = rendered[index]
         if on_part is not None and part is not None:
             on_part(index, part)
+            rendered[index] = replace(part, pdf=b"")
     arrived.clear()
 
 
@@ -455,24 +460,22 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         with _cycle_collector_paused(), ThreadPoolExecutor(max_workers=1) as thread:
             estimate: Future[tuple[RenderedPart, bool]] = thread.submit(
                 _probe_front, front, root, xml_first, plan)
-            copier = PageCopier()  # copies each body's pages while the later ones render
-            body_parts = (_render_bodies(bodies, root, workers, report, xml_first,
-                                         copier.offer, plan)
-                          if bodies else [])
-            first_front, asked_numbers = estimate.result()
-            bodies_done_s = time.perf_counter()
-            front_part = first_front
-            if asked_numbers:
-                front_part = _settle_front(front, body_parts, root, first_front,
-                                           partial(_render_isolated, xml_first=xml_first,
-                                                   plan=plan))
-            writer = copier.writer
-            front_done_s = time.perf_counter()
-            pdf = finish_pdf(writer, front_part, body_parts, title=title,
-                             page_label=page_label, created=created, author=author,
-                             language=language,
-                             attachments=attachments, seal=seal,
-                             structure=copier.structure)
+            # copies each body's pages while the later ones render
+            with PageCopier() as copier:
+                body_parts = (_render_bodies(bodies, root, workers, report, xml_first,
+                                             copier.offer, plan)
+                              if bodies else [])
+                first_front, asked_numbers = estimate.result()
+                bodies_done_s = time.perf_counter()
+                front_part = first_front
+                if asked_numbers:
+                    front_part = _settle_front(front, body_parts, root, first_front,
+                                               partial(_render_isolated, xml_first=xml_first,
+                                                       plan=plan))
+                front_done_s = time.perf_counter()
+                pdf = finish_pdf(copier, front_part, body_parts, title=title,
+                                 page_label=page_label, created=created, author=author,
+                                 language=language, attachments=attachments, seal=seal)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
                 "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)

@@ -2,7 +2,7 @@
 
 The parts are rendered separately, so no part knows its absolute page numbers or
 the total; the numbers are written afterwards, as one small content stream per page
-appended by pypdf. The same stream writes the page number of each page slot left
+appended to the merged file (pikepdf). The same stream writes the page number of each page slot left
 by the front matter (:class:`reportgen.pdf.weasy.PageSlot`). The text is set in
 DejaVu Sans, subset to the characters used and embedded once (a simple TrueType
 font, WinAnsi encoding, with a ToUnicode CMap mapping each code used to its character, so
@@ -15,8 +15,8 @@ part leaves behind (WeasyPrint flips the y axis) cannot move the stamp. What the
 draws is marked as an artifact (``/Artifact BMC … EMC``, ISO 32000-1, 14.8.2.2), so
 that in a tagged report it stands outside the structure tree, as page numbers should.
 
-The font and the streams are added to the writer through
-:func:`reportgen.pdf.pypdf_access.add_indirect` (pypdf has no documented method for it).
+The font and the streams are added with pikepdf's documented ``Pdf.make_stream`` and
+``Pdf.make_indirect``; qpdf compresses the streams when the file is saved.
 """
 
 from __future__ import annotations
@@ -32,19 +32,9 @@ from typing import Final
 
 from fontTools import subset
 from fontTools.ttLib import TTFont
-from pypdf import PdfWriter
-from pypdf.generic import (
-    ArrayObject,
-    DecodedStreamObject,
-    DictionaryObject,
-    IndirectObject,
-    NameObject,
-    NumberObject,
-    StreamObject,
-)
+from pikepdf import Array, Dictionary, Name, Object, Pdf
 
 from reportgen.errors import ReportgenError
-from reportgen.pdf.pypdf_access import add_indirect
 from reportgen.pdf.weasy import PageFrame, PageSlot
 
 STAMP_FONT_SIZE_PT: Final = 8.0
@@ -65,9 +55,9 @@ DEJAVU_CANDIDATES: Final = (
 
 @dataclass(frozen=True)
 class StampFont:
-    """A font resource in the writer and the advance width of each character."""
+    """A font resource in the merged file and the advance width of each character."""
 
-    reference: IndirectObject
+    reference: Object
     advance_em: dict[str, float]
     embedded: bool
 
@@ -124,7 +114,7 @@ def to_unicode_cmap(chars: str) -> bytes:
     return b"\n".join(lines) + b"\n"
 
 
-def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
+def _embedded_font(pdf: Pdf, font_path: Path, chars: str) -> StampFont:
     font = TTFont(font_path, recalcTimestamp=False)  # keep the output reproducible
     units_per_em = font["head"].unitsPerEm
     cmap = font.getBestCmap()
@@ -143,55 +133,45 @@ def _embedded_font(writer: PdfWriter, font_path: Path, chars: str) -> StampFont:
     subsetter.subset(font)
     buffer = io.BytesIO()
     font.save(buffer)
-    file_stream = StreamObject()
-    file_stream.set_data(buffer.getvalue())
-    file_stream = file_stream.flate_encode()
-    file_stream[NameObject("/Length1")] = NumberObject(len(buffer.getvalue()))
+    file_stream = pdf.make_stream(buffer.getvalue(), Length1=len(buffer.getvalue()))
 
     head = font["head"]
     scale = 1000 / units_per_em
-    base_font = NameObject(f"/{_subset_tag(chars)}+DejaVuSans")
-    descriptor = DictionaryObject({
-        NameObject("/Type"): NameObject("/FontDescriptor"),
-        NameObject("/FontName"): base_font,
-        NameObject("/Flags"): NumberObject(32),  # nonsymbolic
-        NameObject("/FontBBox"): ArrayObject(
-            [NumberObject(round(value * scale))
-             for value in (head.xMin, head.yMin, head.xMax, head.yMax)]),
-        NameObject("/ItalicAngle"): NumberObject(0),
-        NameObject("/Ascent"): NumberObject(round(font["hhea"].ascent * scale)),
-        NameObject("/Descent"): NumberObject(round(font["hhea"].descent * scale)),
-        NameObject("/CapHeight"): NumberObject(round(CAP_HEIGHT_EM * 1000)),
-        NameObject("/StemV"): NumberObject(80),
-        NameObject("/FontFile2"): add_indirect(writer, file_stream),
-    })
+    base_font = Name(f"/{_subset_tag(chars)}+DejaVuSans")
+    descriptor = Dictionary(
+        Type=Name.FontDescriptor,
+        FontName=base_font,
+        Flags=32,  # nonsymbolic
+        FontBBox=Array([round(value * scale)
+                        for value in (head.xMin, head.yMin, head.xMax, head.yMax)]),
+        ItalicAngle=0,
+        Ascent=round(font["hhea"].ascent * scale),
+        Descent=round(font["hhea"].descent * scale),
+        CapHeight=round(CAP_HEIGHT_EM * 1000),
+        StemV=80,
+        FontFile2=file_stream,
+    )
     codes = [char.encode(STAMP_ENCODING)[0] for char in chars]
     first, last = min(codes), max(codes)
     widths = [0] * (last - first + 1)
     for char, code in zip(chars, codes):
         widths[code - first] = round(advance_em.get(char, 0) * 1000)
-    font_dict = DictionaryObject({
-        NameObject("/Type"): NameObject("/Font"),
-        NameObject("/Subtype"): NameObject("/TrueType"),
-        NameObject("/BaseFont"): base_font,
-        NameObject("/FirstChar"): NumberObject(first),
-        NameObject("/LastChar"): NumberObject(last),
-        NameObject("/Widths"): ArrayObject([NumberObject(width) for width in widths]),
-        NameObject("/Encoding"): NameObject("/WinAnsiEncoding"),
-        NameObject("/FontDescriptor"): add_indirect(writer, descriptor),
-        NameObject("/ToUnicode"): add_indirect(writer, _flate(to_unicode_cmap(chars))),
-    })
-    return StampFont(add_indirect(writer, font_dict), advance_em, embedded=True)
+    font_dict = Dictionary(
+        Type=Name.Font,
+        Subtype=Name.TrueType,
+        BaseFont=base_font,
+        FirstChar=first,
+        LastChar=last,
+        Widths=Array(widths),
+        Encoding=Name.WinAnsiEncoding,
+        FontDescriptor=pdf.make_indirect(descriptor),
+        ToUnicode=pdf.make_stream(to_unicode_cmap(chars)),
+    )
+    return StampFont(pdf.make_indirect(font_dict), advance_em, embedded=True)
 
 
-def _flate(data: bytes) -> StreamObject:
-    stream = StreamObject()
-    stream.set_data(data)
-    return stream.flate_encode()
-
-
-def make_stamp_font(writer: PdfWriter, texts: Iterable[str]) -> StampFont:
-    """Add the stamp font for ``texts`` to ``writer``: DejaVu Sans, subset and embedded.
+def make_stamp_font(pdf: Pdf, texts: Iterable[str]) -> StampFont:
+    """Add the stamp font for ``texts`` to ``pdf``: DejaVu Sans, subset and embedded.
 
     Raises :class:`~reportgen.errors.ReportgenError` when the font is not installed.
     """
@@ -201,7 +181,7 @@ def make_stamp_font(writer: PdfWriter, texts: Iterable[str]) -> StampFont:
         raise ReportgenError(
             "the page-number stamp of report.pdf needs the font DejaVu Sans, which was not "
             f"found; {FONT_PACKAGE_HINT}")
-    return _embedded_font(writer, font_path, chars)
+    return _embedded_font(pdf, font_path, chars)
 
 
 def _pdf_string(text: str) -> bytes:
@@ -230,16 +210,14 @@ def slot_operators(slot: PageSlot, text: str, font: StampFont) -> bytes:
 
 
 class Stamper:
-    """Appends page-number streams to pages of one writer, sharing the font and ``q``."""
+    """Appends page-number streams to pages of one file, sharing the font and ``q``."""
 
-    def __init__(self, writer: PdfWriter, font: StampFont) -> None:
-        self.writer = writer
+    def __init__(self, pdf: Pdf, font: StampFont) -> None:
+        self.pdf = pdf
         self.font = font
-        save = DecodedStreamObject()
-        save.set_data(b"q\n")
-        self.save_reference = add_indirect(writer, save)
+        self.save_reference = pdf.make_stream(b"q\n")
 
-    def stamp(self, page: DictionaryObject, text: str, frame: PageFrame,
+    def stamp(self, page: Dictionary, text: str, frame: PageFrame,
               slot_texts: Sequence[tuple[PageSlot, str]] = ()) -> None:
         """Wrap the page's content in ``q … Q``; draw ``text`` and the slots' texts after it."""
         operators = []
@@ -248,24 +226,22 @@ class Stamper:
                 slot_operators(slot, slot_text, self.font) for slot, slot_text in slot_texts)
                 + b" EMC")
         operators.append(stamp_operators(text, frame, self.font))
-        stream = DecodedStreamObject()
-        stream.set_data(b"\n" + b"\n".join(operators) + b"\n")
+        stream = self.pdf.make_stream(b"\n" + b"\n".join(operators) + b"\n")
         contents = page.get("/Contents")
         if contents is None:
-            originals: list[IndirectObject] = []
-        elif isinstance(contents.get_object(), ArrayObject):
-            originals = list(contents.get_object())
+            originals: list[Object] = []
+        elif isinstance(contents, Array):
+            originals = list(contents)
         else:
             originals = [contents]
-        page[NameObject("/Contents")] = ArrayObject(
-            [self.save_reference, *originals, add_indirect(self.writer, stream)])
+        page[Name.Contents] = Array([self.save_reference, *originals, stream])
         resources = page.get("/Resources")
-        resources = resources.get_object() if resources is not None else None
-        if resources is None:
-            resources = DictionaryObject()
-            page[NameObject("/Resources")] = resources
+        if not isinstance(resources, Dictionary):
+            resources = Dictionary()
+            page[Name.Resources] = resources
+            resources = page[Name.Resources]
         fonts = resources.get("/Font")
-        if fonts is None:
-            fonts = DictionaryObject()
-            resources[NameObject("/Font")] = fonts
-        fonts.get_object()[NameObject(STAMP_FONT_RESOURCE)] = self.font.reference
+        if not isinstance(fonts, Dictionary):
+            resources[Name.Font] = Dictionary()
+            fonts = resources[Name.Font]
+        fonts[Name(STAMP_FONT_RESOURCE)] = self.font.reference
