@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import dataclasses
+import re
 from datetime import datetime
 from pathlib import Path
 
@@ -200,3 +201,20 @@ def test_report_html_written_in_pieces_equals_the_whole_text(tmp_path):
     with target.open("wb") as handle:
         document.write_html(handle)
     assert target.read_bytes() == document.html.encode("utf-8")
+
+
+def test_a_large_register_is_cut_into_parts_each_row_once(monkeypatch):
+    from reportgen.report import render as render_module
+
+    monkeypatch.setattr(render_module, "REGISTER_ROWS_PER_PART", 10)
+    links = [make_link(f"R-{n:02d}") for n in range(25)]
+    results = [dict(link_id=f"R-{n:02d}", wavelength_nm=850, loss_db=1.0) for n in range(25)]
+    document = render(make_project(links, results))
+    pieces = [body for body in document.bodies[:document.front_bodies]
+              if 'class="grid register-table"' in body]
+    assert len(pieces) == 3  # 25 rows in runs of 10
+    assert [piece.count('id="register"') for piece in pieces] == [1, 0, 0]  # heading once
+    rows = [row for piece in pieces for row in re.findall(r'<td class="link-id"><a href="#(link-r-\d\d)"', piece)]
+    assert rows == [f"link-r-{n:02d}" for n in range(25)]
+    # report.html keeps one register with every row
+    assert document.html.count('class="grid register-table"') == 1

@@ -67,6 +67,9 @@ MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
 MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
+# Register rows per PDF part (about 22 pages): WeasyPrint's memory grows with the document,
+# and the register of 20,000 links in one part would be 440 pages in one process.
+REGISTER_ROWS_PER_PART: Final = 1000
 # The front matter and the appendix of our templates are PDF parts of a few pieces each,
 # cut where a page break is anyway, so that a rebuild renders again only the piece that
 # changed (the part cache, reportgen.pdf.cache): the cover holds the manifest digest,
@@ -188,6 +191,26 @@ def split_groups(groups: tuple[MatrixGroup, ...],
     if current or not parts:
         parts.append(tuple(current))
     return parts
+
+
+@dataclass(frozen=True)
+class RegisterRows:
+    """The rows of the link register one document shows (the template's ``register_rows``):
+    all of them, or one run of a register cut into PDF parts; ``first`` carries the
+    heading, ``last`` is followed by the applications of a small project."""
+
+    links: tuple[LinkView, ...]
+    first: bool = True
+    last: bool = True
+
+
+def register_runs(links: tuple[LinkView, ...], size: int | None = None) -> list[RegisterRows]:
+    """The register cut into runs of at most ``size`` rows (default
+    :data:`REGISTER_ROWS_PER_PART`; at least one run)."""
+    size = size or REGISTER_ROWS_PER_PART
+    starts = range(0, max(len(links), 1), size)
+    return [RegisterRows(links[start:start + size], first=start == 0,
+                         last=start + size >= len(links)) for start in starts]
 
 
 def css_string(text: object) -> Markup:
@@ -420,16 +443,19 @@ class _Renderer:
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
                page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
-               matrix_groups: tuple | None = None, section: str | None = None) -> str:
+               matrix_groups: tuple | None = None, section: str | None = None,
+               register_rows: RegisterRows | None = None) -> str:
         """One document; ``section`` names the one piece of the front matter or appendix
-        it shows (:data:`FRONT_SECTIONS`, :data:`APPENDIX_SECTIONS`), None: all of ``part``."""
+        it shows (:data:`FRONT_SECTIONS`, :data:`APPENDIX_SECTIONS`), None: all of ``part``;
+        ``register_rows`` the run of the register it shows (None: all of it)."""
         return squeeze_html("".join(self.generate(
-            part, links, first_part, page_of, total_pages, matrix_groups, section)))
+            part, links, first_part, page_of, total_pages, matrix_groups, section,
+            register_rows)))
 
     def generate(self, part: str, links: tuple = (), first_part: bool = False,
                  page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
-                 matrix_groups: tuple | None = None, section: str | None = None
-                 ) -> Iterator[str]:
+                 matrix_groups: tuple | None = None, section: str | None = None,
+                 register_rows: RegisterRows | None = None) -> Iterator[str]:
         """The text of :meth:`render` before squeezing, in the template's own pieces."""
         if matrix_groups is None:
             matrix_groups = self.view.apps.groups if self.view.apps is not None else ()
@@ -437,7 +463,8 @@ class _Renderer:
             **self.common, part=part, links=links, first_part=first_part, page_of=page_of or {},
             total_pages=total_pages, matrix_groups=matrix_groups,
             front_section=section if part == "front" else None,
-            appendix_section=section if part == "appendix" else None)
+            appendix_section=section if part == "appendix" else None,
+            register_rows=register_rows or RegisterRows(self.view.links))
 
     def front(self, page_of: Mapping[str, int] | None, total_pages: int | None,
               section: str | None = None) -> str:
@@ -484,8 +511,10 @@ def build_report(
     pieces = project.report.templates is None
     makers: list[Callable[[], str]] = []
     if pieces:
-        makers += [functools.partial(renderer.render, "front", section=section)
-                   for section in FRONT_SECTIONS[1:]]
+        for section in FRONT_SECTIONS[1:]:
+            runs = register_runs(view.links) if section == "register" else [None]
+            makers += [functools.partial(renderer.render, "front", section=section,
+                                         register_rows=rows) for rows in runs]
     first_run = len(makers)
     makers += [functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
                for index, chunk in enumerate(chunk_links(view.links))]
