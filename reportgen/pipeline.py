@@ -158,6 +158,10 @@ def build(
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
+    if report and cluster is None:
+        from reportgen.pdf.forkserver import start_early
+
+        start_early()  # the PDF workers' server imports WeasyPrint while the project loads
     project = validate_only(project_dir)
     check_out_dir_holds_no_input(project, out_dir)
     now = build_now(now)
