@@ -8,7 +8,8 @@ from __future__ import annotations
 
 import logging
 import os
-from collections.abc import Callable
+import tempfile
+from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from functools import partial
@@ -18,7 +19,7 @@ from typing import Any
 
 from reportgen import __version__
 
-from reportgen.export.atomic import write_outputs
+from reportgen.export.atomic import Output, write_outputs
 from reportgen.export.results_csv import results_csv_bytes
 from reportgen.export import summary
 from reportgen.export.summary import json_bytes
@@ -157,6 +158,10 @@ def build(
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
+    if report and cluster is None:
+        from reportgen.pdf.forkserver import start_early
+
+        start_early()  # the PDF workers' server imports WeasyPrint while the project loads
     project = validate_only(project_dir)
     check_out_dir_holds_no_input(project, out_dir)
     now = build_now(now)
@@ -171,16 +176,20 @@ def build(
                 summary_document(outcome, now, version, archive.digest)),
         }
 
+    def write(outputs: Mapping[str, Output]) -> None:
+        log.info("Step 5: writing %s", ", ".join(outputs))
+        write_outputs(out_dir, outputs)
+
     if report:
-        outputs = render_report(outcome, now=now, version=version, progress=progress,
-                                alongside=data_outputs, jobs=jobs,
-                                cache_dir=out_dir if cache else None, cluster=cluster,
-                                archive=archive, sign_key=sign_key, language=language)
+        outputs: Sequence[str] = render_report(
+            outcome, now=now, version=version, progress=progress, alongside=data_outputs,
+            jobs=jobs, cache_dir=out_dir if cache else None, cluster=cluster, archive=archive,
+            sign_key=sign_key, language=language, write=write)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
-        outputs = data_outputs()
-    log.info("Step 5: writing %s", ", ".join(outputs))
-    write_outputs(out_dir, outputs)
+        made = data_outputs()
+        write(made)
+        outputs = tuple(made)
     return BuildResult(out_dir, outcome, tuple(outputs))
 
 
@@ -291,11 +300,13 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
                   jobs: int | None = None, cache_dir: Path | None = None,
                   cluster: str | None = None, archive: Archive | None = None,
-                  sign_key: Any = None, language: str | None = None) -> dict[str, bytes]:
+                  sign_key: Any = None, language: str | None = None,
+                  write: Callable[[Mapping[str, Output]], None]) -> tuple[str, ...]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
 
-    Returns the outputs of ``alongside()`` (made first: the PDF embeds them), then
-    report.html (made by a thread while the PDF workers are busy) and report.pdf.
+    Hands ``write`` (step 5) the outputs of ``alongside()`` (made first: the PDF embeds
+    them), then report.html (made by a thread while the PDF workers are busy) and
+    report.pdf, and returns their names.
     ``cache_dir`` is the output folder whose part cache is used (None: render every
     part); ``archive`` is attached to the PDF, ``sign_key`` signs it; ``language``
     overrides the project's report.language.
@@ -324,8 +335,11 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
         from reportgen.pdf.sign import sign_pdf
 
         seal = partial(sign_pdf, key=sign_key)
-    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
-        html = thread.submit(lambda: document.html.encode("utf-8"))
+    # report.html goes to a temporary file (deleted when closed), not into memory: it
+    # is 13 kB a link, and held as one text it took 1.7 GB at 20,000 links.
+    with tempfile.TemporaryFile(prefix="reportgen-html-") as html_file, \
+            ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
+        html = thread.submit(document.write_html, html_file)
         pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
                                    title=outcome.project.info.title, created=now,
                                    page_label=label, language=lang.code, progress=progress,
@@ -336,4 +350,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                                    cache=(PartCache.in_output_folder(cache_dir)
                                           if cache_dir is not None else None),
                                    cluster=cluster)
-        return {**made, "report.html": html.result(), "report.pdf": pdf_bytes}
+        html.result()
+        outputs: dict[str, Output] = {**made, "report.html": html_file, "report.pdf": pdf_bytes}
+        write(outputs)
+    return tuple(outputs)
+

@@ -2,10 +2,12 @@
 from __future__ import annotations
 
 import math
+from collections import Counter
 import xml.etree.ElementTree as ET
 from datetime import datetime
 
 import pytest
+from hypothesis import given, settings, strategies as st
 
 from builders import make_link, make_project
 from reportgen.report import charts
@@ -106,3 +108,40 @@ def test_charts_are_reproducible_svg_with_text_as_text():
     bars = charts.verdict_chart(view.totals)
     ET.fromstring(bars)
     assert charts.svg_data_uri(bars).startswith("data:image/svg+xml;base64,")
+
+
+def test_thin_dots_hand_worked():
+    # page points = data points here; 0.25 pt apart or more in x or y is kept
+    points = [(0.0, 0.0), (0.1, 0.0), (0.3, 0.05), (0.4, 0.2), (0.45, 0.6), (0.5, 0.62), (1.0, 1.0)]
+    kept = charts.thin_dots(points, lambda p: p, within_pt=0.25)
+    assert kept == [(0.0, 0.0), (0.3, 0.05), (0.45, 0.6), (1.0, 1.0)]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.floats(min_value=-5, max_value=5), min_size=1, max_size=300),
+       st.floats(min_value=0.01, max_value=2.0))
+def test_thin_dots_keeps_the_ends_and_every_dropped_dot_is_near_a_kept_one(values, within):
+    points = [(n / 10.0, m) for n, m in enumerate(sorted(values))]
+    kept = charts.thin_dots(points, lambda p: p, within_pt=within)
+    assert kept[0] == points[0] and kept[-1] == points[-1]
+    assert all(point in points for point in kept)
+    for x, y in points:
+        assert any(abs(x - kx) < within and abs(y - ky) < within or (x, y) == (kx, ky)
+                   for kx, ky in kept)
+
+
+def test_margins_chart_of_many_results_draws_far_fewer_dots_and_every_failure():
+    # 1,000 links x 2 strands x 2 directions at 850 nm; every 100th link fails
+    links = [make_link(f"M{n:04d}") for n in range(1000)]
+    results = [dict(link_id=f"M{n:04d}", wavelength_nm=850, strand=s, direction=d,
+                    loss_db=2.9 if n % 100 == 0 else 0.5 + (n % 37) / 100)
+               for n in range(1000) for s in (1, 2) for d in ("ab", "ba")]
+    view = _view(links, results)
+    svg = charts.margin_chart(view.links)
+    root = ET.fromstring(svg)
+    counts = Counter(use.get("{http://www.w3.org/1999/xlink}href") for use in root.iter(f"{SVG}use"))
+    failing = sum(1 for link in view.links for r in link.results if r.verdict == "fail")
+    assert failing == 40
+    assert failing in counts.values()  # the failures' triangles: every one drawn
+    dots = max(counts.values())  # the passing margins' circles (tick marks are the others)
+    assert dots < 0.5 * (4000 - failing)

@@ -2,17 +2,20 @@
 from __future__ import annotations
 
 import dataclasses
+import re
 from datetime import datetime
 from pathlib import Path
 
 import jinja2
 import pytest
+from hypothesis import given, settings, strategies as st
 
 from builders import make_link, make_project, well_formed
 from reportgen.report import formats, messages, messages_appendix
 from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, ReportOptions
-from reportgen.report.render import LazyDocuments, build_report, css_string
+from reportgen.report.render import (LazyDocuments, build_report, css_string, squeeze_html,
+                                     squeezed_pieces)
 from reportgen.report.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
@@ -164,16 +167,54 @@ def test_one_small_pdf_renders_with_the_link_text():
     assert "PDF-1" in text and "fail" in text
 
 
-def test_lazy_documents_read_like_a_tuple_and_render_each_once():
+def test_lazy_documents_read_like_a_tuple_and_keep_only_the_last_read():
     calls = []
 
     def maker(text):
         return lambda: calls.append(text) or text
 
-    docs = LazyDocuments([maker("a"), maker("b"), maker("c")])
+    docs = LazyDocuments([maker("a"), maker("b"), maker("c")], keep=2)
     assert calls == []
-    assert (len(docs), docs[-1], docs[0], docs[1:], list(docs)) == (3, "c", "a", ["b", "c"],
-                                                                     ["a", "b", "c"])
-    assert calls == ["c", "a", "b"]  # each rendered once, when first read
+    assert (len(docs), docs[-1], docs[0], docs[-1]) == (3, "c", "a", "c")
+    assert calls == ["c", "a"]  # rendered when first read; read again while kept: not again
+    assert (docs[1], docs[0]) == ("b", "a")  # b pushed a out of the two kept
+    assert calls == ["c", "a", "b", "a"]  # a read again: rendered again, the same text
+    assert (docs[1:], list(docs)) == (["b", "c"], ["a", "b", "c"])
     with pytest.raises(IndexError):
         docs[3]
+
+
+BLOCKS = st.sampled_from(["<div>", "</div>", "<p>", "</p>", "<td class=\"x\">", "</tr>",
+                          "<span>", "</span>", "<b>", "word", "a < b", " ", "  \n ", "\t", "<"])
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(BLOCKS, max_size=60), st.integers(min_value=1, max_value=40))
+def test_html_squeezed_in_pieces_equals_squeezed_whole(chunks, size):
+    # the pieces report.html is written in must join to the same text as squeezing it whole
+    assert "".join(squeezed_pieces(chunks, size)) == squeeze_html("".join(chunks))
+
+
+def test_report_html_written_in_pieces_equals_the_whole_text(tmp_path):
+    document = render(mixed_project())
+    target = tmp_path / "report.html"
+    with target.open("wb") as handle:
+        document.write_html(handle)
+    assert target.read_bytes() == document.html.encode("utf-8")
+
+
+def test_a_large_register_is_cut_into_parts_each_row_once(monkeypatch):
+    from reportgen.report import render as render_module
+
+    monkeypatch.setattr(render_module, "REGISTER_ROWS_PER_PART", 10)
+    links = [make_link(f"R-{n:02d}") for n in range(25)]
+    results = [dict(link_id=f"R-{n:02d}", wavelength_nm=850, loss_db=1.0) for n in range(25)]
+    document = render(make_project(links, results))
+    pieces = [body for body in document.bodies[:document.front_bodies]
+              if 'class="grid register-table"' in body]
+    assert len(pieces) == 3  # 25 rows in runs of 10
+    assert [piece.count('id="register"') for piece in pieces] == [1, 0, 0]  # heading once
+    rows = [row for piece in pieces for row in re.findall(r'<td class="link-id"><a href="#(link-r-\d\d)"', piece)]
+    assert rows == [f"link-r-{n:02d}" for n in range(25)]
+    # report.html keeps one register with every row
+    assert document.html.count('class="grid register-table"') == 1

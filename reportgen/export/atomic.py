@@ -9,15 +9,19 @@ from __future__ import annotations
 
 import os
 import tempfile
+import shutil
 from collections.abc import Mapping, Sequence
 from pathlib import Path
-from typing import Final
+from typing import BinaryIO, Final, Union
 
 OUTPUT_NAMES: Final = ("report.html", "report.pdf", "results.csv", "summary.json")
 TEMP_PREFIX: Final = ".reportgen-partial-"
+# An output: its bytes, or an open file holding them (read from its start; a large
+# report.html is made into a temporary file rather than held in memory).
+Output = Union[bytes, BinaryIO]
 
 
-def write_outputs(out_dir: Path, outputs: Mapping[str, bytes],
+def write_outputs(out_dir: Path, outputs: Mapping[str, Output],
                   ours: Sequence[str] = OUTPUT_NAMES) -> None:
     """Write all outputs, each atomically; called only after everything is rendered.
 
@@ -43,12 +47,16 @@ def write_outputs(out_dir: Path, outputs: Mapping[str, bytes],
     _fsync_dir(out_dir)
 
 
-def _stage(out_dir: Path, name: str, data: bytes) -> Path:
+def _stage(out_dir: Path, name: str, data: Output) -> Path:
     fd, temp_name = tempfile.mkstemp(prefix=f"{TEMP_PREFIX}{name}.", dir=out_dir)
     temp = Path(temp_name)
     try:
         with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
+            if isinstance(data, bytes):
+                handle.write(data)
+            else:
+                data.seek(0)
+                shutil.copyfileobj(data, handle, 1 << 20)
             handle.flush()
             os.fsync(handle.fileno())
         os.chmod(temp, 0o644)

@@ -36,6 +36,7 @@ from typing import TYPE_CHECKING, Final, Protocol
 from reportgen.errors import ReportgenError, WorkerTraceback
 from reportgen.pdf.archive import Attachment
 from reportgen.pdf.cache import PartCache, part_key
+from reportgen.pdf.forkserver import worker_context
 from reportgen.pdf.weasy import RenderedPart, render_part
 from reportgen.pdf.merge import PageCopier, Seal, finish_pdf
 from reportgen.pdf.stamp import check_label_text
@@ -135,8 +136,7 @@ class _Workers:
     """
 
     def __init__(self) -> None:
-        self.context = multiprocessing.get_context("forkserver")
-        self.context.set_forkserver_preload(["reportgen.pdf.engine"])
+        self.context = worker_context()
         self.spare: _Worker | None = None
         self.serial = 0
 

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import base64
 import io
-from collections.abc import Sequence
-from typing import Final
+from collections.abc import Callable, Sequence
+from typing import Any, Final
 
 import matplotlib
 from matplotlib.figure import Figure
@@ -30,6 +30,7 @@ _RC: Final = {
     "axes.linewidth": 0.6,
 }
 WITHIN_COLOUR: Final = "#12355b"
+DOT_THIN_PT: Final = 0.25  # the margins chart leaves out a dot this close to the one before
 OVER_COLOUR: Final = "#b5400f"
 VERDICT_STYLE: Final = {  # face colour, hatch
     "pass": ("#cfdcea", ""),
@@ -65,6 +66,31 @@ def margin_groups(links: Sequence[LinkView], lang: Language = ENGLISH) -> dict[s
             for fiber, wl in sorted(groups)}
 
 
+def thin_dots(points: Sequence[tuple[float, float]], to_page: Callable[[Any], Any],
+              within_pt: float = DOT_THIN_PT) -> list[tuple[float, float]]:
+    """``points`` in order, without each one drawn less than ``within_pt`` from the last
+    one kept (in both directions; ``to_page`` maps data to page points, 72 per inch).
+
+    The margins chart draws every margin; a column's dots run along a rising curve
+    (sorted), so at 160,000 results most dots would be drawn on top of the one before
+    and only make the page slow to render. The first and last dots are always kept
+    (the axes' extent), and every dropped dot lies within ``within_pt`` of a kept one,
+    a small fraction of a dot's own width (about 3.5 pt).
+    """
+    if len(points) < 3:
+        return list(points)
+    places = to_page(points)
+    kept = [0]
+    last_x, last_y = places[0]
+    for index in range(1, len(points) - 1):
+        x, y = places[index]
+        if abs(x - last_x) >= within_pt or abs(y - last_y) >= within_pt:
+            kept.append(index)
+            last_x, last_y = x, y
+    kept.append(len(points) - 1)
+    return [points[index] for index in kept]
+
+
 def _local_numbers(axis, lang: Language) -> None:
     """Tick numbers of ``axis`` in the language's form (English: matplotlib's own)."""
     if lang.code != SOURCE_LANGUAGE:
@@ -81,14 +107,21 @@ def margin_chart(links: Sequence[LinkView], lang: Language = ENGLISH) -> str:
         ax = fig.add_axes((0.09, 0.2, 0.89, 0.7))
         ax.axhline(0.0, color="#111111", linewidth=1.2)
         ax.text(-0.58, 0.0, t["chart_zero"], va="bottom", ha="left", fontsize=7)
-        for index, (name, values) in enumerate(groups.items()):
+        columns = []
+        for index, values in enumerate(groups.values()):
             values = sorted(values)  # smallest margin at the left of its column
             count = len(values)
             spread = [index + 0.6 * ((n + 0.5) / count - 0.5) for n in range(count)]
-            within = [(x, m) for x, (m, over) in zip(spread, values) if not over]
-            over = [(x, m) for x, (m, over) in zip(spread, values) if over]
+            columns.append(([(x, m) for x, (m, over) in zip(spread, values) if not over],
+                            [(x, m) for x, (m, over) in zip(spread, values) if over]))
+        every = [point for within, over in columns for point in (*within, *over)]
+        if every:  # the axes' limits from every dot, so that thinning cannot change them
+            ax.update_datalim(every)
+            ax.autoscale_view()
+        for within, over in columns:
             if within:
-                ax.scatter(*zip(*within), s=12, facecolors="white", edgecolors=WITHIN_COLOUR,
+                ax.scatter(*zip(*thin_dots(within, ax.transData.transform)), s=12,
+                           facecolors="white", edgecolors=WITHIN_COLOUR,
                            linewidths=0.8, marker="o", zorder=3)
             if over:
                 ax.scatter(*zip(*over), s=26, color=OVER_COLOUR, edgecolors="#111111",

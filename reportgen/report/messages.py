@@ -175,8 +175,8 @@ _REPORT_TEXT: Final[Mapping[str, str]] = MappingProxyType({
     # charts
     "charts_heading": N_("Margins at a glance"),
     "charts_intro": N_(
-        "Each mark is one judged result; its height is its margin to the limit (above the "
-        "limit line: within the limit). Within each column the results are sorted, smallest "
+        "Each mark is one judged result (marks that would be drawn on top of one another are "
+        "drawn once); its height is its margin to the limit (above the limit line: within the limit). Within each column the results are sorted, smallest "
         "margin on the left. Filled triangles mark results over the limit."
     ),
     "chart_margin_axis": N_("margin to limit [dB]"),

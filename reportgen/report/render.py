@@ -26,11 +26,11 @@ from __future__ import annotations
 
 import functools
 import re
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
-from typing import Final, overload
+from typing import BinaryIO, Final, overload
 
 import jinja2
 from jinja2.sandbox import ImmutableSandboxedEnvironment
@@ -67,6 +67,9 @@ MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
 MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
+# Register rows per PDF part (about 22 pages): WeasyPrint's memory grows with the document,
+# and the register of 20,000 links in one part would be 440 pages in one process.
+REGISTER_ROWS_PER_PART: Final = 1000
 # The front matter and the appendix of our templates are PDF parts of a few pieces each,
 # cut where a page break is anyway, so that a rebuild renders again only the piece that
 # changed (the part cache, reportgen.pdf.cache): the cover holds the manifest digest,
@@ -75,6 +78,9 @@ MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts 
 # of input files (last in the appendix) changes with any input file.
 FRONT_SECTIONS: Final = ("cover", "lists", "register", "charts")  # the first is the front part
 APPENDIX_SECTIONS: Final = ("main", "files")
+KEEP_DOCUMENTS: Final = 8  # PDF part documents kept after they were read (LazyDocuments)
+# report.html is written in pieces of about this many characters (ReportDocument.write_html)
+HTML_PIECE_CHARS: Final = 1 << 20
 
 
 def templates_dir() -> Path:
@@ -85,11 +91,19 @@ def templates_dir() -> Path:
 
 
 class LazyDocuments(Sequence[str]):
-    """Documents rendered when first read, then kept: the PDF engine sends the first
-    parts to its workers while the later ones are still to be rendered."""
+    """Documents rendered when read: the PDF engine sends the first parts to its workers
+    while the later ones are still to be rendered.
 
-    def __init__(self, makers: Sequence[Callable[[], str]]) -> None:
+    Only the ``keep`` documents read last are kept (the engine reads a part two or three
+    times in a row: for its cache key, ahead of time, to send it); one read again later
+    is rendered again, which gives the same text (rendering is a pure function of the
+    view). Keeping every part made the HTML of a 20,000-link report (277 MB of text)
+    stay in memory for the whole build.
+    """
+
+    def __init__(self, makers: Sequence[Callable[[], str]], keep: int = KEEP_DOCUMENTS) -> None:
         self._makers = tuple(makers)
+        self._keep = keep
         self._done: dict[int, str] = {}
 
     def __len__(self) -> int:
@@ -104,16 +118,20 @@ class LazyDocuments(Sequence[str]):
         if isinstance(index, slice):
             return [self[position] for position in range(len(self))[index]]
         position = range(len(self))[index]  # IndexError and negative indices as for a tuple
-        if position not in self._done:
-            self._done[position] = self._makers[position]()
-        return self._done[position]
+        text = self._done.pop(position, None)
+        if text is None:
+            text = self._makers[position]()
+        self._done[position] = text  # last read last: the dict's order is the recency
+        while len(self._done) > self._keep:
+            del self._done[next(iter(self._done))]
+        return text
 
 
 @dataclass(frozen=True)
 class ReportDocument:
     """The rendered report: one HTML file, and the parts of the PDF, each made when read."""
 
-    _html: Callable[[], str] = field(repr=False, compare=False)
+    _html: Callable[[], Iterator[str]] = field(repr=False, compare=False)
     # after the front part: the rest of the front matter (FRONT_SECTIONS, our templates),
     # runs of link sheets, applications, the appendix (APPENDIX_SECTIONS, our templates)
     bodies: Sequence[str]
@@ -122,10 +140,16 @@ class ReportDocument:
     own_templates: bool = True
     front_bodies: int = 0  # how many of the bodies are pieces of the front matter (the first ones)
 
-    @functools.cached_property
+    @property
     def html(self) -> str:
-        """The complete self-contained report.html."""
-        return self._html()
+        """The complete self-contained report.html (made anew each time it is read)."""
+        return "".join(squeezed_pieces(self._html()))
+
+    def write_html(self, handle: BinaryIO) -> None:
+        """Write report.html to ``handle`` (UTF-8) piece by piece: the same bytes as
+        :attr:`html`, without the whole text in memory (259 MB for 20,000 links)."""
+        for piece in squeezed_pieces(self._html()):
+            handle.write(piece.encode("utf-8"))
 
     def front(self, page_of: Mapping[str, int], total_pages: int) -> str:
         """The front part (the cover; all the front matter with a project's own templates)
@@ -167,6 +191,26 @@ def split_groups(groups: tuple[MatrixGroup, ...],
     if current or not parts:
         parts.append(tuple(current))
     return parts
+
+
+@dataclass(frozen=True)
+class RegisterRows:
+    """The rows of the link register one document shows (the template's ``register_rows``):
+    all of them, or one run of a register cut into PDF parts; ``first`` carries the
+    heading, ``last`` is followed by the applications of a small project."""
+
+    links: tuple[LinkView, ...]
+    first: bool = True
+    last: bool = True
+
+
+def register_runs(links: tuple[LinkView, ...], size: int | None = None) -> list[RegisterRows]:
+    """The register cut into runs of at most ``size`` rows (default
+    :data:`REGISTER_ROWS_PER_PART`; at least one run)."""
+    size = size or REGISTER_ROWS_PER_PART
+    starts = range(0, max(len(links), 1), size)
+    return [RegisterRows(links[start:start + size], first=start == 0,
+                         last=start + size >= len(links)) for start in starts]
 
 
 def css_string(text: object) -> Markup:
@@ -244,6 +288,40 @@ _BETWEEN_BLOCKS: Final = re.compile(rf"(</?(?:{_BLOCK_TAGS})\b[^<>]*>)\s+(?=</?(
 def squeeze_html(html: str) -> str:
     """``html`` without the blank text between block-level tags (which renders nothing)."""
     return _BETWEEN_BLOCKS.sub(r"\1", html)
+
+
+def squeezed_pieces(chunks: Iterable[str], size: int = HTML_PIECE_CHARS) -> Iterator[str]:
+    """The text of ``chunks`` joined, :func:`squeeze_html` applied, in pieces of about
+    ``size`` characters; joined, the pieces equal ``squeeze_html("".join(chunks))``.
+
+    A piece ends just before a ``<`` that follows a character other than blank space:
+    no squeezed match can span that cut (a match is a tag, blank space and the ``<`` of
+    the next tag, which therefore follows a blank), nor look past it.
+    """
+    buffer: list[str] = []
+    held = 0
+    for chunk in chunks:
+        buffer.append(chunk)
+        held += len(chunk)
+        if held < size:
+            continue
+        text = "".join(buffer)
+        cut = _last_safe_cut(text)
+        if cut <= 0:
+            buffer, held = [text], len(text)
+            continue
+        yield squeeze_html(text[:cut])
+        buffer, held = [text[cut:]], len(text) - cut
+    if buffer:
+        yield squeeze_html("".join(buffer))
+
+
+def _last_safe_cut(text: str) -> int:
+    """The last index of a ``<`` in ``text`` not preceded by blank space (0: none)."""
+    position = text.rfind("<")
+    while position > 0 and text[position - 1].isspace():
+        position = text.rfind("<", 0, position)
+    return max(position, 0)
 
 
 def stylesheet(env: jinja2.Environment) -> Markup:
@@ -365,16 +443,28 @@ class _Renderer:
 
     def render(self, part: str, links: tuple = (), first_part: bool = False,
                page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
-               matrix_groups: tuple | None = None, section: str | None = None) -> str:
+               matrix_groups: tuple | None = None, section: str | None = None,
+               register_rows: RegisterRows | None = None) -> str:
         """One document; ``section`` names the one piece of the front matter or appendix
-        it shows (:data:`FRONT_SECTIONS`, :data:`APPENDIX_SECTIONS`), None: all of ``part``."""
+        it shows (:data:`FRONT_SECTIONS`, :data:`APPENDIX_SECTIONS`), None: all of ``part``;
+        ``register_rows`` the run of the register it shows (None: all of it)."""
+        return squeeze_html("".join(self.generate(
+            part, links, first_part, page_of, total_pages, matrix_groups, section,
+            register_rows)))
+
+    def generate(self, part: str, links: tuple = (), first_part: bool = False,
+                 page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
+                 matrix_groups: tuple | None = None, section: str | None = None,
+                 register_rows: RegisterRows | None = None) -> Iterator[str]:
+        """The text of :meth:`render` before squeezing, in the template's own pieces."""
         if matrix_groups is None:
             matrix_groups = self.view.apps.groups if self.view.apps is not None else ()
-        return squeeze_html(self.template.render(
+        return self.template.generate(
             **self.common, part=part, links=links, first_part=first_part, page_of=page_of or {},
             total_pages=total_pages, matrix_groups=matrix_groups,
             front_section=section if part == "front" else None,
-            appendix_section=section if part == "appendix" else None))
+            appendix_section=section if part == "appendix" else None,
+            register_rows=register_rows or RegisterRows(self.view.links))
 
     def front(self, page_of: Mapping[str, int] | None, total_pages: int | None,
               section: str | None = None) -> str:
@@ -421,8 +511,10 @@ def build_report(
     pieces = project.report.templates is None
     makers: list[Callable[[], str]] = []
     if pieces:
-        makers += [functools.partial(renderer.render, "front", section=section)
-                   for section in FRONT_SECTIONS[1:]]
+        for section in FRONT_SECTIONS[1:]:
+            runs = register_runs(view.links) if section == "register" else [None]
+            makers += [functools.partial(renderer.render, "front", section=section,
+                                         register_rows=rows) for rows in runs]
     first_run = len(makers)
     makers += [functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
                for index, chunk in enumerate(chunk_links(view.links))]
@@ -444,5 +536,5 @@ def build_report(
         if 0 <= index < len(makers):
             bodies[index]
     return ReportDocument(
-        _html=functools.partial(renderer.render, "all", links=view.links, first_part=True),
+        _html=functools.partial(renderer.generate, "all", links=view.links, first_part=True),
         bodies=bodies, _front=front, own_templates=pieces, front_bodies=first_run)
