@@ -145,3 +145,33 @@ def test_margins_chart_of_many_results_draws_far_fewer_dots_and_every_failure():
     assert failing in counts.values()  # the failures' triangles: every one drawn
     dots = max(counts.values())  # the passing margins' circles (tick marks are the others)
     assert dots < 0.5 * (4000 - failing)
+
+
+@pytest.mark.parametrize("label, bold", [("limit 2.33", True), ("850 nm", False), ("0", False),
+                                         ("end", False), ("dB", False), ("A", True)])
+def test_label_width_equals_freetype_layout_of_the_same_face(label, bold):
+    # Independent check: Pillow lays the text out with FreeType from the same DejaVu Sans file
+    # (these labels hold no kerning pair; text_width ignores kerning, see its docstring).
+    from PIL import ImageFont
+    import matplotlib, os
+    from reportgen.report import text_width
+
+    face = "DejaVuSans-Bold.ttf" if bold else "DejaVuSans.ttf"
+    font = ImageFont.truetype(os.path.join(matplotlib.get_data_path(), "fonts", "ttf", face), 1000)
+    assert text_width.text_width(label, 10.0, bold) == pytest.approx(font.getlength(label) / 100, abs=0.01)
+    # DejaVu Sans digits advance 1303/2048 em (its hmtx table, read above by FreeType)
+    assert text_width.text_width("0", 2048.0) == pytest.approx(1303.0)
+
+
+def test_diagram_labels_are_placed_from_their_left_end_and_centred_where_they_were():
+    from reportgen.report import diagrams, text_width
+
+    view = _view([make_link("L1")], [dict(wavelength_nm=850, loss_db=1.0)])
+    svg = loss_diagram(view.links[0])
+    assert "text-anchor" not in svg  # each anchored label costs the PDF two objects
+    root = ET.fromstring(svg)
+    ends = [t for t in root.iter(f"{SVG}text") if t.get("class") == "end-label"]
+    assert len(ends) == 2
+    for text, centre in zip(ends, (diagrams.PLOT_LEFT, diagrams.PLOT_RIGHT)):
+        middle = float(text.get("x")) + text_width.text_width(text.text, 10.0, bold=True) / 2
+        assert middle == pytest.approx(centre, abs=0.06)

@@ -26,6 +26,7 @@ from typing import Final
 
 from markupsafe import escape
 
+from reportgen.report import text_width
 from reportgen.report.formats import format_db
 from reportgen.report.i18n import ENGLISH, Language
 from reportgen.report.messages import Words
@@ -50,6 +51,10 @@ TICK_SLACK_DB: Final = 1e-9
 LINE_STYLES: Final = (("#12355b", ""), ("#8a5a00", "7 4"), ("#4b6b3c", "2 3"), ("#555555", "10 3 2 3"))
 OVER_COLOUR: Final = "#b5400f"
 WITHIN_COLOUR: Final = "#12355b"
+# The labels' size (drawing units), weight (bold?) and colour: every label, then by class.
+BASE_TEXT: Final = (10.0, False, "#222")
+TEXT_CLASSES: Final = {"tick": (9.5, False, "#555"), "joint": (9.5, False, "#444"),
+                       "end-label": (10.0, True, None), "value": (10.0, True, None)}
 
 
 @dataclass(frozen=True)
@@ -142,9 +147,12 @@ class _Canvas:
         self.parts.append(text)
 
     def text(self, x: float, y: float, label: str, cls: str = "", anchor: str = "start") -> None:
+        """A label with ``anchor`` (start, middle, end) at ``x``, drawn from its left end
+        (:mod:`reportgen.report.text_width`: fewer PDF objects than a ``text-anchor``)."""
         klass = f' class="{cls}"' if cls else ""
-        align = "" if anchor == "start" else f' text-anchor="{anchor}"'
-        self.add(f'<text x="{x:.1f}" y="{y:.1f}"{align}{klass}>{escape(label)}</text>')
+        size, bold, _ = TEXT_CLASSES.get(cls, BASE_TEXT)
+        left = text_width.left_end(x, label, size, anchor, bold)
+        self.add(f'<text x="{left:.1f}" y="{y:.1f}"{klass}>{escape(label)}</text>')
 
 
 def _axes(canvas: _Canvas, step_db: float) -> None:
@@ -217,15 +225,25 @@ def _column(canvas: _Canvas, index: int, budget: BudgetView, results: list[Resul
             canvas.add(f'<circle cx="{x:.1f}" cy="{y:.1f}" r="3.2" class="mark-within"/>')
 
 
+def _text_style() -> str:
+    """The labels' CSS, from :data:`BASE_TEXT` and :data:`TEXT_CLASSES` (which also give
+    the sizes and weights their widths are computed with)."""
+    size, _, fill = BASE_TEXT
+    rules = [f'text{{font-family:"DejaVu Sans",sans-serif;font-size:{size:g}px;fill:{fill}}}']
+    for name, (class_size, bold, class_fill) in TEXT_CLASSES.items():
+        parts = ([f"font-size:{class_size:g}px"] if class_size != size else []) + (
+            ["font-weight:bold"] if bold else []) + ([f"fill:{class_fill}"] if class_fill else [])
+        rules.append(f".{name}{{{';'.join(parts)}}}")
+    return "".join(rules)
+
+
 def _style_block(hatch_id: str) -> str:
     return (
         f'<defs><pattern id="{hatch_id}" width="6" height="6" patternUnits="userSpaceOnUse" '
         f'patternTransform="rotate(45)"><rect width="6" height="6" fill="#fbeee6"/>'
         f'<line x1="0" y1="0" x2="0" y2="6" stroke="{OVER_COLOUR}" stroke-width="1.2"/></pattern></defs>'
         '<style>'
-        'text{font-family:"DejaVu Sans",sans-serif;font-size:10px;fill:#222}'
-        '.tick{font-size:9.5px;fill:#555}.joint{font-size:9.5px;fill:#444}'
-        '.end-label{font-weight:bold}.value{font-weight:bold}'
+        + _text_style() +
         '.grid{fill:none;stroke:#dddddd;stroke-width:0.5}.axis{fill:none;stroke:#333;stroke-width:0.8}'
         '.within{fill:#eef3f8;stroke:#9fb3c8;stroke-width:0.5}.over{stroke:#c9a48f;stroke-width:0.5}'
         f'.limit{{stroke:#111;stroke-width:1.8}}'

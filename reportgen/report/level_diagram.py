@@ -26,6 +26,7 @@ from xml.sax.saxutils import escape
 
 from reportgen.engine.budget import Budget, TermKind
 from reportgen.engine.power import PowerBudget
+from reportgen.report import text_width
 from reportgen.report.i18n import ENGLISH, N_, Language
 
 # Drawing guard, not a limit tolerance: the axis ticks are stepped by float subtraction,
@@ -64,6 +65,12 @@ class LevelStep:
     label: str  # already translated text
     share_db: float  # budgeted loss, used only as a proportion [dB]
     sloped: bool = False  # fiber: the level falls along it
+
+
+def _left(x: float, label: str, anchor: str, bold: bool = False) -> str:
+    """The x of a 10-unit label with ``anchor`` at ``x``, drawn from its left end (see
+    :mod:`reportgen.report.text_width`: a ``text-anchor`` costs the PDF two objects)."""
+    return f"{text_width.left_end(x, label, 10.0, anchor, bold):.1f}"
 
 
 def level_steps(budget: Budget | None, labels: Mapping[str, str] = LABELS) -> tuple[LevelStep, ...]:
@@ -170,7 +177,7 @@ def power_level_svg(
     uid = "rg" + hashlib.sha1(power.link_id.encode("utf-8")).hexdigest()[:8]
     out = [
         f'<svg xmlns="http://www.w3.org/2000/svg" width="{width_px}" height="{height_px}" '
-        f'viewBox="0 0 {width_px} {height_px}" role="img" font-family="sans-serif" '
+        f'viewBox="0 0 {width_px} {height_px}" role="img" font-family="DejaVu Sans, sans-serif" '
         f'font-size="10">',
         f"<title>{escape(power.link_id)}: {escape(labels[power.verdict.value])}</title>",
         f'<defs><pattern id="{uid}-hatch" width="6" height="6" patternUnits="userSpaceOnUse" '
@@ -179,8 +186,8 @@ def power_level_svg(
         f'<text x="{left}" y="16" font-size="12" font-weight="bold">'
         + escape(labels["title"].format(wavelength=power.wavelength_nm,
                                         basis=labels[power.basis.value])) + "</text>",
-        f'<text x="{width_px - 8}" y="16" text-anchor="end" font-weight="bold">'
-        f"{escape(labels[power.verdict.value])}</text>",
+        f'<text x="{_left(width_px - 8, labels[power.verdict.value], "end", bold=True)}" y="16" '
+        f'font-weight="bold">{escape(labels[power.verdict.value])}</text>',
     ]
     # receiver window band and its two edges
     y_over, y_sens = y(power.rx_overload_dbm), y(power.rx_min_average_dbm)
@@ -198,11 +205,11 @@ def power_level_svg(
     level = y_top
     while level >= y_bottom - TICK_SLACK_DB:
         out.append(f'<line x1="{left - 4}" y1="{y(level)}" x2="{left}" y2="{y(level)}" '
-                   f'stroke="#000"/><text x="{left - 6}" y="{y(level) + 3}" text-anchor="end">'
-                   f"{_fmt(level, 0, lang=lang)}</text>")
+                   f'stroke="#000"/><text x="{_left(left - 6, _fmt(level, 0, lang=lang), "end")}" '
+                   f'y="{y(level) + 3}">{_fmt(level, 0, lang=lang)}</text>')
         level -= tick_db
-    out.append(f'<text x="12" y="{top + plot_h / 2}" transform="rotate(-90 12 {top + plot_h / 2})" '
-               f'text-anchor="middle">{escape(labels["axis"])}</text>')
+    out.append(f'<text x="{_left(12, labels["axis"], "middle")}" y="{top + plot_h / 2}" '
+               f'transform="rotate(-90 12 {top + plot_h / 2})">{escape(labels["axis"])}</text>')
     # the two level lines
     for series, dash, marker in ((high, "", "circle"), (low, ' stroke-dasharray="6 3"', "square")):
         points = [(xs[0], y(series[0]))]
@@ -226,20 +233,19 @@ def power_level_svg(
         out.append(f'<text x="{xs[0] + 6}" y="{y(value) + (-6 if above else 24)}">'
                    f"{_fmt(value, 2, lang=lang)}</text>")
     for value, above in ((high[-1], True), (low[-1], False)):
-        out.append(f'<text x="{xs[-1] - 6}" y="{y(value) + (-6 if above else 13)}" '
-                   f'text-anchor="end">{_fmt(value, 2, lang=lang)}</text>')
+        out.append(f'<text x="{_left(xs[-1] - 6, _fmt(value, 2, lang=lang), "end")}" '
+                   f'y="{y(value) + (-6 if above else 13)}">{_fmt(value, 2, lang=lang)}</text>')
     # stage names under the plot, staggered so neighbours do not collide
     stage_names = [labels["launch"], *names]
     for i, name in enumerate(stage_names[1:]):
         if not name:
             continue
         x_mid = round((xs[i] + xs[i + 1]) / 2, 1)
-        out.append(f'<text x="{x_mid}" y="{top + plot_h + 14 + 11 * (i % 2)}" '
-                   f'text-anchor="middle">{escape(name)}</text>')
-    out.append(f'<text x="{xs[0]}" y="{top + plot_h + 40}" text-anchor="middle" '
-               f'font-weight="bold">{escape(labels["launch"])}</text>')
-    out.append(f'<text x="{xs[-1]}" y="{top + plot_h + 40}" text-anchor="middle" '
-               f'font-weight="bold">{escape(labels["receiver"])}</text>')
+        out.append(f'<text x="{_left(x_mid, name, "middle")}" y="{top + plot_h + 14 + 11 * (i % 2)}">'
+                   f'{escape(name)}</text>')
+    for x_end, label in ((xs[0], labels["launch"]), (xs[-1], labels["receiver"])):
+        out.append(f'<text x="{_left(x_end, label, "middle", bold=True)}" y="{top + plot_h + 40}" '
+                   f'font-weight="bold">{escape(label)}</text>')
     # legend
     legend_y = 32
     out.append(f'<line x1="{left}" y1="{legend_y}" x2="{left + 24}" y2="{legend_y}" stroke="#000" '
