@@ -14,8 +14,8 @@ from builders import make_link, make_project, well_formed
 from reportgen.report import formats, messages, messages_appendix
 from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, ReportOptions
-from reportgen.report.render import (LazyDocuments, build_report, css_string, squeeze_html,
-                                     squeezed_pieces)
+from reportgen.report.documents import LazyDocuments, squeeze_html, squeezed_pieces
+from reportgen.report.render import build_report, css_string
 from reportgen.report.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
