@@ -13,6 +13,7 @@ import os
 from collections.abc import Mapping
 from datetime import datetime, timezone
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -27,8 +28,8 @@ from reportgen.pdf.cache import (
     encode_entry,
     part_key,
 )
-from reportgen.pdf.engine import render_pdf
-from reportgen.pdf.weasy import render_part
+from reportgen.pdf.engine import RenderPlan, _render_bodies, render_pdf
+from reportgen.pdf.weasy import RenderedPart, render_part
 
 CREATED = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
 CSS = ("<style>@page { size: A6; margin: 10mm } body { font-family: DejaVu Sans; font-size: 9pt }"
@@ -208,3 +209,72 @@ def test_build_options_are_offered_and_checked(capsys: pytest.CaptureFixture[str
     assert "--jobs" in shown and "--no-cache" in shown and "--cluster" in shown
     assert cli.main(["build", "--jobs", "0", "nowhere"]) == 2
     assert "--jobs" in capsys.readouterr().err
+
+
+class _RecordingSlots:
+    """One slot that renders nothing: it records what the engine does, and a part sent
+    comes back only when the engine blocks for it."""
+
+    def __init__(self, events: list[str]) -> None:
+        self.events = events
+        self.running: list[int] = []
+
+    def free(self) -> bool:
+        return not self.running
+
+    def busy(self) -> bool:
+        return bool(self.running)
+
+    def send(self, index: int, html: str, root: Path, xml_first: bool) -> None:
+        self.events.append(f"send {index}")
+        self.running.append(index)
+
+    def prepare(self) -> None:
+        pass
+
+    def wait(self, block: bool = True) -> list[tuple[int, RenderedPart]]:
+        if not block:
+            return []
+        index = self.running.pop()
+        self.events.append(f"back {index}")
+        return [(index, RenderedPart(b"", (), {}, ()))]
+
+    def close(self) -> None:
+        pass
+
+
+class _RecordingPlan(RenderPlan):
+    def slots(self, workers: int | None = None) -> Any:
+        return self.recorder
+
+
+class _HalfCache:
+    """A part cache holding every part but those named ``missing``."""
+
+    def __init__(self, bodies: list[str], missing: set[int], events: list[str]) -> None:
+        self.keys = {part_key(html, Path("/"), False): index for index, html in enumerate(bodies)}
+        self.missing, self.events = missing, events
+
+    def get(self, key: str, root: Path) -> RenderedPart | None:
+        index = self.keys[key]
+        self.events.append(f"look up {index}")
+        return None if index in self.missing else RenderedPart(b"", (), {}, ())
+
+    def put(self, key: str, part: RenderedPart) -> None:
+        self.events.append(f"store {self.keys[key]}")
+
+
+def test_cached_parts_are_found_while_the_changed_ones_render() -> None:
+    # A rebuild must not wait for a changed part before it looks up the next ones: with
+    # the only slot busy rendering part 0, parts 1-4 are found in the cache, and part 3
+    # (missing) is held until the slot frees.
+    bodies = [body(f"part {index}") for index in range(5)]
+    events: list[str] = []
+    plan = _RecordingPlan(1, _HalfCache(bodies, {0, 3}, events))  # type: ignore[arg-type]
+    object.__setattr__(plan, "recorder", _RecordingSlots(events))
+    _render_bodies(bodies, Path("/"), 1, lambda done: events.append(f"done {done}"), False,
+                   plan=plan)
+    assert events == ["look up 0", "send 0",
+                      "look up 1", "done 1", "look up 2", "done 2", "look up 3", "look up 4",
+                      "done 3", "back 0", "store 0", "done 4", "send 3", "back 3", "store 3",
+                      "done 5"]

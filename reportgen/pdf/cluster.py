@@ -257,14 +257,17 @@ class ClusterSlots:
         self.tasks[future] = task
         future.add_done_callback(lambda _future: self.arrived.set())
 
-    def wait(self) -> list[tuple[int, RenderedPart]]:
+    def wait(self, block: bool = True) -> list[tuple[int, RenderedPart]]:
         while True:
-            self.arrived.wait(POLL_S)
+            if block:
+                self.arrived.wait(POLL_S)
             self.arrived.clear()
             done = [future for future in self.tasks if future.done()]
             if done:
                 self.no_worker_since = None
                 break
+            if not block:
+                return []
             self._watch()
         finished = []
         for future in done:

@@ -50,6 +50,10 @@ FrontMatter = Callable[[Mapping[str, int], int], str]
 Progress = Callable[[int, int], None]
 
 MAX_FRONT_RENDERS: Final = 6
+# Parts looked up ahead in the part cache while every slot is busy, at most this many
+# of them not found there and held (their HTML) until a slot frees: a rebuild finds its
+# cached parts while the changed ones render, a full build keeps a few documents ready.
+LOOKAHEAD_PARTS: Final = 8
 PROBE_PAGE_NUMBER: Final = 999        # stands for every page number in the first estimate
 
 
@@ -190,9 +194,9 @@ class _LocalSlots:
     def prepare(self) -> None:
         self.pool.prepare()
 
-    def wait(self) -> list[tuple[int, RenderedPart]]:
+    def wait(self, block: bool = True) -> list[tuple[int, RenderedPart]]:
         finished = []
-        for receiver in wait(list(self.running)):
+        for receiver in wait(list(self.running), None if block else 0):
             index, process = self.running.pop(receiver)
             finished.append((index, _receive_part(receiver, index, process)))
         return finished
@@ -214,7 +218,7 @@ class Slots(Protocol):
     def busy(self) -> bool: ...
     def send(self, index: int, html: str, root: Path, xml_first: bool) -> None: ...
     def prepare(self) -> None: ...
-    def wait(self) -> list[tuple[int, RenderedPart]]: ...
+    def wait(self, block: bool = True) -> list[tuple[int, RenderedPart]]: ...
     def close(self) -> None: ...
 
 
@@ -258,20 +262,10 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     cache = plan.cache
     slots = plan.slots(workers)
     waiting = deque(range(len(bodies)))
+    ready: deque[tuple[int, str, str | None]] = deque()  # (index, HTML, cache key): to send
     rendered: list[RenderedPart | None] = [None] * len(bodies)
     keys: dict[int, str] = {}
-    looked_up: dict[int, RenderedPart | None] = {}
-    arrived: list[int] = []
     done = 0
-
-    def lookup(index: int) -> RenderedPart | None:
-        """The part from the cache, or None; looked up once per part."""
-        if cache is None:
-            return None
-        if index not in looked_up:
-            keys[index] = part_key(bodies[index], root, xml_first)
-            looked_up[index] = cache.get(keys[index], root)
-        return looked_up[index]
 
     def finished(index: int, part: RenderedPart) -> None:
         nonlocal done
@@ -280,26 +274,45 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
         done += 1
         on_done(done)
 
+    def look_up_next() -> None:
+        """Take the next waiting part: finished at once when the cache has it, else ready."""
+        index = waiting.popleft()
+        html = bodies[index]
+        key = part_key(html, root, xml_first) if cache is not None else None
+        part = cache.get(key, root) if cache is not None and key is not None else None
+        if part is not None:
+            finished(index, part)
+        else:
+            ready.append((index, html, key))
+
+    def take_arrivals(block: bool) -> None:
+        for index, part in slots.wait(block):
+            if cache is not None:
+                cache.put(keys.pop(index), part)
+            finished(index, part)
+
+    arrived: list[int] = []
     try:
-        while waiting or slots.busy():
-            while waiting and slots.free():
-                index = waiting.popleft()
-                part = lookup(index)
-                looked_up.pop(index, None)
-                if part is not None:
-                    finished(index, part)
-                else:
-                    slots.send(index, bodies[index], root, xml_first)
-            # the slots are busy again: now the work this process does meanwhile
-            if waiting and lookup(waiting[0]) is None:
-                slots.prepare()
-                bodies[waiting[0]]  # a lazy sequence renders the next document now
+        while waiting or ready or slots.busy():
+            while slots.free() and (ready or waiting):
+                if not ready:
+                    look_up_next()
+                    continue
+                index, html, key = ready.popleft()
+                if key is not None:
+                    keys[index] = key
+                slots.send(index, html, root, xml_first)
             _hand_over(arrived, rendered, on_part)
-            if slots.busy():
-                for index, part in slots.wait():
-                    if cache is not None:
-                        cache.put(keys[index], part)
-                    finished(index, part)
+            if waiting and len(ready) < LOOKAHEAD_PARTS:
+                # every slot busy: look the next part up meanwhile (a lazy sequence
+                # renders its document now), and a spare worker is started for it
+                look_up_next()
+                if ready:
+                    slots.prepare()
+                if slots.busy():
+                    take_arrivals(block=False)
+            elif slots.busy():
+                take_arrivals(block=True)
         _hand_over(arrived, rendered, on_part)
     finally:
         slots.close()
