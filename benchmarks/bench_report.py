@@ -20,8 +20,12 @@ Modes:
   above 500 only with ``--single-2000``.
 
 Each measurement runs in a fresh child process; a sampler polls /proc every 0.1 s and
-sums the resident memory (RSS) of that child and all its descendants (worker processes
-included). The peak of that sum is reported. Targets (see the PDF engine's brief): the
+sums the memory of that child and all its descendants (worker processes included), two
+ways: the resident memory (RSS), which counts a page shared by several processes once in
+each (the worker processes share most of theirs with the fork server they were forked
+from), and the proportional set size (PSS, /proc/PID/smaps_rollup), which splits a
+shared page among its sharers: the sum of PSS is the memory the tree occupies. The peak
+of each sum is reported, and the build process's own RSS at the PSS peak. Targets (see the PDF engine's brief): the
 2,000-link build in under half the single-render time, peak under 2 GB, and time per
 link at 2,000 at most 1.2x the time per link at 100.
 """
@@ -77,13 +81,25 @@ def _children_map() -> dict[int, list[int]]:
     return children
 
 
-def sample_tree(pid: int, cpu_s: dict[int, float]) -> int:
-    """Return the resident memory of ``pid`` and its descendants [bytes].
+def _pss_b(pid: int) -> int:
+    """The proportional set size of ``pid`` [bytes] (0 once it has ended)."""
+    try:
+        for line in Path(f"/proc/{pid}/smaps_rollup").read_text().splitlines():
+            if line.startswith("Pss:"):
+                return int(line.split()[1]) * 1024
+    except (OSError, ValueError):
+        pass
+    return 0
+
+
+def sample_tree(pid: int, cpu_s: dict[int, float]) -> tuple[int, int, int]:
+    """Return the RSS and the PSS summed over ``pid`` and its descendants, and the RSS
+    of ``pid`` alone [bytes].
 
     Also records in ``cpu_s`` the CPU time (user + system) seen so far for each of them.
     """
     children = _children_map()
-    total, stack = 0, [pid]
+    rss, pss, own, stack = 0, 0, 0, [pid]
     while stack:
         current = stack.pop()
         try:
@@ -92,9 +108,12 @@ def sample_tree(pid: int, cpu_s: dict[int, float]) -> int:
             cpu_s[current] = (int(fields[11]) + int(fields[12])) / CLOCK_TICKS_PER_S
         except (OSError, IndexError, ValueError):
             resident_pages = 0
-        total += resident_pages * PAGE_SIZE_B
+        rss += resident_pages * PAGE_SIZE_B
+        pss += _pss_b(current)
+        if current == pid:
+            own = resident_pages * PAGE_SIZE_B
         stack.extend(children.get(current, []))
-    return total
+    return rss, pss, own
 
 
 def run_measured(args: list[str]) -> dict[str, Any]:
@@ -102,14 +121,17 @@ def run_measured(args: list[str]) -> dict[str, Any]:
     started_s = time.perf_counter()
     child = subprocess.Popen([sys.executable, __file__, *args], stdout=subprocess.PIPE,
                              text=True, env={**os.environ, "PYTHONPATH": str(REPO)})
-    peak_b = 0
+    peak_b = peak_pss_b = own_at_peak_b = 0
     cpu_s: dict[int, float] = {}
     stop = threading.Event()
 
     def sample() -> None:
-        nonlocal peak_b
+        nonlocal peak_b, peak_pss_b, own_at_peak_b
         while not stop.is_set():
-            peak_b = max(peak_b, sample_tree(child.pid, cpu_s))
+            rss_b, pss_b, own_b = sample_tree(child.pid, cpu_s)
+            peak_b = max(peak_b, rss_b)
+            if pss_b > peak_pss_b:
+                peak_pss_b, own_at_peak_b = pss_b, own_b
             stop.wait(SAMPLE_PERIOD_S)
 
     sampler = threading.Thread(target=sample, daemon=True)
@@ -121,6 +143,8 @@ def run_measured(args: list[str]) -> dict[str, Any]:
         raise SystemExit(f"measurement {args} failed with status {child.returncode}")
     result = json.loads(output.strip().splitlines()[-1])
     result["peak_tree_rss_gb"] = peak_b / 1e9
+    result["peak_tree_pss_gb"] = peak_pss_b / 1e9
+    result["build_process_rss_at_pss_peak_gb"] = own_at_peak_b / 1e9
     result["tree_cpu_s"] = sum(cpu_s.values())  # misses each process's last < 0.1 s
     result["child_wall_s"] = time.perf_counter() - started_s
     return result
@@ -298,7 +322,9 @@ def _print_row(mode: str, links: int, per_part: int, result: dict[str, Any]) -> 
     print(f"{mode:<17}{links:>6} links{part} {result['pages']:>6} pages "
           f"{result['wall_s']:8.1f} s {per_link_ms:7.1f} ms/link "
           f"cpu {result['tree_cpu_s']:7.1f} s "
-          f"peak {result['peak_tree_rss_gb']:5.2f} GB  (load {os.getloadavg()[0]:.1f})",
+          f"peak RSS {result['peak_tree_rss_gb']:5.2f} GB, PSS {result['peak_tree_pss_gb']:5.2f} GB "
+          f"(build process {result['build_process_rss_at_pss_peak_gb']:4.2f} GB)  "
+          f"(load {os.getloadavg()[0]:.1f})",
           flush=True)
 
 
@@ -307,7 +333,8 @@ def _print_targets(rows: list[tuple[str, int, int, dict[str, Any]]]) -> None:
               if mode in ("build", "synthetic")}
     single = {links: r for mode, links, _, r in rows if mode.startswith("single")}  # last wins
     for (links, per_part), result in sorted(parted.items()):
-        notes = [f"peak {'<' if result['peak_tree_rss_gb'] < 2 else '>='} 2 GB"]
+        notes = [f"peak of all processes {'<' if result['peak_tree_pss_gb'] < 2 else '>='} 2 GB "
+                 f"(PSS; RSS summed: {result['peak_tree_rss_gb']:.2f} GB)"]
         if (100, per_part) in parted and links != 100:
             ratio = (result["wall_s"] / links) / (parted[(100, per_part)]["wall_s"] / 100)
             notes.append(f"per-link time {ratio:.2f}x that at 100 (target <= 1.2)")

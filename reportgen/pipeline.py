@@ -335,23 +335,33 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
         from reportgen.pdf.sign import sign_pdf
 
         seal = partial(sign_pdf, key=sign_key)
-    # report.html goes to a temporary file (deleted when closed), not into memory: it
-    # is 13 kB a link, and held as one text it took 1.7 GB at 20,000 links.
+    # report.html and report.pdf go to temporary files (deleted when closed), not into
+    # memory: report.html is 13 kB a link (held as one text it took 1.7 GB at 20,000
+    # links), report.pdf about 10 kB a page.
     with tempfile.TemporaryFile(prefix="reportgen-html-") as html_file, \
+            tempfile.TemporaryFile(prefix="reportgen-pdf-") as pdf_file, \
             ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-html") as thread:
         html = thread.submit(document.write_html, html_file)
-        pdf_bytes = pdf.render_pdf(document.front, document.bodies, root=outcome.project.root,
-                                   title=outcome.project.info.title, created=now,
-                                   page_label=label, language=lang.code, progress=progress,
-                                   xml_first=document.own_templates,
-                                   author=outcome.project.info.contractor.name,
-                                   attachments=attachments, seal=seal,
-                                   workers=jobs if jobs is not None else default_jobs(),
-                                   cache=(PartCache.in_output_folder(cache_dir)
-                                          if cache_dir is not None else None),
-                                   cluster=cluster)
+
+        def release() -> None:
+            """Once every page is rendered: wait for report.html, then drop the documents
+            (the view model and its drawings) before the PDF is finished."""
+            nonlocal document
+            html.result()
+            del document
+
+        pdf.write_pdf(document.front, document.bodies, into=pdf_file,
+                      root=outcome.project.root, title=outcome.project.info.title, created=now,
+                      page_label=label, language=lang.code, progress=progress,
+                      xml_first=document.own_templates,
+                      author=outcome.project.info.contractor.name,
+                      attachments=attachments, seal=seal,
+                      workers=jobs if jobs is not None else default_jobs(),
+                      cache=(PartCache.in_output_folder(cache_dir)
+                             if cache_dir is not None else None),
+                      cluster=cluster, release=release)
         html.result()
-        outputs: dict[str, Output] = {**made, "report.html": html_file, "report.pdf": pdf_bytes}
+        outputs: dict[str, Output] = {**made, "report.html": html_file, "report.pdf": pdf_file}
         write(outputs)
     return tuple(outputs)
 

@@ -6,8 +6,10 @@ folder (part cache) gives the same bytes, in all four outputs, as a build from s
 
 from __future__ import annotations
 
+import gc
 import hashlib
 import shutil
+import weakref
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -108,3 +110,33 @@ def test_rebuild_with_our_templates_renders_only_the_pieces_a_result_touches(tmp
     _edit(project / "results" / "day1.csv", "L00001,1,850,ab,1.00", "L00001,1,850,ab,1.40")
     reused = _rebuild_equals_full_build(project, out, tmp_path / "full")
     assert len(reused) >= len(entries) - 5
+
+
+@pytest.mark.slow
+def test_the_documents_are_dropped_before_the_pdf_is_finished(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The finishing step is the merge's largest: the view model and the documents made
+    # from it (their drawings) must be gone by then, and report.html whole.
+    from reportgen.pdf import engine
+    from reportgen.report import render
+
+    made: list[weakref.ref[render.ReportDocument]] = []
+    real_build_report, real_finish = render.build_report, engine.finish_pdf
+    seen: list[bool] = []
+
+    def build_report(*args: object, **kwargs: object) -> render.ReportDocument:
+        document = real_build_report(*args, **kwargs)  # type: ignore[arg-type]
+        made.append(weakref.ref(document))
+        return document
+
+    def finish_pdf(*args: object, **kwargs: object) -> None:
+        gc.collect()
+        seen.append(made[0]() is None)
+        real_finish(*args, **kwargs)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(render, "build_report", build_report)
+    monkeypatch.setattr(engine, "finish_pdf", finish_pdf)
+    root = write_large_project(tmp_path / "project", links=12)
+    pipeline.build(root, tmp_path / "out", now=NOW, jobs=2, cache=False)
+    assert seen == [True]
+    assert (tmp_path / "out" / "report.html").read_text(encoding="utf-8").rstrip().endswith("</html>")

@@ -17,6 +17,7 @@ its page count and every page number it asked for are consistent.
 from __future__ import annotations
 
 import gc
+import io
 import logging
 import multiprocessing
 import time
@@ -31,7 +32,7 @@ from functools import partial
 from multiprocessing.connection import Connection, wait
 from multiprocessing.process import BaseProcess
 from pathlib import Path
-from typing import TYPE_CHECKING, Final, Protocol
+from typing import TYPE_CHECKING, Any, BinaryIO, Final, Protocol
 
 from reportgen.errors import ReportgenError, WorkerTraceback
 from reportgen.pdf.archive import Attachment
@@ -409,14 +410,21 @@ def _cycle_collector_paused() -> Iterator[None]:
             gc.enable()
 
 
-def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: str,
-               page_label: str = "Page {page} of {pages}", created: datetime,
-               workers: int = 2, progress: Progress | None = None,
-               xml_first: bool = False, cache: PartCache | None = None,
-               cluster: str | None = None, author: str = "",
-               attachments: Sequence[Attachment] = (), seal: Seal | None = None,
-               language: str = "en") -> bytes:
-    """Render the front matter and body parts into one PDF and return its bytes.
+def render_pdf(front: FrontMatter, bodies: Sequence[str], **options: Any) -> bytes:
+    """:func:`write_pdf` into memory: the PDF's bytes (the same ``options``, but ``into``)."""
+    into = io.BytesIO()
+    write_pdf(front, bodies, into=into, **options)
+    return into.getvalue()
+
+
+def write_pdf(front: FrontMatter, bodies: Sequence[str], *, into: BinaryIO, root: Path,
+              title: str, page_label: str = "Page {page} of {pages}", created: datetime,
+              workers: int = 2, progress: Progress | None = None,
+              xml_first: bool = False, cache: PartCache | None = None,
+              cluster: str | None = None, author: str = "",
+              attachments: Sequence[Attachment] = (), seal: Seal | None = None,
+              language: str = "en", release: Callable[[], None] | None = None) -> None:
+    """Render the front matter and body parts into one PDF, written into ``into``.
 
     Parameters
     ----------
@@ -456,6 +464,10 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
         The archive file's author and embedded files (:mod:`reportgen.pdf.archive`).
     seal
         Signs the finished file (see :func:`reportgen.pdf.merge.finish_pdf`).
+    release
+        Called once every page is rendered, before the file is finished (the merge's
+        largest step): the caller drops what it no longer needs, such as the report's
+        documents; ``front`` and ``bodies`` are not read after it.
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1 (got {workers})")
@@ -486,9 +498,12 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
                                                partial(_render_isolated, xml_first=xml_first,
                                                        plan=plan))
                 front_done_s = time.perf_counter()
-                pdf = finish_pdf(copier, front_part, body_parts, title=title,
-                                 page_label=page_label, created=created, author=author,
-                                 language=language, attachments=attachments, seal=seal)
+                del front, bodies  # this function's references: ``release`` frees the rest
+                if release is not None:
+                    release()
+                finish_pdf(copier, front_part, body_parts, title=title,
+                           page_label=page_label, created=created, author=author,
+                           language=language, attachments=attachments, seal=seal, into=into)
     LOGGER.info("PDF: bodies and front matter %.1f s, front matter again %.1f s, "
                 "finishing %.1f s", bodies_done_s - started_s,
                 front_done_s - bodies_done_s, time.perf_counter() - front_done_s)
@@ -500,7 +515,6 @@ def render_pdf(front: FrontMatter, bodies: Sequence[str], *, root: Path, title: 
                     stats.ignored)
         cache.prune()
     report(total_steps)
-    return pdf
 
 
 @contextmanager

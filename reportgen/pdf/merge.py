@@ -16,6 +16,7 @@ directly, parts dropped once copied).
 from __future__ import annotations
 
 import hashlib
+import io
 import logging
 import shutil
 import tempfile
@@ -25,7 +26,7 @@ from collections.abc import Callable, Mapping, Sequence
 from datetime import datetime
 from pathlib import Path
 from types import TracebackType
-from typing import Final
+from typing import BinaryIO, Final
 
 import pikepdf
 import weasyprint
@@ -236,11 +237,10 @@ class PageCopier:
         path.write_bytes(front.pdf)
         self._copy(path, 0)
 
-    def save(self, **options: object) -> bytes:
-        """The merged file's bytes (``options``: :func:`reportgen.pdf.archive.save_options`)."""
-        path = self._folder / "merged.pdf"
-        self.pdf.save(path, **options)
-        return path.read_bytes()
+    def save(self, into: BinaryIO, **options: object) -> None:
+        """Write the merged file into ``into`` (``options``:
+        :func:`reportgen.pdf.archive.save_options`)."""
+        self.pdf.save(into, **options)
 
     def close(self) -> None:
         self.pdf.close()
@@ -364,8 +364,9 @@ class IdenticalResources:
 def finish_pdf(copier: PageCopier, front: RenderedPart, bodies: Sequence[RenderedPart], *,
                title: str, page_label: str, created: datetime, compact: bool = True,
                author: str = "", attachments: Sequence[Attachment] = (),
-               seal: Seal | None = None, language: str = "en") -> bytes:
-    """Put the front matter before the bodies copied by ``copier``, finish, return the bytes.
+               seal: Seal | None = None, language: str = "en", into: BinaryIO) -> None:
+    """Put the front matter before the bodies copied by ``copier``, finish, and write the
+    file into ``into`` (a file: the finished PDF is not held in memory, unless signed).
 
     The structure trees of the bodies (the copier's) get the front matter's, and the
     whole tree is kept only when every part is tagged and the tree is whole
@@ -408,15 +409,18 @@ def finish_pdf(copier: PageCopier, front: RenderedPart, bodies: Sequence[Rendere
     make_archival(pdf, title=title, author=author, creator=CREATOR, producer=PRODUCER,
                   created=created, attachments=attachments, language=language)
     clock.step("archive file (PDF/A, attachments)")
-    data = copier.save(**save_options(compact))
-    clock.step("qpdf write")
-    if seal is not None:
-        data = seal(data, {name: (page, anchor.x_pt, anchor.y_pt)
-                           for name, (page, anchor) in anchors.items()})
+    if seal is None:
+        copier.save(into, **save_options(compact))
+        clock.step("qpdf write")
+    else:
+        unsigned = io.BytesIO()
+        copier.save(unsigned, **save_options(compact))
+        clock.step("qpdf write")
+        into.write(seal(unsigned.getvalue(), {name: (page, anchor.x_pt, anchor.y_pt)
+                                             for name, (page, anchor) in anchors.items()}))
         clock.step("signing")
     LOGGER.debug("finishing the PDF (%d pages, %d identical objects shared): %s", total,
                  copier.objects_shared, clock)
-    return data
 
 
 class _StepClock:
