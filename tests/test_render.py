@@ -204,17 +204,17 @@ def test_report_html_written_in_pieces_equals_the_whole_text(tmp_path):
 
 
 def test_a_large_register_is_cut_into_parts_each_row_once(monkeypatch):
-    from reportgen.report import render as render_module
+    from reportgen.report import register_pages
 
-    monkeypatch.setattr(render_module, "REGISTER_ROWS_PER_PART", 10)
-    links = [make_link(f"R-{n:02d}") for n in range(25)]
-    results = [dict(link_id=f"R-{n:02d}", wavelength_nm=850, loss_db=1.0) for n in range(25)]
+    monkeypatch.setattr(register_pages, "PAGES_PER_PART", 1)
+    links = [make_link(f"R-{n:03d}") for n in range(120)]
+    results = [dict(link_id=f"R-{n:03d}", wavelength_nm=850, loss_db=1.0) for n in range(120)]
     document = render(make_project(links, results))
     pieces = [body for body in document.bodies[:document.front_bodies]
-              if 'class="grid register-table"' in body]
-    assert len(pieces) == 3  # 25 rows in runs of 10
+              if 'class="grid register-table' in body]
+    assert len(pieces) == 3  # about 45 rows to a planned A4 page, a page to a part
     assert [piece.count('id="register"') for piece in pieces] == [1, 0, 0]  # heading once
-    rows = [row for piece in pieces for row in re.findall(r'<td class="link-id"><a href="#(link-r-\d\d)"', piece)]
-    assert rows == [f"link-r-{n:02d}" for n in range(25)]
+    rows = [row for piece in pieces for row in re.findall(r'<td class="link-id"><a href="#(link-r-\d+)"', piece)]
+    assert rows == [f"link-r-{n:03d}" for n in range(120)]
     # report.html keeps one register with every row
-    assert document.html.count('class="grid register-table"') == 1
+    assert document.html.count('class="grid register-table') == 1

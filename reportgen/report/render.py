@@ -46,6 +46,7 @@ from reportgen.report import i18n
 from reportgen.report.i18n import ENGLISH, Language
 from reportgen.report.messages_appendix import customer_status
 from reportgen.report.messages_findings import RULE_TEXT, THRESHOLD_UNIT, finding_text
+from reportgen.report.register_pages import RegisterPlanner, RegisterRows, register_runs
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.findings import Findings
 from reportgen.engine.judge import Judgement
@@ -68,9 +69,7 @@ MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
 MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
-# Register rows per PDF part (about 22 pages): WeasyPrint's memory grows with the document,
-# and the register of 20,000 links in one part would be 440 pages in one process.
-REGISTER_ROWS_PER_PART: Final = 1000
+# The register is cut into PDF parts of a few planned pages (reportgen.report.register_pages).
 # The front matter and the appendix of our templates are PDF parts of a few pieces each,
 # cut where a page break is anyway, so that a rebuild renders again only the piece that
 # changed (the part cache, reportgen.pdf.cache): the cover holds the manifest digest,
@@ -152,26 +151,6 @@ def split_groups(groups: tuple[MatrixGroup, ...],
     if current or not parts:
         parts.append(tuple(current))
     return parts
-
-
-@dataclass(frozen=True)
-class RegisterRows:
-    """The rows of the link register one document shows (the template's ``register_rows``):
-    all of them, or one run of a register cut into PDF parts; ``first`` carries the
-    heading, ``last`` is followed by the applications of a small project."""
-
-    links: tuple[LinkView, ...]
-    first: bool = True
-    last: bool = True
-
-
-def register_runs(links: tuple[LinkView, ...], size: int | None = None) -> list[RegisterRows]:
-    """The register cut into runs of at most ``size`` rows (default
-    :data:`REGISTER_ROWS_PER_PART`; at least one run)."""
-    size = size or REGISTER_ROWS_PER_PART
-    starts = range(0, max(len(links), 1), size)
-    return [RegisterRows(links[start:start + size], first=start == 0,
-                         last=start + size >= len(links)) for start in starts]
 
 
 def css_string(text: object) -> Markup:
@@ -384,6 +363,17 @@ class _Renderer:
                            section=section)
 
 
+def register_pieces(view: ReportView, lang: Language = ENGLISH) -> list[RegisterRows]:
+    """The register's PDF parts: its pages planned (:mod:`reportgen.report.register_pages`),
+    a few to a part."""
+    words = messages.Words(lang)
+    intro = words["register_intro"]
+    if view.finding_counts and view.finding_counts.get("error"):  # as the template prints it
+        intro += " " + words.format("register_errors_key", mark=words["mark_sev_error"])
+    planner = RegisterPlanner(view.paper, view.length_unit, lang)
+    return register_runs(planner.pages(view.links, intro))
+
+
 def language_of(project: Project, language: str | None = None) -> Language:
     """The report's language: ``language`` when given (``build --language``), else the
     project's ``report.language`` (default English)."""
@@ -424,7 +414,7 @@ def build_report(
     makers: list[Callable[[], str]] = []
     if pieces:
         for section in FRONT_SECTIONS[1:]:
-            runs = register_runs(view.links) if section == "register" else [None]
+            runs = register_pieces(view, lang) if section == "register" else [None]
             makers += [functools.partial(renderer.render, "front", section=section,
                                          register_rows=rows) for rows in runs]
     first_run = len(makers)
