@@ -143,8 +143,32 @@ def test_margins_chart_of_many_results_draws_far_fewer_dots_and_every_failure():
     failing = sum(1 for link in view.links for r in link.results if r.verdict == "fail")
     assert failing == 40
     assert failing in counts.values()  # the failures' triangles: every one drawn
-    dots = max(counts.values())  # the passing margins' circles (tick marks are the others)
-    assert dots < 0.5 * (4000 - failing)
+    # the passing margins' circles: one path, a closed subpath per circle
+    dots = max(path.get("d", "").count("M") for path in root.iter(f"{SVG}path"))
+    assert 100 < dots < 0.5 * (4000 - failing)
+
+
+def test_the_dots_are_circles_of_the_scatter_markers_size_in_one_path():
+    # A scatter marker's size s is its area in square points: s = 12 draws a circle
+    # sqrt(12) = 3.464 pt across (matplotlib's scatter docs, "s: marker size in points**2"
+    # meaning the marker's width squared).
+    patch = charts.dots_patch([(10.0, 20.0), (30.0, 20.0)], 12)
+    path = patch.get_path()
+    assert list(path.codes).count(path.MOVETO) == 2
+    extents = path.get_extents()
+    assert (extents.x0, extents.x1) == pytest.approx((10 - 1.732, 30 + 1.732), abs=1e-3)
+    assert (extents.y0, extents.y1) == pytest.approx((20 - 1.732, 20 + 1.732), abs=1e-3)
+    # a point of the curve halfway round a quarter: the four-curve circle's error is tiny
+    start, one, two, end = path.vertices[0:4] - (10.0, 20.0)
+    t = 0.5
+    mid = (1 - t) ** 3 * start + 3 * (1 - t) ** 2 * t * one + 3 * (1 - t) * t ** 2 * two + t ** 3 * end
+    assert (mid[0] ** 2 + mid[1] ** 2) ** 0.5 == pytest.approx(1.732, rel=1e-3)
+
+
+def test_chart_path_data_is_written_to_a_hundredth_of_a_point():
+    svg = '<svg><path d="M 175.938545 70.820401 L -0.004 10.5 z"/><text x="1.23456">a</text></svg>'
+    match = charts._PATH_DATA.search(svg)
+    assert charts._rounded_path(match) == ' d="M 175.94 70.82 L -0 10.5 z"'
 
 
 @pytest.mark.parametrize("label, bold", [("limit 2.33", True), ("850 nm", False), ("0", False),
