@@ -14,8 +14,9 @@ from builders import make_link, make_project
 from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, Project, ReportLanguage, ReportOptions
 from reportgen.pdf.weasy import render_part
-from reportgen.report import register_pages
-from reportgen.report.register_pages import RegisterPlanner, lines_needed, register_runs
+from reportgen.report import page_plan
+from reportgen.report.page_plan import lines_needed
+from reportgen.report.register_pages import RegisterPlanner, register_runs
 from reportgen.report.render import ReportDocument, build_report
 from reportgen.report.text_width import text_width
 from reportgen.report.viewmodel import LinkView, build_view
@@ -26,8 +27,8 @@ ROW = re.compile(r'<td class="link-id"><a href="#([^"]+)"')
 
 def test_a_text_that_fits_takes_one_line_and_wraps_at_a_space() -> None:
     size = 7.8
-    both = register_pages.WIDTH_SLACK * text_width("alpha beta", size)
-    one = register_pages.WIDTH_SLACK * text_width("alpha", size)
+    both = page_plan.WIDTH_SLACK * text_width("alpha beta", size)
+    one = page_plan.WIDTH_SLACK * text_width("alpha", size)
     assert lines_needed("alpha beta", both + 1, size) == 1
     assert lines_needed("alpha beta", (one + both) / 2, size) == 2
     assert lines_needed("alpha beta", 1000, size, wrap=False) == 1
@@ -36,7 +37,7 @@ def test_a_text_that_fits_takes_one_line_and_wraps_at_a_space() -> None:
 def test_a_word_wider_than_its_box_is_broken_anywhere() -> None:
     # overflow-wrap: anywhere (report.css .grid td): ten "m" in a box four "m" wide
     size = 10.0
-    four = register_pages.WIDTH_SLACK * text_width("mmmm", size)
+    four = page_plan.WIDTH_SLACK * text_width("mmmm", size)
     assert lines_needed("m" * 10, four + 0.01, size) == 3
     assert lines_needed("m" * 10, four + 0.01, size, wrap=False) == 1
 

@@ -204,9 +204,9 @@ def test_report_html_written_in_pieces_equals_the_whole_text(tmp_path):
 
 
 def test_a_large_register_is_cut_into_parts_each_row_once(monkeypatch):
-    from reportgen.report import register_pages
+    from reportgen.report import page_plan
 
-    monkeypatch.setattr(register_pages, "PAGES_PER_PART", 1)
+    monkeypatch.setattr(page_plan, "PAGES_PER_PART", 1)
     links = [make_link(f"R-{n:03d}") for n in range(120)]
     results = [dict(link_id=f"R-{n:03d}", wavelength_nm=850, loss_db=1.0) for n in range(120)]
     document = render(make_project(links, results))

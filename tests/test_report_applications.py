@@ -14,9 +14,8 @@ from reportgen.report import view_apps
 from reportgen.engine.applications import assess_project
 from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
-from reportgen.report.render import build_report, split_groups
+from reportgen.report.render import build_report
 from reportgen.inputs.project import load_project
-from reportgen.report.view_apps import MatrixGroup, MatrixRow
 from reportgen.report.viewmodel import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
@@ -186,20 +185,14 @@ def test_large_project_gets_a_part_of_its_own(monkeypatch):
     # just before the appendix (a built project has one more part after it: the list of
     # its input files; this one was made in memory)
     assert 'id="appendix"' in doc.bodies[-1]
-    assert len(parts) == 1 and doc.bodies[-2] is parts[0]
+    # the power list, then the matrix in parts of its own (reportgen.report.matrix_pages)
+    assert len(parts) == 2 and doc.bodies[-3:-1] == parts
     assert 'id="applications" data-bookmark=' in parts[0]
+    assert messages.TEXT["matrix_heading"] not in parts[0]
+    assert messages.TEXT["matrix_heading"] in parts[1] and 'class="grid matrix"' in parts[1]
     for part in doc.bodies:
         well_formed(part)
     assert '<a href="#applications">' in front_matter(doc)
-
-
-def test_split_groups_cuts_rows_and_marks_continuations():
-    rows = tuple(MatrixRow(f"L{i}", f"link-l{i}", ()) for i in range(5))
-    groups = (MatrixGroup("OM4", ("10GBASE-SR",), rows[:3]), MatrixGroup("OS2", (), rows[3:]))
-    parts = split_groups(groups, size=2)
-    assert [[len(g.rows) for g in part] for part in parts] == [[2], [1, 1], [1]]
-    assert [[g.continued for g in part] for part in parts] == [[False], [True, False], [True]]
-    assert split_groups((), size=2) == [()]
 
 
 def test_demo_project_power_verdicts():

@@ -55,13 +55,18 @@ def figure_to_svg(fig: Figure) -> str:
 # matplotlib writes path coordinates with six decimals; two (0.01 pt, 3.5 micrometres)
 # are far finer than print, and the margins chart's dots are thousands of coordinates.
 _PATH_DATA: Final = re.compile(r' d="([^"]*)"')
-_DECIMAL: Final = re.compile(r"-?\d+\.\d{3,}")
 
 
 def _rounded_path(match: re.Match[str]) -> str:
-    data = _DECIMAL.sub(lambda number: f"{float(number.group()):.2f}".rstrip("0").rstrip("."),
-                        match.group(1))
-    return f' d="{data}"'
+    """A ``d`` attribute with its numbers to two decimals (matplotlib separates every
+    command letter and number by a space)."""
+    return ' d="' + " ".join(_two_decimals(token) for token in match.group(1).split(" ")) + '"'
+
+
+def _two_decimals(token: str) -> str:
+    if "." not in token:
+        return token  # a command letter or a whole number
+    return f"{float(token):.2f}".rstrip("0").rstrip(".")
 
 
 def _figure(width_in: float, height_in: float) -> Figure:

@@ -1,21 +1,5 @@
-"""The link register's pages, planned before it is rendered.
-
-A rebuild renders again only the PDF parts whose HTML changed (reportgen.pdf.cache), and
-nearly every changed result changes one row of the register (the link's worst margin or
-verdict). So the register is cut into small parts, and a part ends a page: rendered on
-its own, it would end with a page only partly filled, a gap in the middle of the table.
-This module plans the register's pages from its rows' text: the height of each row
-from the widths of its words in DejaVu Sans (:mod:`reportgen.report.text_width`) wrapped
-in its column, rows gathered into pages that hold them with room to spare, and each
-page printed as a table of its own that starts a new page. The plan is a function of
-the report's content alone, so a full build and a rebuild cut the register in the same
-places (byte-identical builds).
-
-The numbers below restate what report.css and print.css set for the register (page
-margins, the table's font sizes, line height, cell padding, column widths); the test
-``tests/test_register_pages.py`` renders planned pages and checks each fits its page.
-An estimate that is off only shows as a page less full than it could be, or, far off,
-a planned page that takes two; the slack below keeps that from happening.
+"""The link register's pages, planned before it is rendered (see
+:mod:`reportgen.report.page_plan`): one table per page, a few pages to a PDF part.
 """
 from __future__ import annotations
 
@@ -26,35 +10,17 @@ from typing import Final
 from reportgen.report import formats
 from reportgen.report.i18n import ENGLISH, Language
 from reportgen.report.messages import Words
+from reportgen.report import page_plan
+from reportgen.report.page_plan import (
+    CELL_PAD_X_PT, CELL_PAD_Y_PT, ENDS_PT, HEAD_PAD_Y_PT, HEADING_PT, HEADING_SIZE_PT,
+    INTRO_GAP_PT, INTRO_PT, LINE_HEIGHT, PAGE_PT, PAGE_SLACK_PT, ROW_RULE_PT, TABLE_GAP_PT,
+    TABLE_PT, WIDTH_SLACK, lines_needed,
+)
 from reportgen.report.text_width import text_width
 from reportgen.report.viewmodel import LinkView
 
-PT_PER_MM: Final = 72 / 25.4
-# Content box of a page (print.css @page margins 14/15/18/15 mm), in points.
-PAGE_PT: Final = {"a4": ((210 - 30) * PT_PER_MM, (297 - 32) * PT_PER_MM),
-                  "letter": ((215.9 - 30) * PT_PER_MM, (279.4 - 32) * PT_PER_MM)}
-LINE_HEIGHT: Final = 1.35            # report.css html
-TABLE_PT: Final = 7.8                # table.grid font-size
-ENDS_PT: Final = 7.5                 # td.ends
-INTRO_PT: Final = 7.5                # .small
-CELL_PAD_X_PT: Final = 2 * 1.0 * PT_PER_MM     # .grid td: 1 mm each side
-CELL_PAD_Y_PT: Final = 2 * 0.8 * PT_PER_MM     # .grid td: 0.8 mm above and below
-ROW_RULE_PT: Final = 0.4
-HEAD_PAD_Y_PT: Final = (1.2 + 0.8) * PT_PER_MM + 0.8  # .grid th padding and rule
-# h1 (15 pt DejaVu Serif, padding 1.5 mm, rule, margin 3 mm) and the intro's margin
-HEADING_PT: Final = 15 * LINE_HEIGHT + (1.5 + 3) * PT_PER_MM + 0.6
-HEADING_SIZE_PT: Final = 15
-INTRO_GAP_PT: Final = 1.5 * PT_PER_MM
-TABLE_GAP_PT: Final = 2 * PT_PER_MM  # table.grid margin-bottom
 # report.css register columns (col.c-id ... col.c-page), as shares of the table's width
 COLUMNS: Final = (0.19, 0.33, 0.07, 0.08, 0.07, 0.10, 0.11, 0.05)
-# Slack: words measured 3 % wider than their advance widths say (no kerning, the serif
-# heading measured in the sans face), and a page filled to its height less this much.
-WIDTH_SLACK: Final = 1.06
-PAGE_SLACK_PT: Final = 14.0
-# Planned pages per PDF part of the register: a rebuild renders the part holding a
-# changed row again (about 45 rows a page on A4).
-PAGES_PER_PART: Final = 2
 
 
 @dataclass(frozen=True)
@@ -72,33 +38,6 @@ class RegisterRows:
     def __post_init__(self) -> None:
         if not self.pages:
             object.__setattr__(self, "pages", (self.links,))
-
-
-def lines_needed(text: str, width_pt: float, size_pt: float, bold: bool = False,
-                 wrap: bool = True) -> int:
-    """Lines ``text`` takes in a box ``width_pt`` wide: broken at spaces, a word wider
-    than the box broken anywhere (``overflow-wrap: anywhere``); one when it may not wrap."""
-    if not wrap or not text:
-        return 1
-
-    def width(part: str) -> float:
-        return WIDTH_SLACK * text_width(part, size_pt, bold)
-
-    lines, line = 1, ""
-    for word in text.split(" "):
-        candidate = f"{line} {word}" if line else word
-        if width(candidate) <= width_pt:
-            line = candidate
-            continue
-        if line:
-            lines += 1
-        line = ""
-        for char in word:  # a word longer than the box: broken where it reaches the edge
-            if line and width(line + char) > width_pt:
-                lines += 1
-                line = ""
-            line += char
-    return lines
 
 
 class RegisterPlanner:
@@ -168,8 +107,8 @@ class RegisterPlanner:
 def register_runs(pages: Sequence[tuple[LinkView, ...]],
                   pages_per_part: int | None = None) -> list[RegisterRows]:
     """The planned pages cut into runs of ``pages_per_part`` pages (default
-    :data:`PAGES_PER_PART`; one PDF part each)."""
-    pages_per_part = pages_per_part or PAGES_PER_PART
+    :data:`reportgen.report.page_plan.PAGES_PER_PART`; one PDF part each)."""
+    pages_per_part = pages_per_part or page_plan.PAGES_PER_PART
     runs = [tuple(pages[start:start + pages_per_part])
             for start in range(0, max(len(pages), 1), pages_per_part)]
     return [RegisterRows(tuple(link for page in run for link in page), first=index == 0,

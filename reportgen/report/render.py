@@ -46,6 +46,7 @@ from reportgen.report import i18n
 from reportgen.report.i18n import ENGLISH, Language
 from reportgen.report.messages_appendix import customer_status
 from reportgen.report.messages_findings import RULE_TEXT, THRESHOLD_UNIT, finding_text
+from reportgen.report import matrix_pages
 from reportgen.report.register_pages import RegisterPlanner, RegisterRows, register_runs
 from reportgen.engine.applications import ProjectApplications
 from reportgen.engine.findings import Findings
@@ -53,7 +54,6 @@ from reportgen.engine.judge import Judgement
 from reportgen.report import level_diagram, otdr_figure, text_table
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.view_apps import MatrixGroup
 from reportgen.report.viewmodel import ArchiveView, LinkView, ReportView, build_view, otdr_figure_key
 
 TEMPLATE_MAIN: Final = "report.html.j2"
@@ -68,7 +68,6 @@ LINKS_PER_PART: Final = 20
 MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
-MATRIX_ROWS_PER_PART: Final = 400  # matrix rows per PDF part when it has parts of its own
 # The register is cut into PDF parts of a few planned pages (reportgen.report.register_pages).
 # The front matter and the appendix of our templates are PDF parts of a few pieces each,
 # cut where a page break is anyway, so that a rebuild renders again only the piece that
@@ -130,27 +129,6 @@ def chunk_links(links: tuple[LinkView, ...], size: int | None = None) -> list[tu
     if size is None:
         size = min(LINKS_PER_PART, max(MIN_LINKS_PER_PART, -(-len(links) // TARGET_PARTS)))
     return [links[i:i + size] for i in range(0, len(links), size)]
-
-
-def split_groups(groups: tuple[MatrixGroup, ...],
-                 size: int = MATRIX_ROWS_PER_PART) -> list[tuple[MatrixGroup, ...]]:
-    """Matrix groups cut into runs of at most ``size`` rows (for PDF parts of their own)."""
-    parts: list[tuple[MatrixGroup, ...]] = []
-    current: list[MatrixGroup] = []
-    room = size
-    for group in groups:
-        start = 0
-        while start < len(group.rows):
-            take = group.rows[start:start + room]
-            current.append(MatrixGroup(group.fiber_type, group.columns, take, continued=start > 0))
-            start += len(take)
-            room -= len(take)
-            if room == 0:
-                parts.append(tuple(current))
-                current, room = [], size
-    if current or not parts:
-        parts.append(tuple(current))
-    return parts
 
 
 def css_string(text: object) -> Markup:
@@ -335,18 +313,19 @@ class _Renderer:
     def render(self, part: str, links: tuple = (), first_part: bool = False,
                page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
                matrix_groups: tuple | None = None, section: str | None = None,
-               register_rows: RegisterRows | None = None) -> str:
+               register_rows: RegisterRows | None = None, matrix_first: bool = False) -> str:
         """One document; ``section`` names the one piece of the front matter or appendix
         it shows (:data:`FRONT_SECTIONS`, :data:`APPENDIX_SECTIONS`), None: all of ``part``;
         ``register_rows`` the run of the register it shows (None: all of it)."""
         return squeeze_html("".join(self.generate(
             part, links, first_part, page_of, total_pages, matrix_groups, section,
-            register_rows)))
+            register_rows, matrix_first)))
 
     def generate(self, part: str, links: tuple = (), first_part: bool = False,
                  page_of: Mapping[str, int] | None = None, total_pages: int | None = None,
                  matrix_groups: tuple | None = None, section: str | None = None,
-                 register_rows: RegisterRows | None = None) -> Iterator[str]:
+                 register_rows: RegisterRows | None = None,
+                 matrix_first: bool = False) -> Iterator[str]:
         """The text of :meth:`render` before squeezing, in the template's own pieces."""
         if matrix_groups is None:
             matrix_groups = self.view.apps.groups if self.view.apps is not None else ()
@@ -355,7 +334,8 @@ class _Renderer:
             total_pages=total_pages, matrix_groups=matrix_groups,
             front_section=section if part == "front" else None,
             appendix_section=section if part == "appendix" else None,
-            register_rows=register_rows or RegisterRows(self.view.links))
+            register_rows=register_rows or RegisterRows(self.view.links),
+            matrix_first=matrix_first)
 
     def front(self, page_of: Mapping[str, int] | None, total_pages: int | None,
               section: str | None = None) -> str:
@@ -421,9 +401,14 @@ def build_report(
     makers += [functools.partial(renderer.render, "body", links=chunk, first_part=index == 0)
                for index, chunk in enumerate(chunk_links(view.links))]
     if view.apps is not None and not view.apps.in_front:
-        makers += [functools.partial(renderer.render, "applications", first_part=index == 0,
-                                     matrix_groups=groups)
-                   for index, groups in enumerate(split_groups(view.apps.groups))]
+        # the power list, then the matrix in parts of a few planned pages, the first with
+        # the matrix's heading and legend (reportgen.report.matrix_pages)
+        makers.append(functools.partial(renderer.render, "applications", first_part=True,
+                                        matrix_groups=()))
+        pages = matrix_pages.plan_pages(view.apps.groups, view.paper, lang)
+        makers += [functools.partial(renderer.render, "applications", matrix_groups=groups,
+                                     matrix_first=index == 0)
+                   for index, groups in enumerate(matrix_pages.matrix_runs(pages))]
     last_run = len(makers) - 1
     if not pieces:
         makers.append(functools.partial(renderer.render, "appendix"))

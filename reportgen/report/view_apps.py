@@ -93,6 +93,7 @@ class MatrixGroup:
     columns: tuple[str, ...]
     rows: tuple[MatrixRow, ...]
     continued: bool = False  # a later slice of a group split over PDF parts
+    page_start: bool = False  # begins a planned page (reportgen.report.matrix_pages)
 
 
 @dataclass(frozen=True)
