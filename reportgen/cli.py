@@ -206,6 +206,10 @@ def build(project: Path, output: Path | None, data_only: bool, jobs: int | None,
     A rebuild into the same output folder renders only the parts of the PDF that
     changed; the result is the same, byte for byte, as a build from scratch.
     """
+    if not data_only and not cluster:
+        from reportgen.pdf.forkserver import start_early
+
+        start_early()  # the PDF workers' server loads WeasyPrint while this process imports
     from reportgen import pipeline
     from reportgen.report.terminal import progress_bar
 
