@@ -218,3 +218,27 @@ def test_a_large_register_is_cut_into_parts_each_row_once(monkeypatch):
     assert rows == [f"link-r-{n:03d}" for n in range(120)]
     # report.html keeps one register with every row
     assert document.html.count('class="grid register-table') == 1
+
+
+def test_our_templates_render_the_same_text_as_in_the_sandbox(monkeypatch):
+    # Our own templates render outside Jinja's sandbox (speed); a project's own templates
+    # always inside it (tests/test_hardening.py). Same text either way: the demo project.
+    from jinja2.sandbox import ImmutableSandboxedEnvironment
+
+    from reportgen.inputs.project import load_project
+    from reportgen.report import render as render_module
+
+    project = load_project(Path(__file__).resolve().parent.parent / "demo_project")
+    plain = render_module.make_environment(None)
+    assert type(plain) is jinja2.Environment
+    assert isinstance(render_module.make_environment(Path(".")), ImmutableSandboxedEnvironment)
+    ours = render(project)
+    texts = (ours.html, [ours.bodies[i] for i in range(len(ours.bodies))])
+    render_module.make_environment.cache_clear()
+    monkeypatch.setattr(render_module.jinja2, "Environment", ImmutableSandboxedEnvironment)
+    try:
+        sandboxed = render(project)
+        assert type(render_module.make_environment(None)) is ImmutableSandboxedEnvironment
+        assert (sandboxed.html, [sandboxed.bodies[i] for i in range(len(sandboxed.bodies))]) == texts
+    finally:
+        render_module.make_environment.cache_clear()

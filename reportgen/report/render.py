@@ -64,7 +64,7 @@ STYLESHEETS: Final = ("report.css", "print.css")
 # of CPU for a fresh worker and its fonts, measured), and a rebuild renders the whole run
 # that holds a changed link: runs of 20 rather than 40 took the 500-link rebuild after one
 # changed result from 18-19 % to 14 % of the full build's time (benchmarks/README.md).
-LINKS_PER_PART: Final = 20
+LINKS_PER_PART: Final = 10
 MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
@@ -161,8 +161,12 @@ def make_environment(project_templates: Path | None, length_unit: str = "m",
     loaders.append(jinja2.FileSystemLoader(str(templates_dir())))
     # Sandboxed: a project's own templates are untrusted input. They may format and
     # loop, but cannot reach Python internals (attributes starting with "_",
-    # function globals) nor mutate the data they are given.
-    env = ImmutableSandboxedEnvironment(
+    # function globals) nor mutate the data they are given. Ours alone are part of this
+    # program and render the same without the sandbox's check of every attribute read
+    # (a quarter of the time of the HTML, which a rebuild makes for every part; the same
+    # text: tests/test_render.py).
+    kind = jinja2.Environment if project_templates is None else ImmutableSandboxedEnvironment
+    env = kind(
         loader=jinja2.ChoiceLoader(loaders),
         autoescape=True,
         undefined=jinja2.StrictUndefined,  # a misspelt name fails the build, never a blank cell
