@@ -11,11 +11,12 @@ import os
 import tempfile
 from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
+from contextlib import ExitStack
 from dataclasses import dataclass
 from functools import partial
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from reportgen import __version__
 
@@ -35,6 +36,9 @@ from reportgen.report.messages_findings import finding_text
 from reportgen.model import Project
 from reportgen.inputs.apptable import table_version
 from reportgen.inputs.project import load_project, read_files
+
+if TYPE_CHECKING:
+    from reportgen.pdf.cluster import ClusterSession
 
 log = logging.getLogger("reportgen")
 
@@ -164,6 +168,24 @@ def build(
         start_early()  # the PDF workers' server imports WeasyPrint while the project loads
     project = validate_only(project_dir)
     check_out_dir_holds_no_input(project, out_dir)
+    with ExitStack() as closing:
+        session = None
+        if report and cluster is not None:
+            from reportgen.pdf.cluster import ClusterSession
+
+            # opened now: the workers load the renderer while the project is judged
+            session = ClusterSession.connect(cluster)
+            closing.callback(session.close)
+        return _build_loaded(project, out_dir, now=now, version=version, report=report,
+                             progress=progress, jobs=jobs, cache=cache, cluster=session,
+                             sign_key=sign_key, language=language)
+
+
+def _build_loaded(project: Project, out_dir: Path, *, now: datetime | None, version: str,
+                  report: bool, progress: Progress | None, jobs: int | None, cache: bool,
+                  cluster: ClusterSession | None, sign_key: Any,
+                  language: str | None) -> BuildResult:
+    """:func:`build` once the project is loaded (and the cluster session open)."""
     now = build_now(now)
     outcome = compute(project, now)
     results_csv = results_csv_bytes(outcome.judgement.results)
@@ -299,7 +321,7 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                   progress: Progress | None = None,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
                   jobs: int | None = None, cache_dir: Path | None = None,
-                  cluster: str | None = None, archive: Archive | None = None,
+                  cluster: str | ClusterSession | None = None, archive: Archive | None = None,
                   sign_key: Any = None, language: str | None = None,
                   write: Callable[[Mapping[str, Output]], None]) -> tuple[str, ...]:
     """Step 4: the HTML report and the PDF rendered from the same templates.

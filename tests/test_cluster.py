@@ -208,3 +208,37 @@ def test_a_worker_with_other_versions_or_fonts_is_refused() -> None:
     with pytest.raises(ReportgenError, match="cannot run reportgen's part renders"):
         session.check_answer("tcp://10.0.0.9:40000",
                              ModuleNotFoundError("No module named 'reportgen'"))
+
+
+def test_a_build_opens_its_cluster_session_before_judging_and_closes_it(
+        monkeypatch: pytest.MonkeyPatch, tmp_path: Path) -> None:
+    # The session is opened once the project is read, so that the workers load the
+    # renderer while this process judges; it is closed even when the build stops.
+    from reportgen import pipeline
+
+    events: list[str] = []
+
+    class FakeSession:
+        address = "tcp://127.0.0.1:1"
+
+        def close(self) -> None:
+            events.append("close")
+
+    def connect(address: str) -> FakeSession:
+        events.append(f"connect {address}")
+        return FakeSession()
+
+    def compute(*args: object, **kwargs: object) -> None:
+        events.append("judge")
+        raise RuntimeError("stop here")
+
+    monkeypatch.setattr(ClusterSession, "connect", staticmethod(connect))
+    monkeypatch.setattr(pipeline, "compute", compute)
+    fixture = Path(__file__).parent / "fixtures" / "small_project"
+    with pytest.raises(RuntimeError, match="stop here"):
+        pipeline.build(fixture, tmp_path / "out", cluster="tcp://127.0.0.1:1")
+    assert events == ["connect tcp://127.0.0.1:1", "judge", "close"]
+    events.clear()
+    with pytest.raises(RuntimeError, match="stop here"):
+        pipeline.build(fixture, tmp_path / "out", cluster="tcp://127.0.0.1:1", report=False)
+    assert events == ["judge"]  # a data-only build needs no cluster

@@ -70,6 +70,12 @@ def worker_fingerprint() -> dict[str, str]:
     return dict(render_environment())
 
 
+async def load_renderer() -> None:
+    """Import the part renderer (WeasyPrint and its fonts' libraries), on a worker (a
+    coroutine: Dask runs one on its workers without waiting for the answer)."""
+    import reportgen.pdf.weasy  # noqa: F401
+
+
 def _this_worker() -> str:
     try:
         from distributed import get_worker
@@ -159,6 +165,9 @@ class ClusterSession:
         session = cls(address, client, worker_fingerprint())
         try:
             session.check_workers()
+            # each worker loads the renderer now, not with its first part: a build opens
+            # its session before it judges the project (reportgen.pipeline.build)
+            client.run(load_renderer, wait=False)
         except BaseException:
             session.close()
             raise

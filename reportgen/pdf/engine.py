@@ -421,7 +421,7 @@ def write_pdf(front: FrontMatter, bodies: Sequence[str], *, into: BinaryIO, root
               title: str, page_label: str = "Page {page} of {pages}", created: datetime,
               workers: int = 2, progress: Progress | None = None,
               xml_first: bool = False, cache: PartCache | None = None,
-              cluster: str | None = None, author: str = "",
+              cluster: str | ClusterSession | None = None, author: str = "",
               attachments: Sequence[Attachment] = (), seal: Seal | None = None,
               language: str = "en", release: Callable[[], None] | None = None) -> None:
     """Render the front matter and body parts into one PDF, written into ``into``.
@@ -453,8 +453,9 @@ def write_pdf(front: FrontMatter, bodies: Sequence[str], *, into: BinaryIO, root
         rendered, rendered parts are stored, and entries this build did not use are
         removed once the PDF is done. None renders every part.
     cluster
-        Address of a Dask scheduler (``tcp://host:8786``): the parts are rendered by
-        its workers (:mod:`reportgen.pdf.cluster`); the merge stays here.
+        Address of a Dask scheduler (``tcp://host:8786``), or a session with one the
+        caller opened: the parts are rendered by its workers (:mod:`reportgen.pdf.cluster`);
+        the merge stays here.
     xml_first
         The documents come from our own templates, which write well-formed XML:
         read them with the standard library's XML parser, falling back to
@@ -511,21 +512,23 @@ def write_pdf(front: FrontMatter, bodies: Sequence[str], *, into: BinaryIO, root
         stats = cache.stats
         LOGGER.info("PDF parts: %d from the cache, %d rendered %s (%d cache entries ignored)",
                     stats.hits, stats.misses + stats.ignored,
-                    f"on the cluster at {cluster}" if cluster else f"by {workers} local processes",
+                    f"on the cluster at {session.address}" if session is not None
+                    else f"by {workers} local processes",
                     stats.ignored)
         cache.prune()
     report(total_steps)
 
 
 @contextmanager
-def _cluster_session(address: str | None) -> Iterator[ClusterSession | None]:
-    """A connection to the Dask scheduler at ``address`` for one build, or None."""
-    if address is None:
-        yield None
+def _cluster_session(cluster: str | ClusterSession | None) -> Iterator[ClusterSession | None]:
+    """A connection to the Dask scheduler at ``cluster`` for one build, or None; a session
+    the caller opened (and closes) is used as it is."""
+    if cluster is None or not isinstance(cluster, str):
+        yield cluster
         return
     from reportgen.pdf.cluster import ClusterSession
 
-    session = ClusterSession.connect(address)
+    session = ClusterSession.connect(cluster)
     try:
         yield session
     finally:
