@@ -19,7 +19,6 @@ from __future__ import annotations
 import gc
 import io
 import logging
-import multiprocessing
 import time
 import traceback
 from collections import deque
@@ -279,8 +278,10 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
         """Take the next waiting part: finished at once when the cache has it, else ready."""
         index = waiting.popleft()
         html = bodies[index]
-        key = part_key(html, root, xml_first) if cache is not None else None
-        part = cache.get(key, root) if cache is not None and key is not None else None
+        key = part = None
+        if cache is not None:
+            key = part_key(html, root, xml_first)
+            part = cache.get(key, root)
         if part is not None:
             finished(index, part)
         else:

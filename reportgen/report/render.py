@@ -63,12 +63,14 @@ STYLESHEETS: Final = ("report.css", "print.css")
 # Most link sheets per PDF body part. A part costs little besides its sheets (about 0.07 s
 # of CPU for a fresh worker and its fonts, measured), and a rebuild renders the whole run
 # that holds a changed link: runs of 20 rather than 40 took the 500-link rebuild after one
-# changed result from 18-19 % to 14 % of the full build's time (benchmarks/README.md).
+# changed result from 18-19 % to 14 % of the full build's time, runs of 10 rather than 20
+# from 16.5-17.7 % to 14.7-16.3 % with the full build no slower (benchmarks/README.md).
 LINKS_PER_PART: Final = 10
 MIN_LINKS_PER_PART: Final = 10
 # Small reports are cut finer so that both render workers stay busy to the end.
 TARGET_PARTS: Final = 8
-# The register is cut into PDF parts of a few planned pages (reportgen.report.register_pages).
+# The register and the applications matrix are cut into PDF parts of a few planned pages
+# (reportgen.report.page_plan).
 # The front matter and the appendix of our templates are PDF parts of a few pieces each,
 # cut where a page break is anyway, so that a rebuild renders again only the piece that
 # changed (the part cache, reportgen.pdf.cache): the cover holds the manifest digest,
