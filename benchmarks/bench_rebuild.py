@@ -87,12 +87,17 @@ def bench_cluster(links: int, folder: Path) -> None:
     os.environ["PYTHONPATH"] = os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")])
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                       dashboard_address=None, host="127.0.0.1") as cluster:
-        cluster_s = build(project, folder / "cluster-out", "--no-cache",
-                          "--cluster", cluster.scheduler_address)
-    same = pdf_digest(folder / "local-out") == pdf_digest(folder / "cluster-out")
+        # first build: the workers were just started; second: they have rendered before
+        first_s = build(project, folder / "cluster-out", "--no-cache",
+                        "--cluster", cluster.scheduler_address)
+        second_s = build(project, folder / "cluster-out-2", "--no-cache",
+                         "--cluster", cluster.scheduler_address)
+    same = (pdf_digest(folder / "local-out") == pdf_digest(folder / "cluster-out")
+            == pdf_digest(folder / "cluster-out-2"))
     print(f"cluster, {links} links: two local processes {local_s:.1f} s, local two-worker "
-          f"cluster {cluster_s:.1f} s = {cluster_s / local_s:.2f}x (target < 1.15x); "
-          f"PDFs equal: {same}", flush=True)
+          f"cluster {first_s:.1f} s = {first_s / local_s:.2f}x with workers just started, "
+          f"{second_s:.1f} s = {second_s / local_s:.2f}x on the second build "
+          f"(target < 1.15x); PDFs equal: {same}", flush=True)
 
 
 def main() -> None:

@@ -10,7 +10,7 @@ import logging
 import os
 import tempfile
 from collections.abc import Callable, Mapping, Sequence
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor
 from contextlib import ExitStack
 from dataclasses import dataclass
 from functools import partial
@@ -166,26 +166,40 @@ def build(
         from reportgen.pdf.forkserver import start_early
 
         start_early()  # the PDF workers' server imports WeasyPrint while the project loads
-    project = validate_only(project_dir)
-    check_out_dir_holds_no_input(project, out_dir)
     with ExitStack() as closing:
-        session = None
+        connecting: Future[ClusterSession] | None = None
         if report and cluster is not None:
             from reportgen.pdf.cluster import ClusterSession
 
-            # opened now: the workers load the renderer while the project is judged
-            session = ClusterSession.connect(cluster)
-            closing.callback(session.close)
+            # connected while the project loads, so that the workers load the renderer
+            # while it is read and judged; closed whatever happens (after the connection
+            # is made or has failed, at most the connection timeout)
+            connector = closing.enter_context(
+                ThreadPoolExecutor(max_workers=1, thread_name_prefix="reportgen-connect"))
+            connecting = connector.submit(ClusterSession.connect, cluster)
+            closing.callback(_close_session, connecting)
+        project = validate_only(project_dir)
+        check_out_dir_holds_no_input(project, out_dir)
         return _build_loaded(project, out_dir, now=now, version=version, report=report,
-                             progress=progress, jobs=jobs, cache=cache, cluster=session,
+                             progress=progress, jobs=jobs, cache=cache, cluster=connecting,
                              sign_key=sign_key, language=language)
+
+
+def _close_session(connecting: Future[ClusterSession]) -> None:
+    """Close the session ``connecting`` makes, once made; a failed connection has been
+    reported already (or the build stopped before it asked)."""
+    try:
+        session = connecting.result()
+    except Exception:  # raised where the build took the session, or the build stopped first
+        return
+    session.close()
 
 
 def _build_loaded(project: Project, out_dir: Path, *, now: datetime | None, version: str,
                   report: bool, progress: Progress | None, jobs: int | None, cache: bool,
-                  cluster: ClusterSession | None, sign_key: Any,
+                  cluster: Future[ClusterSession] | None, sign_key: Any,
                   language: str | None) -> BuildResult:
-    """:func:`build` once the project is loaded (and the cluster session open)."""
+    """:func:`build` once the project is loaded; ``cluster``: the session being opened."""
     now = build_now(now)
     outcome = compute(project, now)
     results_csv = results_csv_bytes(outcome.judgement.results)
@@ -205,7 +219,8 @@ def _build_loaded(project: Project, out_dir: Path, *, now: datetime | None, vers
     if report:
         outputs: Sequence[str] = render_report(
             outcome, now=now, version=version, progress=progress, alongside=data_outputs,
-            jobs=jobs, cache_dir=out_dir if cache else None, cluster=cluster, archive=archive,
+            jobs=jobs, cache_dir=out_dir if cache else None,
+            cluster=cluster, archive=archive,
             sign_key=sign_key, language=language, write=write)
     else:
         log.info("Step 4: no HTML/PDF report (data only)")
@@ -321,7 +336,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
                   progress: Progress | None = None,
                   alongside: Callable[[], dict[str, bytes]] | None = None,
                   jobs: int | None = None, cache_dir: Path | None = None,
-                  cluster: str | ClusterSession | None = None, archive: Archive | None = None,
+                  cluster: str | ClusterSession | Future[ClusterSession] | None = None,
+                  archive: Archive | None = None,
                   sign_key: Any = None, language: str | None = None,
                   write: Callable[[Mapping[str, Output]], None]) -> tuple[str, ...]:
     """Step 4: the HTML report and the PDF rendered from the same templates.
@@ -330,8 +346,9 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
     them), then report.html (made by a thread while the PDF workers are busy) and
     report.pdf, and returns their names.
     ``cache_dir`` is the output folder whose part cache is used (None: render every
-    part); ``archive`` is attached to the PDF, ``sign_key`` signs it; ``language``
-    overrides the project's report.language.
+    part); ``cluster``: a scheduler's address or a session (opened, or being opened);
+    ``archive`` is attached to the PDF, ``sign_key`` signs it; ``language`` overrides the
+    project's report.language.
     """
     from reportgen.pdf import engine as pdf
     from reportgen.pdf.cache import PartCache
@@ -372,6 +389,8 @@ def render_report(outcome: Outcome, *, now: datetime, version: str,
             html.result()
             del document
 
+        if isinstance(cluster, Future):  # being opened: needed from here on
+            cluster = cluster.result()
         pdf.write_pdf(document.front, document.bodies, into=pdf_file,
                       root=outcome.project.root, title=outcome.project.info.title, created=now,
                       page_label=label, language=lang.code, progress=progress,

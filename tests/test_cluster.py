@@ -13,6 +13,7 @@ import signal
 import socket
 import subprocess
 import sys
+import threading
 import time
 from collections.abc import Iterator, Mapping
 from datetime import datetime, timezone
@@ -20,7 +21,7 @@ from pathlib import Path
 
 import pytest
 
-from reportgen.errors import ReportgenError
+from reportgen.errors import InputError, ReportgenError
 from reportgen.pdf import cluster as cluster_module
 from reportgen.pdf.cache import PartCache
 from reportgen.pdf.cluster import ClusterSession, fingerprint_difference, worker_fingerprint
@@ -210,13 +211,16 @@ def test_a_worker_with_other_versions_or_fonts_is_refused() -> None:
                              ModuleNotFoundError("No module named 'reportgen'"))
 
 
-def test_a_build_opens_its_cluster_session_before_judging_and_closes_it(
+def test_a_build_connects_to_its_cluster_while_loading_and_closes_the_session(
         monkeypatch: pytest.MonkeyPatch, tmp_path: Path) -> None:
-    # The session is opened once the project is read, so that the workers load the
-    # renderer while this process judges; it is closed even when the build stops.
+    # The session is opened while the project is read and judged (a thread), so that
+    # the workers load the renderer meanwhile; the build closes it whatever happens:
+    # a judging error, an input error found while it connected.
     from reportgen import pipeline
 
     events: list[str] = []
+    connected = threading.Event()
+    loading = threading.Event()
 
     class FakeSession:
         address = "tcp://127.0.0.1:1"
@@ -225,20 +229,56 @@ def test_a_build_opens_its_cluster_session_before_judging_and_closes_it(
             events.append("close")
 
     def connect(address: str) -> FakeSession:
+        assert loading.wait(10), "the project was not loading while the session connected"
         events.append(f"connect {address}")
+        connected.set()
         return FakeSession()
+
+    real_validate = pipeline.validate_only
+
+    def validate_only(project_dir: Path) -> object:
+        loading.set()
+        return real_validate(project_dir)
 
     def compute(*args: object, **kwargs: object) -> None:
         events.append("judge")
         raise RuntimeError("stop here")
 
     monkeypatch.setattr(ClusterSession, "connect", staticmethod(connect))
+    monkeypatch.setattr(pipeline, "validate_only", validate_only)
     monkeypatch.setattr(pipeline, "compute", compute)
     fixture = Path(__file__).parent / "fixtures" / "small_project"
     with pytest.raises(RuntimeError, match="stop here"):
         pipeline.build(fixture, tmp_path / "out", cluster="tcp://127.0.0.1:1")
-    assert events == ["connect tcp://127.0.0.1:1", "judge", "close"]
+    assert sorted(events[:2]) == ["connect tcp://127.0.0.1:1", "judge"]
+    assert events[2:] == ["close"]
+
     events.clear()
+    loading.clear()
+
+    def invalid(project_dir: Path) -> object:
+        loading.set()
+        raise InputError([])
+
+    monkeypatch.setattr(pipeline, "validate_only", invalid)
+    with pytest.raises(InputError):
+        pipeline.build(fixture, tmp_path / "out", cluster="tcp://127.0.0.1:1")
+    assert events == ["connect tcp://127.0.0.1:1", "close"]
+
+    events.clear()
+    monkeypatch.setattr(pipeline, "validate_only", validate_only)
     with pytest.raises(RuntimeError, match="stop here"):
         pipeline.build(fixture, tmp_path / "out", cluster="tcp://127.0.0.1:1", report=False)
     assert events == ["judge"]  # a data-only build needs no cluster
+
+
+@pytest.mark.skipif(not hasattr(os, "fork"), reason="parts are forked only where fork exists")
+def test_a_worker_renders_each_part_in_a_child_process_and_reports_one_that_dies() -> None:
+    # The render's garbage leaves with the child (no cycle collection in the worker);
+    # a child that dies or cannot send its answer becomes a "failed" answer, not a hang.
+    status, pid = cluster_module._in_child(lambda: ("done", os.getpid()))
+    assert status == "done" and pid != os.getpid()
+    status, message, details = cluster_module._in_child(lambda: os._exit(9))
+    assert status == "failed" and "exit status 9" in message and details == ""
+    status, message, _ = cluster_module._in_child(lambda: ("done", threading.Lock()))
+    assert status == "failed" and "exit status 1" in message  # a lock cannot be pickled

@@ -2,7 +2,8 @@
 
 Only the part renders go to the cluster: loading, judging, the HTML, the part cache
 and the merge stay on this machine. Each part is one Dask task,
-:func:`render_task`, which calls :func:`reportgen.pdf.weasy.render_part` on a worker
+:func:`render_task`, which calls :func:`reportgen.pdf.weasy.render_part` in a process
+forked from a worker for the part
 and returns the :class:`~reportgen.pdf.weasy.RenderedPart`; the bytes are those of a
 local render because the worker is checked to render as this machine does.
 
@@ -37,11 +38,13 @@ from __future__ import annotations
 
 import gc
 import logging
+import os
+import pickle
 import threading
 import time
 import traceback
 import uuid
-from collections.abc import Iterator, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -120,20 +123,65 @@ def render_task(html: str, root: str, xml_first: bool,
 
     ``("done", worker, fingerprint, part)``, ``("need", worker, fingerprint, urls)``
     when project files were missing, or ``("failed", worker, fingerprint, message,
-    traceback)``.
+    traceback)``. The part is rendered in a child process forked for it
+    (:func:`_in_child`), as a local build renders each part in a fresh process.
     """
     fingerprint = worker_fingerprint()
     worker = _this_worker()
+    with _RENDER_LOCK:
+        status, *payload = _in_child(_render_answer, html, root, xml_first, files)
+    return (status, worker, fingerprint, *payload)
+
+
+def _render_answer(html: str, root: str, xml_first: bool,
+                   files: dict[str, ProjectFile | None]) -> tuple[Any, ...]:
+    """Render one part here: ``("done", part)``, ``("need", urls)`` or ``("failed", message,
+    traceback)``."""
     fetcher = ShippedFilesFetcher(Path(root), files)
     try:
-        with _RENDER_LOCK, _collector_paused():
-            part = render_part(html, Path(root), xml_first=xml_first, url_fetcher=fetcher)
+        part = render_part(html, Path(root), xml_first=xml_first, url_fetcher=fetcher)
     except Exception as error:  # reported by the client, with the part's number
-        return ("failed", worker, fingerprint, f"{type(error).__name__}: {error}",
-                traceback.format_exc())
+        return ("failed", f"{type(error).__name__}: {error}", traceback.format_exc())
     if fetcher.missing:
-        return ("need", worker, fingerprint, sorted(fetcher.missing))
-    return ("done", worker, fingerprint, part)
+        return ("need", sorted(fetcher.missing))
+    return ("done", part)
+
+
+def _in_child(render: Callable[..., tuple[Any, ...]], *args: Any) -> tuple[Any, ...]:
+    """``render(*args)`` in a child process forked from this worker; its answer comes back
+    pickled through a pipe.
+
+    The child exits without cleaning up, so the render's garbage (WeasyPrint's layout,
+    a web of reference cycles) is returned to the system with the process instead of
+    being walked by Python's cycle collector in the worker: 0.2-0.3 s of a 1.5 s part,
+    measured on a run of 10 link sheets, and the worker's memory stays flat. Where there
+    is no ``fork`` the part is rendered in the worker itself, the collector paused.
+    """
+    if not hasattr(os, "fork"):
+        with _collector_paused():
+            return render(*args)
+    read_end, write_end = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the child: only this thread runs here; it never returns
+        exit_status = 1
+        try:
+            os.close(read_end)
+            gc.disable()
+            answer = pickle.dumps(render(*args), protocol=pickle.HIGHEST_PROTOCOL)
+            with os.fdopen(write_end, "wb") as pipe:
+                pipe.write(answer)
+            exit_status = 0
+        finally:
+            os._exit(exit_status)
+    os.close(write_end)
+    with os.fdopen(read_end, "rb") as pipe:
+        answer = pipe.read()
+    _, wait_status = os.waitpid(pid, 0)
+    if not answer:
+        return ("failed", f"the process rendering the part ended without a result (exit "
+                          f"status {os.waitstatus_to_exitcode(wait_status)}; out of memory?)", "")
+    result: tuple[Any, ...] = pickle.loads(answer)
+    return result
 
 
 @dataclass
