@@ -39,7 +39,7 @@ from reportgen.pdf.stamp import Stamper, make_stamp_font
 from reportgen.pdf.tags import StructureMerger
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
 
-__all__ = ["PageCopier", "Seal", "absolute_anchors", "finish_pdf", "pdf_date", "slot_text"]
+__all__ = ["Destinations", "PageCopier", "Seal", "absolute_anchors", "finish_pdf", "pdf_date", "slot_text"]
 
 LOGGER = logging.getLogger(__name__)
 MISSING_SLOT_TEXT: Final = "\u2013"
@@ -69,28 +69,45 @@ def slot_text(target: str, anchors: dict[str, tuple[int, Anchor]]) -> str:
     return str(anchors[target][0] + 1) if target in anchors else MISSING_SLOT_TEXT
 
 
-def _destination(page: Dictionary, anchor: Anchor) -> Array:
-    """An explicit destination (ISO 32000-1, 12.3.2.2): ``page`` at the anchor's top left."""
-    return Array([page, Name.XYZ, round(anchor.x_pt, 2), round(anchor.y_pt, 2), None])
+class Destinations:
+    """The explicit destination of each anchor (ISO 32000-1, 12.3.2.2: its page at the
+    anchor's top left), made once as an indirect array that every link, outline item and
+    name pointing there refers to. A long report has tens of thousands of links to a few
+    thousand places; qpdf keeps each array it holds as objects of about 1 kB."""
+
+    def __init__(self, pdf: Pdf, pages: Sequence[Dictionary],
+                 anchors: dict[str, tuple[int, Anchor]]) -> None:
+        self.pdf, self.pages, self.anchors = pdf, pages, anchors
+        self.made: dict[str, Array] = {}
+
+    def __contains__(self, anchor_id: str) -> bool:
+        return anchor_id in self.anchors
+
+    def __getitem__(self, anchor_id: str) -> Array:
+        if anchor_id not in self.made:
+            page_index, anchor = self.anchors[anchor_id]
+            self.made[anchor_id] = self.pdf.make_indirect(Array([
+                self.pages[page_index], Name.XYZ, round(anchor.x_pt, 2), round(anchor.y_pt, 2),
+                None]))
+        return self.made[anchor_id]
 
 
 def add_links(pdf: Pdf, pages: Sequence[Dictionary], frames: Sequence[PageFrame],
-              anchors: dict[str, tuple[int, Anchor]]) -> int:
+              destinations: Destinations) -> int:
     """Add a GoTo link annotation for every internal link whose target exists; return the
-    count. ``pages``: the file's pages, in order."""
+    count. ``pages``: the file's pages, in order. The links share one border array (none
+    drawn)."""
     added = 0
+    no_border = pdf.make_indirect(Array([0, 0, 0]))
     for page, frame in zip(pages, frames):
         annotations = []
         for link in frame.links:
-            if link.target not in anchors:
+            if link.target not in destinations:
                 continue
-            target_index, anchor = anchors[link.target]
             annotations.append(pdf.make_indirect(Dictionary(
                 Type=Name.Annot, Subtype=Name.Link,
                 Rect=Array([round(value, 2) for value in link.rect_pt]),
-                Border=Array([0, 0, 0]),
-                Dest=_destination(pages[target_index], anchor),
-                P=page)))
+                Border=no_border, Dest=destinations[link.target], P=page)))
         if annotations:
             existing = page.get("/Annots")
             page[Name.Annots] = Array([*(existing if existing is not None else ()),
@@ -99,8 +116,8 @@ def add_links(pdf: Pdf, pages: Sequence[Dictionary], frames: Sequence[PageFrame]
     return added
 
 
-def add_named_destinations(pdf: Pdf, pages: Sequence[Dictionary], parts: Sequence[RenderedPart],
-                           anchors: dict[str, tuple[int, Anchor]]) -> int:
+def add_named_destinations(pdf: Pdf, parts: Sequence[RenderedPart],
+                           destinations: Destinations) -> int:
     """Name the place of every bookmarked anchor (sections, each link sheet); return the count.
 
     A viewer then opens ``report.pdf#link-a-bb-07`` at that link's sheet, so other
@@ -109,32 +126,28 @@ def add_named_destinations(pdf: Pdf, pages: Sequence[Dictionary], parts: Sequenc
     order (ISO 32000-1, 7.9.6: the keys of a name tree are sorted).
     """
     names = sorted({bookmark.anchor_id for part in parts for bookmark in part.bookmarks
-                    if bookmark.anchor_id in anchors})
+                    if bookmark.anchor_id in destinations})
     if not names:
         return 0
     items: list[Object] = []
     for name in names:
-        page_index, anchor = anchors[name]
-        items += [String(name), _destination(pages[page_index], anchor)]
+        items += [String(name), destinations[name]]
     if "/Names" not in pdf.Root:
         pdf.Root[Name.Names] = Dictionary()
     pdf.Root.Names[Name.Dests] = pdf.make_indirect(Dictionary(Names=Array(items)))
     return len(names)
 
 
-def add_outline(pdf: Pdf, pages: Sequence[Dictionary], parts: Sequence[RenderedPart],
-                anchors: dict[str, tuple[int, Anchor]]) -> None:
+def add_outline(pdf: Pdf, parts: Sequence[RenderedPart], destinations: Destinations) -> None:
     """Add the bookmarks of all parts, in order, as a two-level outline (ISO 32000-1,
     12.3.3), every item open, and open the document with the outline shown."""
     tops: list[tuple[Dictionary, list[Dictionary]]] = []
     for part in parts:
         for bookmark in part.bookmarks:
-            if bookmark.anchor_id not in anchors:
+            if bookmark.anchor_id not in destinations:
                 continue
-            page_index, anchor = anchors[bookmark.anchor_id]
             item = pdf.make_indirect(Dictionary(
-                Title=String(bookmark.label),
-                Dest=_destination(pages[page_index], anchor)))
+                Title=String(bookmark.label), Dest=destinations[bookmark.anchor_id]))
             if bookmark.level > 1 and tops:
                 tops[-1][1].append(item)
             else:
@@ -394,9 +407,10 @@ def finish_pdf(copier: PageCopier, front: RenderedPart, bodies: Sequence[Rendere
     for page, text, frame, slots in zip(pages, texts, frames, slot_texts):
         stamper.stamp(page, text, frame, slots)
     clock.step("front matter and page stamps")
-    add_links(pdf, pages, frames, anchors)
-    add_outline(pdf, pages, parts, anchors)
-    add_named_destinations(pdf, pages, parts, anchors)
+    destinations = Destinations(pdf, pages, anchors)
+    add_links(pdf, pages, frames, destinations)
+    add_outline(pdf, parts, destinations)
+    add_named_destinations(pdf, parts, destinations)
     structure.finish(range(len(parts)))
     # The document information holds no /Producer and no /ModDate (the XMP packet does):
     # pyHanko, signing, sets the XMP producer to its own name and the Info /Producer to
