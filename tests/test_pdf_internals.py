@@ -236,6 +236,7 @@ def test_weasyprint_ships_an_srgb_icc_profile() -> None:
 
 def _parts(folder: Path) -> list[Path]:
     """Three small parts (WeasyPrint packs objects in object streams), as files."""
+    folder.mkdir(parents=True, exist_ok=True)
     paths = []
     for number, count in enumerate((2, 1, 3)):
         pages = "".join(f"<p style='break-before: page'>part {number} page {page}</p>"
@@ -275,24 +276,26 @@ def test_pikepdf_pages_added_to_the_tree_are_the_files_pages(tmp_path: Path) -> 
         "Compare Pdf.copy_foreign of a page with PageList.extend (pikepdf's pagelist.cpp).")
 
 
-# pikepdf, use 2: a part may be dropped once its pages are copied.
+# pikepdf, use 2: a part may be dropped, and its file deleted, once its pages are copied.
 
 def test_pikepdf_copies_outlive_the_dropped_part(tmp_path: Path) -> None:
-    paths = _parts(tmp_path)
-
     def merged(keep: bool) -> bytes:
         pdf = pikepdf.Pdf.new()
         kept = []
-        for path in paths:
+        for path in _parts(tmp_path / ("kept" if keep else "dropped")):
             source = open_part(path)
             add_page_copies(pdf, source)
             if keep:
                 kept.append(source)
-            del source
-        gc.collect()   # the parts not kept are gone before the save
+            else:
+                del source
+                gc.collect()   # the part is gone, and then its file
+                path.unlink()
         return _saved(pdf)
 
     assert merged(keep=False) == merged(keep=True), changed(
-        "pikepdf", "the copied streams of a part that was dropped (not written the same)",
-        "open_part", "Check how qpdf copies foreign stream data (QPDF::copyStreamData, "
-        "ForeignStreamData) and what pikepdf's Pdf does when it is garbage-collected.")
+        "pikepdf", "the copied streams of a part that was dropped and its file deleted (not "
+        "written the same)", "open_part", "Check how qpdf copies foreign stream data "
+        "(QPDF::copyStreamData: the data is copied at once when the source was opened with "
+        "setImmediateCopyFrom, as pikepdf does) and what pikepdf's Pdf does when it is "
+        "garbage-collected.")

@@ -190,12 +190,12 @@ class PageCopier:
     byte-identical to a full build.
 
     Each part is written to a file in a temporary folder and opened from there when its
-    turn comes: qpdf (C++), not Python, parses the objects its pages use and copies them;
-    the part is then dropped, and its stream data is read from the file when the merged
-    file is saved (:mod:`reportgen.pdf.pikepdf_access`). A part waiting for an earlier
-    one waits as that file, so its bytes need not be kept. :meth:`close` (or leaving the
-    ``with`` block) removes the folder. The folder is in the system's temporary directory
-    (``TMPDIR``) and holds the parts' bytes (about 15 KB a page) and the merged file.
+    turn comes: qpdf (C++), not Python, parses the objects its pages use and copies them,
+    with their streams' data; the part is then dropped and its file deleted
+    (:mod:`reportgen.pdf.pikepdf_access`). A part waiting for an earlier one waits as that
+    file, so its bytes need not be kept. :meth:`close` (or leaving the ``with`` block)
+    removes the folder. The folder is in the system's temporary directory (``TMPDIR``)
+    and holds the parts that wait (about 10 kB a page).
     """
 
     def __init__(self) -> None:
@@ -243,6 +243,11 @@ class PageCopier:
             self.pages += pages
         self._identical.merge(pages)
         self.structure.add_part(order, source, pages)
+        del source  # the copies hold what they need (use 2): the file can go (on a
+        try:        # memory-backed TMPDIR it is memory); else it goes with the folder
+            path.unlink()
+        except OSError:
+            pass
 
     def add_front(self, front: RenderedPart) -> None:
         """Put the pages of ``front`` (part 0) before the bodies."""
