@@ -14,6 +14,11 @@ part's pages into one file (:class:`reportgen.pdf.merge.PageCopier`, pikepdf), t
 step of :func:`reportgen.pdf.merge.finish_pdf` (page stamps, links and outline, the
 archive file's metadata, the qpdf write), and the peak memory of this process (the
 parts' bytes, held by this script, included). No render, no network.
+
+With ``--distinct-anchors`` every copy's anchors, link targets and bookmarks get a suffix of
+their own, so that a copy's links point into that copy, as in a report that many times
+larger (without it, anchors repeated in later copies are ignored: far fewer links, outline
+items and names than a real report of that size).
 """
 
 from __future__ import annotations
@@ -24,6 +29,7 @@ import resource
 import sys
 import tempfile
 import time
+from dataclasses import replace
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -32,17 +38,36 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 from reportgen.pdf import merge  # noqa: E402
 from reportgen.pdf.cache import ENTRY_SUFFIX, decode_entry  # noqa: E402
 from reportgen.pdf.engine import _cycle_collector_paused  # noqa: E402
+from reportgen.pdf.weasy import RenderedPart  # noqa: E402
+
+
+def distinct(part: RenderedPart, copy: int) -> RenderedPart:
+    """``part`` with its anchors, link targets and bookmarks suffixed with ``copy``."""
+    if copy == 0:
+        return part
+    suffix = f"~{copy}"
+    pages = tuple(replace(frame, links=tuple(replace(link, target=link.target + suffix)
+                                             for link in frame.links))
+                  for frame in part.pages)
+    return replace(part, pages=pages,
+                   anchors={name + suffix: anchor for name, anchor in part.anchors.items()},
+                   bookmarks=tuple(replace(bookmark, anchor_id=bookmark.anchor_id + suffix)
+                                   for bookmark in part.bookmarks))
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("cache", type=Path, help="a part cache folder (OUT/.reportgen-cache)")
     parser.add_argument("--times", type=int, default=1, help="merge each part this many times")
+    parser.add_argument("--distinct-anchors", action="store_true",
+                        help="each copy's links point into that copy (see above)")
     args = parser.parse_args()
     entries = sorted(args.cache.glob(f"*{ENTRY_SUFFIX}"))
     parts = [decode_entry(path.name[:-len(ENTRY_SUFFIX)], path.read_bytes()) for path in entries]
     parts.sort(key=lambda part: -part.page_count)  # the front: a short one, at the end
-    front, bodies = parts[-1], parts[:-1] * args.times
+    front = parts[-1]
+    bodies = [distinct(part, copy) if args.distinct_anchors else part
+              for copy in range(args.times) for part in parts[:-1]]
     pages = front.page_count + sum(part.page_count for part in bodies)
     logging.basicConfig(level=logging.WARNING, format="%(message)s")
     logging.getLogger("reportgen.pdf.merge").setLevel(logging.DEBUG)
