@@ -39,7 +39,8 @@ from reportgen.pdf.stamp import Stamper, make_stamp_font
 from reportgen.pdf.tags import StructureMerger
 from reportgen.pdf.weasy import Anchor, PageFrame, RenderedPart
 
-__all__ = ["Destinations", "PageCopier", "Seal", "absolute_anchors", "finish_pdf", "pdf_date", "slot_text"]
+__all__ = ["Destinations", "PageCopier", "Seal", "absolute_anchors", "finish_pdf", "pdf_date",
+           "slot_text"]
 
 LOGGER = logging.getLogger(__name__)
 MISSING_SLOT_TEXT: Final = "\u2013"
