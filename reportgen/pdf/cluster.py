@@ -73,12 +73,6 @@ def worker_fingerprint() -> dict[str, str]:
     return dict(render_environment())
 
 
-async def load_renderer() -> None:
-    """Import the part renderer (WeasyPrint and its fonts' libraries), on a worker (a
-    coroutine: Dask runs one on its workers without waiting for the answer)."""
-    import reportgen.pdf.weasy  # noqa: F401
-
-
 def _this_worker() -> str:
     try:
         from distributed import get_worker
@@ -212,10 +206,10 @@ class ClusterSession:
                 f"or build without --cluster") from None
         session = cls(address, client, worker_fingerprint())
         try:
+            # the fingerprint is a function of this module: each worker imports the
+            # renderer now (WeasyPrint with it), not with its first part; a build opens
+            # its session while it reads and judges the project (reportgen.pipeline.build)
             session.check_workers()
-            # each worker loads the renderer now, not with its first part: a build opens
-            # its session before it judges the project (reportgen.pipeline.build)
-            client.run(load_renderer, wait=False)
         except BaseException:
             session.close()
             raise
