@@ -28,6 +28,7 @@ from markupsafe import escape
 
 from reportgen.report import text_width
 from reportgen.report.formats import format_db
+from reportgen.report.hatching import hatched_rect
 from reportgen.report.i18n import ENGLISH, Language
 from reportgen.report.messages import Words
 from reportgen.report.viewmodel import BudgetView, LinkView, ResultView
@@ -50,6 +51,7 @@ TICK_SLACK_DB: Final = 1e-9
 # for each, so the lines stay apart in grayscale.
 LINE_STYLES: Final = (("#12355b", ""), ("#8a5a00", "7 4"), ("#4b6b3c", "2 3"), ("#555555", "10 3 2 3"))
 OVER_COLOUR: Final = "#b5400f"
+OVER_FILL: Final = "#fbeee6"  # under the hatching of the zone above the limit
 WITHIN_COLOUR: Final = "#12355b"
 # The labels' size (drawing units), weight (bold?) and colour: every label, then by class.
 BASE_TEXT: Final = (10.0, False, "#222")
@@ -204,8 +206,14 @@ def _column(canvas: _Canvas, index: int, budget: BudgetView, results: list[Resul
     left = COLUMN_LEFT + index * (COLUMN_WIDTH + COLUMN_GAP)
     right = left + COLUMN_WIDTH
     y_limit = canvas.y(budget.total_db)
+    over_height = max(y_limit - PLOT_TOP, 0)
+    # the zone above the limit: a pale fill, the hatching, then its outline over both
     canvas.add(f'<rect x="{left}" y="{PLOT_TOP}" width="{COLUMN_WIDTH}" '
-               f'height="{max(y_limit - PLOT_TOP, 0):.2f}" fill="url(#{hatch_id})" class="over"/>')
+               f'height="{over_height:.2f}" fill="{OVER_FILL}" stroke="none"/>')
+    canvas.add(hatched_rect(left, PLOT_TOP, COLUMN_WIDTH, over_height, clip_id=f"{hatch_id}{index}",
+                            stroke=OVER_COLOUR, stroke_width=1.2))
+    canvas.add(f'<rect x="{left}" y="{PLOT_TOP}" width="{COLUMN_WIDTH}" '
+               f'height="{over_height:.2f}" fill="none" class="over"/>')
     canvas.add(f'<rect x="{left}" y="{y_limit}" width="{COLUMN_WIDTH}" '
                f'height="{PLOT_BOTTOM - y_limit:.2f}" class="within"/>')
     dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
@@ -237,11 +245,8 @@ def _text_style() -> str:
     return "".join(rules)
 
 
-def _style_block(hatch_id: str) -> str:
+def _style_block() -> str:
     return (
-        f'<defs><pattern id="{hatch_id}" width="6" height="6" patternUnits="userSpaceOnUse" '
-        f'patternTransform="rotate(45)"><rect width="6" height="6" fill="#fbeee6"/>'
-        f'<line x1="0" y1="0" x2="0" y2="6" stroke="{OVER_COLOUR}" stroke-width="1.2"/></pattern></defs>'
         '<style>'
         + _text_style() +
         '.grid{fill:none;stroke:#dddddd;stroke-width:0.5}.axis{fill:none;stroke:#333;stroke-width:0.8}'
@@ -264,14 +269,14 @@ def loss_diagram(link: LinkView, lang: Language = ENGLISH) -> str:
     highest = max([b.total_db for b in budgets] + [r.loss_db for r in link.results])
     top_db, step_db = _nice_top_db(highest)
     canvas = _Canvas(top_db, lang)
-    hatch_id = f"{link.anchor}-over"
+    hatch_id = f"{link.anchor}-over"  # the clip paths of the hatching
     width = COLUMN_LEFT + len(budgets) * (COLUMN_WIDTH + COLUMN_GAP) + 4
     canvas.add(f'<svg xmlns="http://www.w3.org/2000/svg" class="loss-diagram" '
                f'viewBox="0 0 {max(width, WIDTH)} {HEIGHT}" width="{max(width, WIDTH)}" height="{HEIGHT}" '
                f'role="img" aria-label="{escape(Words(lang)["diagram_heading"])}">'
                # the title is the figure's alternative text in a tagged PDF
                f'<title>{escape(Words(lang)["diagram_heading"])}</title>')
-    canvas.add(_style_block(hatch_id))
+    canvas.add(_style_block())
     _axes(canvas, step_db)
     steps_shown = None
     for index, budget in enumerate(budgets):

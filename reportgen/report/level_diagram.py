@@ -27,6 +27,7 @@ from xml.sax.saxutils import escape
 from reportgen.engine.budget import Budget, TermKind
 from reportgen.engine.power import PowerBudget
 from reportgen.report import text_width
+from reportgen.report.hatching import hatched_rect
 from reportgen.report.i18n import ENGLISH, N_, Language
 
 # Drawing guard, not a limit tolerance: the axis ticks are stepped by float subtraction,
@@ -180,9 +181,6 @@ def power_level_svg(
         f'viewBox="0 0 {width_px} {height_px}" role="img" font-family="DejaVu Sans, sans-serif" '
         f'font-size="10">',
         f"<title>{escape(power.link_id)}: {escape(labels[power.verdict.value])}</title>",
-        f'<defs><pattern id="{uid}-hatch" width="6" height="6" patternUnits="userSpaceOnUse" '
-        f'patternTransform="rotate(45)"><line x1="0" y1="0" x2="0" y2="6" stroke="#888" '
-        f'stroke-width="1.5"/></pattern></defs>',
         f'<text x="{left}" y="16" font-size="12" font-weight="bold">'
         + escape(labels["title"].format(wavelength=power.wavelength_nm,
                                         basis=labels[power.basis.value])) + "</text>",
@@ -191,8 +189,8 @@ def power_level_svg(
     ]
     # receiver window band and its two edges
     y_over, y_sens = y(power.rx_overload_dbm), y(power.rx_min_average_dbm)
-    out.append(f'<rect x="{left}" y="{y_over}" width="{plot_w}" height="{round(y_sens - y_over, 1)}" '
-               f'fill="url(#{uid}-hatch)" fill-opacity="0.5" stroke="none"/>')
+    out.append(hatched_rect(left, y_over, plot_w, round(y_sens - y_over, 1), clip_id=f"{uid}-window",
+                            stroke="#888", stroke_width=1.5, extra=' stroke-opacity="0.5"'))
     for level, key in ((power.rx_overload_dbm, "overload"), (power.rx_min_average_dbm, "receive-minimum")):
         out.append(f'<line x1="{left}" y1="{y(level)}" x2="{left + plot_w}" y2="{y(level)}" '
                    f'stroke="#555" stroke-width="1"/>')
