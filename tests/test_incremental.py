@@ -119,7 +119,7 @@ def test_the_documents_are_dropped_before_the_pdf_is_finished(
     # from it (their drawings) must be gone by then, and report.html whole.
     from reportgen.pdf import engine
     from reportgen.report import render
-    from reportgen.report.viewmodel import ResultView
+    from reportgen.report.link_views import ResultView
 
     made: list[weakref.ref[render.ReportDocument]] = []
     real_build_report, real_finish = render.build_report, engine.finish_pdf

@@ -19,7 +19,8 @@ from reportgen.report.page_plan import lines_needed
 from reportgen.report.register_pages import RegisterPlanner, register_runs
 from reportgen.report.render import ReportDocument, build_report
 from reportgen.report.text_width import text_width
-from reportgen.report.viewmodel import LinkView, build_view
+from reportgen.report.link_views import LinkView
+from reportgen.report.viewmodel import build_view
 
 NOW = datetime(2030, 2, 1, 12, 0)
 ROW = re.compile(r'<td class="link-id"><a href="#([^"]+)"')

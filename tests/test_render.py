@@ -16,7 +16,7 @@ from reportgen.engine.judge import judge_project
 from reportgen.model import Paper, ReportOptions
 from reportgen.report.documents import LazyDocuments, squeeze_html, squeezed_pieces
 from reportgen.report.render import build_report, css_string
-from reportgen.report.viewmodel import link_anchors
+from reportgen.report.link_views import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
 HOSTILE_SCRIPT = "<script>alert(1)</script>"

@@ -16,7 +16,7 @@ from reportgen.engine.judge import judge_project
 from reportgen.model import FiberType, Transceiver
 from reportgen.report.render import build_report
 from reportgen.inputs.project import load_project
-from reportgen.report.viewmodel import link_anchors
+from reportgen.report.link_views import link_anchors
 
 NOW = datetime(2030, 2, 1, 12, 0)
 DEMO = Path(__file__).resolve().parent.parent / "demo_project"

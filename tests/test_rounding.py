@@ -24,7 +24,7 @@ from reportgen import pipeline
 from reportgen.export.results_csv import results_csv_bytes
 from reportgen.export.summary import json_bytes
 from reportgen.report.render import build_report
-from reportgen.report.viewmodel import link_anchors
+from reportgen.report.link_views import link_anchors
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_project"
 NOW = datetime(2030, 2, 1, 12, 0, tzinfo=timezone.utc)

@@ -24,7 +24,7 @@ from matplotlib.ticker import FuncFormatter
 
 from reportgen.report.i18n import ENGLISH, SOURCE_LANGUAGE, Language
 from reportgen.report.messages import Words
-from reportgen.report.viewmodel import LinkView
+from reportgen.report.link_views import LinkView
 
 _RC: Final = {
     "svg.fonttype": "none",

@@ -31,7 +31,7 @@ from reportgen.report.formats import format_db
 from reportgen.report.hatching import hatched_rect
 from reportgen.report.i18n import ENGLISH, Language
 from reportgen.report.messages import Words
-from reportgen.report.viewmodel import BudgetView, LinkView, ResultView
+from reportgen.report.link_views import BudgetView, LinkView, ResultView
 
 WIDTH: Final = 640
 HEIGHT: Final = 156

@@ -17,7 +17,7 @@ from reportgen.report.page_plan import (
     TABLE_PT, WIDTH_SLACK, lines_needed,
 )
 from reportgen.report.text_width import text_width
-from reportgen.report.viewmodel import LinkView
+from reportgen.report.link_views import LinkView
 
 # report.css register columns (col.c-id ... col.c-page), as shares of the table's width
 COLUMNS: Final = (0.19, 0.33, 0.07, 0.08, 0.07, 0.10, 0.11, 0.05)

@@ -7,7 +7,7 @@ appendix), all sharing one stylesheet and one set of ``@page`` rules.
 Contract with reportgen.pdf:
 
 - every part is a complete HTML document with the same CSS;
-- each link sheet's first element has ``id="link-<slug>"`` (:func:`viewmodel.link_anchors`),
+- each link sheet's first element has ``id="link-<slug>"`` (:func:`link_views.link_anchors`),
   front-matter and appendix sections have ids too;
 - elements with ``data-bookmark`` / ``data-bookmark-level`` and an ``id`` are outline
   entries; headings carry ``bookmark-level: none``;
@@ -54,7 +54,8 @@ from reportgen.engine.judge import Judgement
 from reportgen.report import level_diagram, otdr_figure, text_table
 from reportgen.engine.otdr import OtdrAssessment
 from reportgen.model import Project
-from reportgen.report.viewmodel import ArchiveView, LinkView, ReportView, build_view, otdr_figure_key
+from reportgen.report.link_views import LinkView, otdr_figure_key
+from reportgen.report.viewmodel import ArchiveView, ReportView, build_view
 
 TEMPLATE_MAIN: Final = "report.html.j2"
 STYLESHEETS: Final = ("report.css", "print.css")
