@@ -13,7 +13,9 @@ Usage (from the repository root)::
   ``--no-cache`` build of the changed project, byte for byte.
 * **Cluster**: ``--no-cache`` builds with ``--jobs 2`` (two local worker processes) and with
   ``--cluster`` on a ``distributed.LocalCluster`` of two worker processes (one thread each)
-  started here. Target: the cluster build under 1.15x the local one. Both PDFs must be equal.
+  started here: one build on the workers just started, then ``--cluster-rounds`` cluster builds
+  alternating with local ones, each against the mean of the local builds around it. Target: the
+  cluster build under 1.15x the local one. The PDFs must be equal.
 
 Each build is ``python -m reportgen build`` in a child process (wall time of that process),
 with ``SOURCE_DATE_EPOCH`` fixed. Run with nothing else busy on the machine.
@@ -24,6 +26,7 @@ from __future__ import annotations
 import argparse
 import hashlib
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -79,31 +82,45 @@ def bench_rebuild(links: int, folder: Path) -> None:
           f"PDF equal to a build from scratch: {same}", flush=True)
 
 
-def bench_cluster(links: int, folder: Path) -> None:
+def bench_cluster(links: int, folder: Path, rounds: int) -> None:
+    """One build on workers just started, then ``rounds`` pairs of a local build and a
+    cluster build, alternating, so that the machine's drift (two shared cores: the same
+    local build took 13 to 19 s within ten minutes) falls on both sides alike."""
     from distributed import LocalCluster
 
     project = make_project(folder / f"cluster-{links}", links=links, seed=1)
-    local_s = build(project, folder / "local-out", "--no-cache", "--jobs", "2")
+    build(project, folder / "warm-out", "--no-cache", "--jobs", "2")  # page cache, .pyc
     os.environ["PYTHONPATH"] = os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")])
+    local_s: list[float] = []
+    cluster_s: list[float] = []
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                       dashboard_address=None, host="127.0.0.1") as cluster:
-        # first build: the workers were just started; second: they have rendered before
-        first_s = build(project, folder / "cluster-out", "--no-cache",
-                        "--cluster", cluster.scheduler_address)
-        second_s = build(project, folder / "cluster-out-2", "--no-cache",
-                         "--cluster", cluster.scheduler_address)
+        address = cluster.scheduler_address
+        local_s.append(build(project, folder / "local-out", "--no-cache", "--jobs", "2"))
+        first_s = build(project, folder / "cluster-out", "--no-cache", "--cluster", address)
+        first_ratio = first_s / local_s[0]
+        for _ in range(rounds):
+            cluster_s.append(build(project, folder / "cluster-out-2", "--no-cache",
+                                   "--cluster", address))
+            local_s.append(build(project, folder / "local-out", "--no-cache", "--jobs", "2"))
     same = (pdf_digest(folder / "local-out") == pdf_digest(folder / "cluster-out")
             == pdf_digest(folder / "cluster-out-2"))
-    print(f"cluster, {links} links: two local processes {local_s:.1f} s, local two-worker "
-          f"cluster {first_s:.1f} s = {first_s / local_s:.2f}x with workers just started, "
-          f"{second_s:.1f} s = {second_s / local_s:.2f}x on the second build "
-          f"(target < 1.15x); PDFs equal: {same}", flush=True)
+    ratios = [c / ((a + b) / 2) for c, a, b in zip(cluster_s, local_s, local_s[1:])]
+    print(f"cluster, {links} links: workers just started {first_s:.1f} s against local "
+          f"{local_s[0]:.1f} s just before = {first_ratio:.2f}x; running cluster, {rounds} rounds "
+          f"(each against the mean of the local builds before and after it): "
+          f"{', '.join(f'{r:.2f}x' for r in ratios)}, median {statistics.median(ratios):.2f}x; "
+          f"medians local {statistics.median(local_s):.1f} s, cluster "
+          f"{statistics.median(cluster_s):.1f} s (target < 1.15x); PDFs equal: {same}",
+          flush=True)
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--rebuild-links", type=int, default=500)
     parser.add_argument("--cluster-links", type=int, default=100)
+    parser.add_argument("--cluster-rounds", type=int, default=3,
+                        help="alternating local and cluster builds on the running cluster")
     parser.add_argument("--skip-rebuild", action="store_true")
     parser.add_argument("--skip-cluster", action="store_true")
     args = parser.parse_args()
@@ -112,7 +129,7 @@ def main() -> None:
         if not args.skip_rebuild:
             bench_rebuild(args.rebuild_links, folder)
         if not args.skip_cluster:
-            bench_cluster(args.cluster_links, folder)
+            bench_cluster(args.cluster_links, folder, args.cluster_rounds)
 
 
 if __name__ == "__main__":
