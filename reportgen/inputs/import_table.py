@@ -2,9 +2,9 @@
 
 The profile maps headers to fields (or a wide layout's columns to one field per row), converts
 decimal commas, dates and split date/time cells, and fills constants. The rows are then checked
-by the same functions as native rows (``check_results``, ``check_links``, called by
-``reportgen.inputs.project``); ``ImportedTable.remap`` rewrites their problems to name the
-original file, row (and sheet) and header.
+by the same functions as native rows (``check_results``; ``check_links`` of
+:mod:`reportgen.inputs.links`; called by ``reportgen.inputs.project``); ``ImportedTable.remap``
+rewrites their problems to name the original file, row (and sheet) and header.
 """
 from __future__ import annotations
 
