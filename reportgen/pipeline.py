@@ -19,7 +19,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from reportgen import __version__
+from reportgen import __version__, interrupt
 
 from reportgen.export.atomic import Output, write_outputs
 from reportgen.export.results_csv import results_csv_bytes
@@ -163,11 +163,11 @@ def build(
     project_dir = Path(project_dir)
     out_dir = Path(out_dir) if out_dir is not None else default_out_dir(project_dir)
     check_out_dir(project_dir, out_dir)
-    if report and cluster is None:
-        from reportgen.pdf.forkserver import start_early
+    with interrupt.watching(), ExitStack() as closing:
+        if report and cluster is None:
+            from reportgen.pdf.forkserver import start_early
 
-        start_early()  # the PDF workers' server imports WeasyPrint while the project loads
-    with ExitStack() as closing:
+            start_early()  # the PDF workers' server imports WeasyPrint while the project loads
         connecting: Future[ClusterSession] | None = None
         if report and cluster is not None:
             from reportgen.pdf.cluster import ClusterSession
@@ -180,6 +180,7 @@ def build(
             connecting = connector.submit(ClusterSession.connect, cluster)
             closing.callback(_close_session, connecting)
         project = validate_only(project_dir)
+        interrupt.check()
         check_out_dir_holds_no_input(project, out_dir)
         return _build_loaded(project, out_dir, now=now, version=version, report=report,
                              progress=progress, jobs=jobs, cache=cache, cluster=connecting,
@@ -203,6 +204,7 @@ def _build_loaded(project: Project, out_dir: Path, *, now: datetime | None, vers
     """:func:`build` once the project is loaded; ``cluster``: the session being opened."""
     now = build_now(now)
     outcome = compute(project, now)
+    interrupt.check()
     results_csv = results_csv_bytes(outcome.judgement.results)
     archive = archive_of(outcome, results_csv, now=now, version=version)
 
@@ -215,7 +217,7 @@ def _build_loaded(project: Project, out_dir: Path, *, now: datetime | None, vers
 
     def write(outputs: Mapping[str, Output]) -> None:
         log.info("Step 5: writing %s", ", ".join(outputs))
-        write_outputs(out_dir, outputs)
+        write_outputs(out_dir, outputs, before_replacing=interrupt.check)
 
     if report:
         outputs: Sequence[str] = render_report(

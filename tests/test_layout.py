@@ -5,7 +5,8 @@ import ast
 from pathlib import Path
 
 PACKAGE = Path(__file__).resolve().parent.parent / "reportgen"
-SHARED = {"reportgen", "reportgen.model", "reportgen.errors", "reportgen.units"}
+SHARED = {"reportgen", "reportgen.model", "reportgen.errors", "reportgen.units",
+          "reportgen.interrupt"}
 # What each stage may import besides itself and SHARED (from the stage docstrings).
 ALLOWED = {
     "inputs": set(),
@@ -52,7 +53,7 @@ def test_package_imports_are_absolute():
 
 
 def test_shared_modules_import_no_stage():
-    for name in ("model", "errors", "units"):
+    for name in ("model", "errors", "units", "interrupt"):
         for module in _imports(PACKAGE / f"{name}.py"):
             assert module in SHARED, f"reportgen/{name}.py imports {module}"
 

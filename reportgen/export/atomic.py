@@ -10,7 +10,7 @@ from __future__ import annotations
 import os
 import tempfile
 import shutil
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import BinaryIO, Final, Union
 
@@ -22,12 +22,15 @@ Output = Union[bytes, BinaryIO]
 
 
 def write_outputs(out_dir: Path, outputs: Mapping[str, Output],
-                  ours: Sequence[str] = OUTPUT_NAMES) -> None:
+                  ours: Sequence[str] = OUTPUT_NAMES,
+                  before_replacing: Callable[[], None] = lambda: None) -> None:
     """Write all outputs, each atomically; called only after everything is rendered.
 
     Outputs of ours (``ours``: a build's four files unless told otherwise) that this run
     does not produce are removed so that no stale file sits beside new ones; leftovers of
     an interrupted earlier run (hidden temporary files) are cleaned up.
+    ``before_replacing()`` is called once every output is staged, before the first
+    previous file is replaced or removed: what it raises leaves the folder as it was.
     """
     out_dir.mkdir(parents=True, exist_ok=True)
     for leftover in out_dir.glob(f"{TEMP_PREFIX}*"):
@@ -36,6 +39,7 @@ def write_outputs(out_dir: Path, outputs: Mapping[str, Output],
     try:
         for name, data in outputs.items():
             staged.append((name, _stage(out_dir, name, data)))
+        before_replacing()
         for name in ours:
             if name not in outputs:
                 (out_dir / name).unlink(missing_ok=True)

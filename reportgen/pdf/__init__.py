@@ -7,5 +7,6 @@ WeasyPrint's internals and :mod:`reportgen.pdf.pikepdf_access` the only one that
 pikepdf (qpdf, which builds and writes the merged file) beyond its documented API; each
 lists what it uses (tests/test_pdf_internals.py checks every item).
 
-May import: ``reportgen.errors``, ``reportgen.__version__`` and modules of this package.
+May import: ``reportgen.errors``, ``reportgen.interrupt``, ``reportgen.__version__`` and modules
+of this package.
 """

@@ -33,6 +33,7 @@ from multiprocessing.process import BaseProcess
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, BinaryIO, Final, Protocol
 
+from reportgen import interrupt
 from reportgen.errors import ReportgenError, WorkerTraceback
 from reportgen.pdf.archive import Attachment
 from reportgen.pdf.cache import PartCache, part_key
@@ -296,6 +297,7 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     arrived: list[int] = []
     try:
         while waiting or ready or slots.busy():
+            interrupt.check()  # a Ctrl-C whose exception a finalizer swallowed
             while slots.free() and (ready or waiting):
                 if not ready:
                     look_up_next()
