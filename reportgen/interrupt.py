@@ -59,21 +59,24 @@ def _on_sigint(signum: int, frame: FrameType | None) -> None:
 
 @contextmanager
 def watching() -> Iterator[None]:
-    """Record Ctrl-C (SIGINT) for :func:`check` while the block runs."""
+    """Record Ctrl-C (SIGINT) for :func:`check` while the block runs; the record ends with
+    the block (a Ctrl-C that stopped one build does not stop the next)."""
     _requested.clear()
-    if (threading.current_thread() is not threading.main_thread()
-            or signal.getsignal(signal.SIGINT) is not signal.default_int_handler):
-        yield
-        return
-    signal.signal(signal.SIGINT, _on_sigint)
+    install = (threading.current_thread() is threading.main_thread()
+               and signal.getsignal(signal.SIGINT) is signal.default_int_handler)
+    if install:
+        signal.signal(signal.SIGINT, _on_sigint)
     try:
         yield
     finally:
-        signal.signal(signal.SIGINT, signal.default_int_handler)
+        if install:
+            signal.signal(signal.SIGINT, signal.default_int_handler)
+        _requested.clear()
 
 
 def requested() -> bool:
-    """Whether SIGINT came since the build began (even if its exception was lost)."""
+    """Whether SIGINT came since the build began (even if its exception was lost); False
+    outside a build."""
     return _requested.is_set()
 
 

@@ -12,6 +12,7 @@ import xml.etree.ElementTree as ET
 from datetime import datetime
 from html.parser import HTMLParser
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import pandas as pd
 import pypdf
@@ -35,6 +36,9 @@ from reportgen.model import (
     ReferenceMethod,
     Testing,
 )
+
+if TYPE_CHECKING:
+    from reportgen.pdf.weasy import RenderedPart
 
 # Coefficients for arithmetic tests: test inputs, NOT a standard's values.
 TEST_LIMITS = LimitSet(
@@ -341,3 +345,38 @@ def synth_sor(events, fiber_end_m: float, *, spacing_m: float = 1.0, group_index
                   samples_db=samples)
     values.update(fields)
     return SorFile(**values)
+
+
+class RecordingSlots:
+    """One slot that renders nothing: it records what the engine does, and a part sent
+    comes back only when the engine blocks for it."""
+
+    def __init__(self, events: list[str]) -> None:
+        self.events = events
+        self.running: list[int] = []
+        self.closed = False
+
+    def free(self) -> bool:
+        return not self.running
+
+    def busy(self) -> bool:
+        return bool(self.running)
+
+    def send(self, index: int, html: str, root: Path, xml_first: bool) -> None:
+        self.events.append(f"send {index}")
+        self.running.append(index)
+
+    def prepare(self) -> None:
+        pass
+
+    def wait(self, block: bool = True) -> list[tuple[int, RenderedPart]]:
+        if not block:
+            return []
+        index = self.running.pop()
+        self.events.append(f"back {index}")
+        from reportgen.pdf.weasy import RenderedPart
+
+        return [(index, RenderedPart(b"", (), {}, ()))]
+
+    def close(self) -> None:
+        self.closed = True

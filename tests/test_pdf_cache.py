@@ -30,6 +30,7 @@ from reportgen.pdf.cache import (
 )
 from reportgen.pdf.engine import RenderPlan, _render_bodies, render_pdf
 from reportgen.pdf.weasy import RenderedPart, render_part
+from tests.builders import RecordingSlots
 
 CREATED = datetime(2030, 1, 15, 9, 30, tzinfo=timezone.utc)
 CSS = ("<style>@page { size: A6; margin: 10mm } body { font-family: DejaVu Sans; font-size: 9pt }"
@@ -211,38 +212,6 @@ def test_build_options_are_offered_and_checked(capsys: pytest.CaptureFixture[str
     assert "--jobs" in capsys.readouterr().err
 
 
-class _RecordingSlots:
-    """One slot that renders nothing: it records what the engine does, and a part sent
-    comes back only when the engine blocks for it."""
-
-    def __init__(self, events: list[str]) -> None:
-        self.events = events
-        self.running: list[int] = []
-
-    def free(self) -> bool:
-        return not self.running
-
-    def busy(self) -> bool:
-        return bool(self.running)
-
-    def send(self, index: int, html: str, root: Path, xml_first: bool) -> None:
-        self.events.append(f"send {index}")
-        self.running.append(index)
-
-    def prepare(self) -> None:
-        pass
-
-    def wait(self, block: bool = True) -> list[tuple[int, RenderedPart]]:
-        if not block:
-            return []
-        index = self.running.pop()
-        self.events.append(f"back {index}")
-        return [(index, RenderedPart(b"", (), {}, ()))]
-
-    def close(self) -> None:
-        pass
-
-
 class _RecordingPlan(RenderPlan):
     def slots(self, workers: int | None = None) -> Any:
         return self.recorder
@@ -271,7 +240,7 @@ def test_cached_parts_are_found_while_the_changed_ones_render() -> None:
     bodies = [body(f"part {index}") for index in range(5)]
     events: list[str] = []
     plan = _RecordingPlan(1, _HalfCache(bodies, {0, 3}, events))  # type: ignore[arg-type]
-    object.__setattr__(plan, "recorder", _RecordingSlots(events))
+    object.__setattr__(plan, "recorder", RecordingSlots(events))
     _render_bodies(bodies, Path("/"), 1, lambda done: events.append(f"done {done}"), False,
                    plan=plan)
     assert events == ["look up 0", "send 0",
