@@ -15,8 +15,9 @@ WeasyPrint is being imported):
 So while a build runs, SIGINT is handled here: the request is recorded first; inside
 the import system or code run from a string nothing is raised; elsewhere
 :class:`KeyboardInterrupt` is raised at once. The build calls :func:`check` at its
-checkpoints (between steps, each rendered part, and after the outputs are staged,
-before any of them replaces a previous one), which raises if the request was recorded.
+checkpoints (between steps, at each turn of the loop that sends and collects the PDF
+parts, and after the outputs are staged, before any of them replaces a previous one),
+which raises if the request was recorded.
 
 A handler is installed only in the main thread and only over Python's default one: a
 program embedding reportgen that handles SIGINT itself (or ignores it) keeps its own.

@@ -297,7 +297,7 @@ def _render_bodies(bodies: Sequence[str], root: Path, workers: int,
     arrived: list[int] = []
     try:
         while waiting or ready or slots.busy():
-            interrupt.check()  # a Ctrl-C whose exception a finalizer swallowed
+            interrupt.check()  # a Ctrl-C whose exception was lost or held back
             while slots.free() and (ready or waiting):
                 if not ready:
                     look_up_next()
